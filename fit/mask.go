@@ -1,0 +1,82 @@
+package fit
+
+import (
+	"math"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// AutoThreshold returns the automatic masking threshold of a series: half
+// of Otsu's threshold (Otsu 1979, IEEE Trans Syst Man Cybern 9:62) of the
+// histogram of each voxel's largest finite sample. Otsu's threshold
+// separates air from object; half of it keeps dim tissue and vial edges
+// that lie just above the noise. The largest sample rather than the first
+// volume is used so that a protocol whose first volume is dark (a short
+// inversion time near the null, a small flip angle) still masks correctly.
+// It returns 0 (no masking) when the image holds no positive finite sample.
+func AutoThreshold(im *volume.Image) float64 {
+	nv, nt := im.Voxels(), im.Volumes()
+	peak := make([]float64, nv)
+	top := 0.0
+	for v := 0; v < nv; v++ {
+		p := math.Inf(-1)
+		for t := 0; t < nt; t++ {
+			s := float64(im.Data[t*nv+v])
+			if s > p && !math.IsInf(s, 0) {
+				p = s
+			}
+		}
+		peak[v] = p
+		if p > top {
+			top = p
+		}
+	}
+	if !(top > 0) {
+		return 0
+	}
+	return otsu(peak, top) / 2
+}
+
+// otsu returns Otsu's threshold of the positive values of x on a 256-bin
+// histogram over [0, top].
+func otsu(x []float64, top float64) float64 {
+	const bins = 256
+	var h [bins]float64
+	var total float64
+	for _, v := range x {
+		if !(v > 0) {
+			v = 0
+		}
+		b := int(v / top * (bins - 1))
+		if b >= bins {
+			b = bins - 1
+		}
+		h[b]++
+		total++
+	}
+	var sumAll float64
+	for i, c := range h {
+		sumAll += float64(i) * c
+	}
+	var wB, sumB, best float64
+	bestI := 0
+	for i := 0; i < bins; i++ {
+		wB += h[i]
+		if wB == 0 {
+			continue
+		}
+		wF := total - wB
+		if wF == 0 {
+			break
+		}
+		sumB += float64(i) * h[i]
+		mB := sumB / wB
+		mF := (sumAll - sumB) / wF
+		between := wB * wF * (mB - mF) * (mB - mF)
+		if between > best {
+			best = between
+			bestI = i
+		}
+	}
+	return (float64(bestI) + 0.5) / (bins - 1) * top
+}
