@@ -106,7 +106,7 @@ func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, e
 	var progMu sync.Mutex
 	var wg sync.WaitGroup
 	errs := make([]error, workers)
-	counts := make([][NumStatus]int, workers)
+	wks := make([]*worker, workers)
 	for w := 0; w < workers; w++ {
 		wg.Add(1)
 		go func(w int) {
@@ -116,6 +116,7 @@ func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, e
 				errs[w] = err
 				return
 			}
+			wks[w] = wk
 			for {
 				if ctx.Err() != nil {
 					errs[w] = ctx.Err()
@@ -128,7 +129,6 @@ func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, e
 				hi := min(lo+chunk, nv)
 				for v := lo; v < hi; v++ {
 					wk.voxel(v, maps)
-					counts[w][maps.Status[v]]++
 				}
 				d := done.Add(int64(hi - lo))
 				if opt.Progress != nil {
@@ -146,9 +146,9 @@ func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, e
 		}
 		return nil, err
 	}
-	for w := range counts {
-		for s := range counts[w] {
-			maps.Counts[s] += counts[w][s]
+	for _, wk := range wks {
+		for s, c := range wk.counts {
+			maps.Counts[s] += c
 		}
 	}
 	return maps, nil
@@ -168,6 +168,7 @@ type worker struct {
 	subsets map[uint64]Fitter
 	subAcq  []volume.Acquisition
 	min     int
+	counts  [NumStatus]int
 }
 
 func newWorker(m Model, im *volume.Image, opt *Options, thr float64) (*worker, error) {
@@ -269,4 +270,5 @@ func (wk *worker) store(v int, maps *Maps) {
 	}
 	maps.R2[v] = float32(res.R2)
 	maps.Status[v] = uint8(res.Status)
+	wk.counts[res.Status]++
 }

@@ -38,7 +38,9 @@ func AutoThreshold(im *volume.Image) float64 {
 }
 
 // otsu returns Otsu's threshold of the positive values of x on a 256-bin
-// histogram over [0, top].
+// histogram over [0, top]: the upper edge of the last background bin,
+// taken at the middle of the range of bins that maximise the
+// between-class variance.
 func otsu(x []float64, top float64) float64 {
 	const bins = 256
 	var h [bins]float64
@@ -59,7 +61,7 @@ func otsu(x []float64, top float64) float64 {
 		sumAll += float64(i) * c
 	}
 	var wB, sumB, best float64
-	bestI := 0
+	bestI, bestJ := 0, 0
 	for i := 0; i < bins; i++ {
 		wB += h[i]
 		if wB == 0 {
@@ -73,10 +75,15 @@ func otsu(x []float64, top float64) float64 {
 		mB := sumB / wB
 		mF := (sumAll - sumB) / wF
 		between := wB * wF * (mB - mF) * (mB - mF)
-		if between > best {
+		switch {
+		case between > best*(1+1e-12):
 			best = between
-			bestI = i
+			bestI, bestJ = i, i
+		case between >= best*(1-1e-12):
+			bestJ = i // on the plateau of an empty gap between the classes
 		}
 	}
-	return (float64(bestI) + 0.5) / (bins - 1) * top
+	// Middle of the maximising plateau: with a clean gap between air and
+	// object every bin in the gap maximises the criterion equally.
+	return (float64(bestI+bestJ)/2 + 1) / (bins - 1) * top
 }

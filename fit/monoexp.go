@@ -170,8 +170,7 @@ func (m *MonoExp) NewFitter(acq []volume.Acquisition) (Fitter, error) {
 	}
 	f := &monoExpFitter{
 		m: m, te: te, lo: lo, hi: hi, np: np,
-		curve: monoExpCurve{te: te, offset: m.Offset, sigma: m.Sigma},
-		w:     make([]float64, len(te)),
+		curve: newMonoExpCurve(te, m.Offset, m.Sigma),
 	}
 	if meth == NLLS {
 		f.lm = newLM(m.LM, len(te), np)
@@ -189,6 +188,52 @@ type monoExpCurve struct {
 	te     []float64
 	offset bool
 	sigma  float64
+	// uniform is set when the echo times are evenly spaced by step; then
+	// exp(−R·TE_i) = exp(−R·TE_0)·q^i with q = exp(−R·step), two
+	// exponentials per evaluation instead of one per echo (the product
+	// accumulates at most n ulps of relative error).
+	uniform bool
+	step    float64
+	ex      []float64
+}
+
+func newMonoExpCurve(te []float64, offset bool, sigma float64) monoExpCurve {
+	c := monoExpCurve{te: te, offset: offset, sigma: sigma, ex: make([]float64, len(te))}
+	c.step, c.uniform = evenSpacing(te)
+	return c
+}
+
+// evenSpacing reports whether te is evenly spaced and returns the step.
+func evenSpacing(te []float64) (float64, bool) {
+	if len(te) < 3 {
+		return 0, false
+	}
+	step := (te[len(te)-1] - te[0]) / float64(len(te)-1)
+	if step == 0 {
+		return 0, false
+	}
+	for i, t := range te {
+		if math.Abs(t-(te[0]+step*float64(i))) > 1e-9*math.Abs(step) {
+			return 0, false
+		}
+	}
+	return step, true
+}
+
+// decay writes exp(−r·TE_i) into c.ex.
+func (c *monoExpCurve) decay(r float64) {
+	if c.uniform {
+		e := math.Exp(-r * c.te[0])
+		q := math.Exp(-r * c.step)
+		for i := range c.ex {
+			c.ex[i] = e
+			e *= q
+		}
+		return
+	}
+	for i, t := range c.te {
+		c.ex[i] = math.Exp(-r * t)
+	}
 }
 
 func (c *monoExpCurve) eval(f, jac, p []float64) {
@@ -199,8 +244,9 @@ func (c *monoExpCurve) eval(f, jac, p []float64) {
 		np = 3
 		off = p[2]
 	}
+	c.decay(r)
 	for i, t := range c.te {
-		e := math.Exp(-r * t)
+		e := c.ex[i]
 		a := m0*e + off
 		d := 1.0 // ∂f/∂a
 		if c.sigma > 0 {
@@ -226,7 +272,6 @@ type monoExpFitter struct {
 	curve  monoExpCurve
 	lm     *lm
 	solver solver
-	w      []float64
 	p      [3]float64
 	plo    [3]float64
 	phi    [3]float64
@@ -237,22 +282,25 @@ type monoExpFitter struct {
 // is about σ²/y², so the weights undo the noise amplification of the log;
 // common practice, e.g. Bevington & Robinson, Data Reduction and Error
 // Analysis, §6). Non-positive samples get weight 0. It returns M0, R (1/ms),
-// the standard error of R and of M0, the number of samples used, and
-// whether the fit was possible.
+// the standard errors of R and M0, the number of samples used, and whether
+// the fit was possible. One pass; the weighted residual sum comes from the
+// accumulated moments.
 func logLinear(te, y []float64) (m0, r, seR, seM0 float64, used int, ok bool) {
-	var sw, sx, sy, sxx, sxy float64
+	var sw, sx, sy, sxx, sxy, syy float64
 	for i, v := range y {
 		if !(v > 0) {
 			continue
 		}
 		w := v * v
-		l := math.Log(v)
+		l := logPos(v)
 		t := te[i]
+		wt, wl := w*t, w*l
 		sw += w
-		sx += w * t
-		sy += w * l
-		sxx += w * t * t
-		sxy += w * t * l
+		sx += wt
+		sy += wl
+		sxx += wt * t
+		sxy += wt * l
+		syy += wl * l
 		used++
 	}
 	if used < 2 {
@@ -264,24 +312,18 @@ func logLinear(te, y []float64) (m0, r, seR, seM0 float64, used int, ok bool) {
 	if !(dxx > 0) {
 		return 0, 0, 0, 0, used, false
 	}
-	slope := (sxy - sx*my) / dxx
+	dxy := sxy - sx*my
+	slope := dxy / dxx
 	icpt := my - slope*mx
 	m0 = math.Exp(icpt)
 	r = -slope
 	seR, seM0 = math.NaN(), math.NaN()
 	if used > 2 {
-		var chi float64
-		for i, v := range y {
-			if !(v > 0) {
-				continue
-			}
-			d := math.Log(v) - (icpt + slope*te[i])
-			chi += v * v * d * d
-		}
+		// Σw·(l − icpt − slope·t)² = Syy − Sxy²/Sxx (centred moments).
+		chi := math.Max(syy-sy*my-dxy*slope, 0)
 		s2 := chi / float64(used-2)
 		seR = math.Sqrt(s2 / dxx)
-		seIcpt := math.Sqrt(s2 * (1/sw + mx*mx/dxx))
-		seM0 = m0 * seIcpt
+		seM0 = m0 * math.Sqrt(s2*(1/sw+mx*mx/dxx))
 	}
 	return m0, r, seR, seM0, used, true
 }
@@ -297,9 +339,10 @@ func (f *monoExpFitter) Fit(dst *Result, y []float64, _ Covariates) {
 			dst.fail(NotConverged)
 			return
 		}
+		f.curve.decay(r)
 		var rss float64
-		for i, t := range f.te {
-			d := y[i] - m0*math.Exp(-r*t)
+		for i, e := range f.curve.ex {
+			d := y[i] - m0*e
 			rss += d * d
 		}
 		f.write(dst, m0, r, 0, seM0, seR, 0, y, rss, 0)

@@ -260,7 +260,8 @@ func TestCRLBCheckValues(t *testing.T) {
 func TestMonoExpJacobian(t *testing.T) {
 	te := spacedTE(8, 5, 7)
 	for _, off := range []bool{false, true} {
-		c := &monoExpCurve{te: te, offset: off}
+		cv := newMonoExpCurve(te, off, 0)
+		c := &cv
 		p := []float64{900, 1.0 / 60, 12}
 		np := 2
 		if off {

@@ -1,0 +1,217 @@
+package fit
+
+import (
+	"context"
+	"errors"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// decaySeries makes an nx×ny×nz series of n echoes whose voxels have T2
+// varying smoothly from 20 to 300 ms, Rician noise of SD sigma, and a dark
+// border (air) of width 2.
+func decaySeries(nx, ny, nz int, te []float64, sigma float64, seed uint64) *volume.Image {
+	im := volume.New(nx, ny, nz, len(te))
+	im.Acq = echoes(te)
+	rng := rand.New(rand.NewPCG(seed, 7))
+	nv := im.Voxels()
+	for k := 0; k < nz; k++ {
+		for j := 0; j < ny; j++ {
+			for i := 0; i < nx; i++ {
+				v := i + nx*(j+ny*k)
+				air := i < 2 || j < 2 || i >= nx-2 || j >= ny-2
+				t2 := 20 + 280*float64(v%97)/96
+				for t, x := range te {
+					a := 1000 * math.Exp(-x/t2)
+					if air {
+						a = 0
+					}
+					im.Data[t*nv+v] = float32(Rician(rng, a, sigma))
+				}
+			}
+		}
+	}
+	return im
+}
+
+func TestRunDeterministicAcrossWorkers(t *testing.T) {
+	te := spacedTE(12, 10, 10)
+	im := decaySeries(23, 17, 5, te, 10, 1)
+	// Holes: one voxel with a NaN echo, one all NaN, one with Inf.
+	nv := im.Voxels()
+	im.Data[3*nv+200] = float32(math.NaN())
+	for t := range te {
+		im.Data[t*nv+201] = float32(math.NaN())
+	}
+	im.Data[5*nv+202] = float32(math.Inf(1))
+	for _, m := range []Model{&MonoExp{}, &MonoExp{Estimator: LogLinear}, &MonoExp{Offset: true}} {
+		ref, err := Run(context.Background(), im, m, &Options{Workers: 1})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, w := range []int{2, 3, 8} {
+			got, err := Run(context.Background(), im, m, &Options{Workers: w})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for k := range ref.Values {
+				for v := range ref.Values[k] {
+					a, b := ref.Values[k][v], got.Values[k][v]
+					if math.Float32bits(a) != math.Float32bits(b) {
+						t.Fatalf("%s: workers %d output %d voxel %d: %v != %v", m.Method(), w, k, v, b, a)
+					}
+				}
+			}
+			for v := range ref.Status {
+				if ref.Status[v] != got.Status[v] || math.Float32bits(ref.R2[v]) != math.Float32bits(got.R2[v]) {
+					t.Fatalf("workers %d voxel %d: status/R² differ", w, v)
+				}
+			}
+			if got.Counts != ref.Counts {
+				t.Fatalf("counts %v != %v", got.Counts, ref.Counts)
+			}
+		}
+		if s := Status(ref.Status[201]); s != TooFewPoints {
+			t.Errorf("all-NaN voxel: status %v", s)
+		}
+		for _, v := range []int{200, 202} {
+			if s := Status(ref.Status[v]); s != OK {
+				t.Errorf("voxel %d with one bad echo: status %v, want ok (fitted on the rest)", v, s)
+			}
+		}
+		if ref.Counts[Masked] == 0 || ref.Counts[OK] < nv/2 {
+			t.Errorf("counts %v: the air border should be masked and the rest fitted", ref.Counts)
+		}
+		// Every masked or failed voxel is NaN, never 0.
+		for v, s := range ref.Status {
+			if Status(s) != OK && !math.IsNaN(float64(ref.Values[0][v])) {
+				t.Fatalf("voxel %d status %v has value %v", v, Status(s), ref.Values[0][v])
+			}
+		}
+	}
+}
+
+func TestRunMaskAndErrors(t *testing.T) {
+	te := spacedTE(6, 10, 10)
+	im := decaySeries(8, 8, 2, te, 5, 2)
+	mask := make([]bool, im.Voxels())
+	mask[27] = true
+	maps, err := Run(context.Background(), im, &MonoExp{}, &Options{Mask: mask})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if maps.Counts[Masked] != im.Voxels()-1 || Status(maps.Status[27]) != OK {
+		t.Errorf("counts %v, status of the one voxel %v", maps.Counts, Status(maps.Status[27]))
+	}
+	if _, err := Run(context.Background(), im, &MonoExp{}, &Options{Mask: mask[:10]}); err == nil {
+		t.Error("short mask accepted")
+	}
+	bad := *im
+	bad.Acq = echoes([]float64{10, 20, 30, 40, 50, math.NaN()})
+	if _, err := Run(context.Background(), &bad, &MonoExp{}, nil); !errors.Is(err, ErrProtocol) {
+		t.Errorf("missing TE: %v", err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := Run(ctx, im, &MonoExp{}, nil); !errors.Is(err, context.Canceled) {
+		t.Errorf("cancelled run: %v", err)
+	}
+}
+
+func TestAutoThreshold(t *testing.T) {
+	// Object at 1000, air Rayleigh noise with σ = 10: the threshold must
+	// fall between them.
+	im := decaySeries(32, 32, 1, []float64{10, 20}, 10, 3)
+	thr := AutoThreshold(im)
+	if !(thr > 60 && thr < 400) {
+		t.Errorf("threshold %g, want between the air (≈ 30) and the object (≥ 600)", thr)
+	}
+}
+
+func benchmarkRun(b *testing.B, m Model, im *volume.Image, workers int) {
+	opt := &Options{Workers: workers, NoThreshold: true}
+	var maps *Maps
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		var err error
+		maps, err = Run(context.Background(), im, m, opt)
+		if err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.StopTimer()
+	sinkMaps = maps
+	nv := float64(im.Voxels())
+	b.ReportMetric(nv*float64(b.N)/b.Elapsed().Seconds(), "voxels/s")
+	b.ReportMetric(float64(testing.AllocsPerRun(1, func() { Run(context.Background(), im, m, opt) }))/nv, "allocs/voxel")
+}
+
+var sinkMaps *Maps
+
+var benchT2Series *volume.Image
+
+func t2BenchSeries() *volume.Image {
+	if benchT2Series == nil {
+		benchT2Series = decaySeries(64, 64, 32, spacedTE(16, 10, 10), 10, 9)
+	}
+	return benchT2Series
+}
+
+func BenchmarkRunT2LogLinear(b *testing.B) {
+	benchmarkRun(b, &MonoExp{Estimator: LogLinear}, t2BenchSeries(), 2)
+}
+func BenchmarkRunT2NLLS(b *testing.B)       { benchmarkRun(b, &MonoExp{}, t2BenchSeries(), 2) }
+func BenchmarkRunT2NLLSOffset(b *testing.B) { benchmarkRun(b, &MonoExp{Offset: true}, t2BenchSeries(), 2) }
+func BenchmarkRunT2NLLSRician(b *testing.B) { benchmarkRun(b, &MonoExp{Sigma: 10}, t2BenchSeries(), 2) }
+
+// BenchmarkRunT2Gonum measures the gonum cross-check path on a smaller
+// series (it is about two orders of magnitude slower).
+func BenchmarkRunT2Gonum(b *testing.B) {
+	im := decaySeries(32, 32, 2, spacedTE(16, 10, 10), 10, 9)
+	benchmarkRun(b, &MonoExp{Solver: Gonum}, im, 2)
+}
+
+// benchmarkFitter fits pre-generated voxels one after another on one core.
+func benchmarkFitter(b *testing.B, m Model, acq []volume.Acquisition, voxels [][]float64) {
+	f, err := m.NewFitter(acq)
+	if err != nil {
+		b.Fatal(err)
+	}
+	res := NewResult(m)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		f.Fit(res, voxels[i%len(voxels)], Covariates{})
+	}
+	sinkResult = res.Values[0]
+}
+
+var sinkResult float64
+
+func t2Voxels(te []float64, n int) [][]float64 {
+	rng := rand.New(rand.NewPCG(5, 6))
+	out := make([][]float64, n)
+	for k := range out {
+		t2 := 20 + 280*rng.Float64()
+		y := make([]float64, len(te))
+		for i, x := range te {
+			y[i] = Rician(rng, 1000*math.Exp(-x/t2), 10)
+		}
+		out[k] = y
+	}
+	return out
+}
+
+func BenchmarkFitT2LogLinear16(b *testing.B) {
+	te := spacedTE(16, 10, 10)
+	benchmarkFitter(b, &MonoExp{Estimator: LogLinear}, echoes(te), t2Voxels(te, 1024))
+}
+
+func BenchmarkFitT2NLLS16(b *testing.B) {
+	te := spacedTE(16, 10, 10)
+	benchmarkFitter(b, &MonoExp{}, echoes(te), t2Voxels(te, 1024))
+}

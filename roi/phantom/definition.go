@@ -1,0 +1,194 @@
+package phantom
+
+import (
+	"bytes"
+	_ "embed"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"sort"
+	"strings"
+)
+
+// FormatV1 is the format tag of a phantom definition.
+const FormatV1 = "tauvox-phantom/1"
+
+// Definition describes a phantom: its vials, their reference values and
+// the tolerance of each quantity.
+type Definition struct {
+	Format    string               `json:"format"`
+	Name      string               `json:"name"`
+	Vials     []Vial               `json:"vials"`
+	Tolerance map[string]Tolerance `json:"tolerance"`
+	// Body is optional: the phantom's outer shape and fill, used when
+	// simulating it.
+	Body *Body `json:"body,omitempty"`
+}
+
+// Vial is one vial of a phantom. X and Y place its centre in the phantom's
+// own plane, in mm from the phantom's centre.
+type Vial struct {
+	ID        string           `json:"id"`
+	X         float64          `json:"x_mm"`
+	Y         float64          `json:"y_mm"`
+	Radius    float64          `json:"radius_mm"`
+	Reference map[string][]Row `json:"reference"`
+	// PD is the relative proton density, used only when simulating
+	// (default 1).
+	PD float64 `json:"pd,omitempty"`
+}
+
+// Row is one reference value of a vial: the value of a quantity at a field
+// strength and temperature, with its relative uncertainty.
+type Row struct {
+	Field       float64 `json:"field_T"`
+	Temperature float64 `json:"temperature_C"`
+	Value       float64 `json:"value_ms"`
+	Uncertainty float64 `json:"uncertainty_pct"`
+}
+
+// Tolerance is the acceptance limit of a quantity: a vial passes when
+// |measured − reference| ≤ max(Pct % of reference, Abs).
+type Tolerance struct {
+	Pct float64 `json:"pct"`
+	Abs float64 `json:"abs_ms"`
+}
+
+// Body is the outer cylinder of a phantom and its fill material.
+type Body struct {
+	Radius float64 `json:"radius_mm"`
+	Length float64 `json:"length_mm"`
+	FillT1 float64 `json:"fill_T1_ms"`
+	FillT2 float64 `json:"fill_T2_ms"`
+	FillPD float64 `json:"fill_pd"`
+}
+
+//go:embed demo.json
+var demoJSON []byte
+
+// Demo returns the built-in definition of the invented tauvox demo
+// phantom. The values are invented for demonstration and are no real
+// product's.
+func Demo() *Definition {
+	d, err := Parse(demoJSON, "demo.json")
+	if err != nil {
+		panic("phantom: built-in demo definition: " + err.Error())
+	}
+	return d
+}
+
+// DemoJSON returns the bytes of the built-in demo definition.
+func DemoJSON() []byte { return append([]byte(nil), demoJSON...) }
+
+// Read reads and checks a phantom definition file.
+func Read(path string) (*Definition, error) {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, err
+	}
+	return Parse(b, path)
+}
+
+// Parse decodes and checks a phantom definition; name is used in errors.
+func Parse(b []byte, name string) (*Definition, error) {
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.DisallowUnknownFields()
+	var d Definition
+	if err := dec.Decode(&d); err != nil {
+		return nil, fmt.Errorf("%s: phantom definition: %v", name, err)
+	}
+	if err := d.check(); err != nil {
+		return nil, fmt.Errorf("%s: phantom definition: %v", name, err)
+	}
+	return &d, nil
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+func (d *Definition) check() error {
+	if d.Format != FormatV1 {
+		return fmt.Errorf("format %q, want %q", d.Format, FormatV1)
+	}
+	if len(d.Vials) == 0 {
+		return errors.New("no vials")
+	}
+	seen := map[string]bool{}
+	for i, v := range d.Vials {
+		if strings.TrimSpace(v.ID) == "" {
+			return fmt.Errorf("vial %d has no id", i+1)
+		}
+		if seen[v.ID] {
+			return fmt.Errorf("vial id %q appears twice", v.ID)
+		}
+		seen[v.ID] = true
+		if !finite(v.X) || !finite(v.Y) || !(v.Radius > 0) || !finite(v.Radius) {
+			return fmt.Errorf("vial %s: position and a positive radius are required", v.ID)
+		}
+		for q, rows := range v.Reference {
+			for _, r := range rows {
+				if !(r.Value > 0) || !finite(r.Value) || !finite(r.Field) || !(r.Field > 0) || !finite(r.Temperature) || r.Uncertainty < 0 {
+					return fmt.Errorf("vial %s: %s reference row needs field_T > 0, temperature_C and value_ms > 0", v.ID, q)
+				}
+			}
+		}
+	}
+	for q, t := range d.Tolerance {
+		if t.Pct < 0 || t.Abs < 0 || !finite(t.Pct) || !finite(t.Abs) {
+			return fmt.Errorf("tolerance of %s must be non-negative", q)
+		}
+	}
+	return nil
+}
+
+// ErrOutOfRange reports a temperature outside a vial's reference table.
+var ErrOutOfRange = errors.New("temperature outside the reference table")
+
+// ReferenceAt returns the reference value of quantity q ("T1", "T2") at
+// the field strength closest to field (within 0.1 T) and temperature temp,
+// interpolated linearly between the two nearest temperatures, and its
+// relative uncertainty (the larger of the two rows'). With one row at that
+// field the value applies at its temperature only, unless extrapolate is
+// set. Outside the table's temperature range it returns ErrOutOfRange
+// unless extrapolate is set, when the nearest two rows are extended
+// linearly. ok is false when the vial has no reference for q at that field.
+func (v *Vial) ReferenceAt(q string, field, temp float64, extrapolate bool) (value, uncPct float64, ok bool, err error) {
+	var rows []Row
+	best := math.Inf(1)
+	for _, r := range v.Reference[q] {
+		if d := math.Abs(r.Field - field); d <= 0.1+1e-9 && d < best-1e-9 {
+			best = d
+		}
+	}
+	for _, r := range v.Reference[q] {
+		if math.Abs(math.Abs(r.Field-field)-best) <= 1e-9 {
+			rows = append(rows, r)
+		}
+	}
+	if len(rows) == 0 {
+		return 0, 0, false, nil
+	}
+	sort.Slice(rows, func(i, j int) bool { return rows[i].Temperature < rows[j].Temperature })
+	lo, hi := rows[0].Temperature, rows[len(rows)-1].Temperature
+	if (temp < lo-1e-9 || temp > hi+1e-9) && !extrapolate {
+		return 0, 0, true, fmt.Errorf("%w: vial %s %s covers %g–%g °C, session %g °C", ErrOutOfRange, v.ID, q, lo, hi, temp)
+	}
+	if len(rows) == 1 {
+		return rows[0].Value, rows[0].Uncertainty, true, nil
+	}
+	// Bracketing pair (or the end pair when extrapolating).
+	k := sort.Search(len(rows), func(i int) bool { return rows[i].Temperature >= temp })
+	switch {
+	case k == 0:
+		k = 1
+	case k >= len(rows):
+		k = len(rows) - 1
+	}
+	a, b := rows[k-1], rows[k]
+	if b.Temperature == a.Temperature {
+		return a.Value, math.Max(a.Uncertainty, b.Uncertainty), true, nil
+	}
+	w := (temp - a.Temperature) / (b.Temperature - a.Temperature)
+	return a.Value + w*(b.Value-a.Value), math.Max(a.Uncertainty, b.Uncertainty), true, nil
+}

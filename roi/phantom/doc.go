@@ -1,0 +1,6 @@
+// Package phantom reads relaxometry phantom definitions (format
+// "tauvox-phantom/1", documented in docs/formats.md), holds the built-in
+// definition of the invented demo phantom, interpolates reference values
+// to a session's field and temperature, and paints synthetic series of a
+// phantom for tests and the demo.
+package phantom
