@@ -164,8 +164,10 @@ func t2BenchSeries() *volume.Image {
 func BenchmarkRunT2LogLinear(b *testing.B) {
 	benchmarkRun(b, &MonoExp{Estimator: LogLinear}, t2BenchSeries(), 2)
 }
-func BenchmarkRunT2NLLS(b *testing.B)       { benchmarkRun(b, &MonoExp{}, t2BenchSeries(), 2) }
-func BenchmarkRunT2NLLSOffset(b *testing.B) { benchmarkRun(b, &MonoExp{Offset: true}, t2BenchSeries(), 2) }
+func BenchmarkRunT2NLLS(b *testing.B) { benchmarkRun(b, &MonoExp{}, t2BenchSeries(), 2) }
+func BenchmarkRunT2NLLSOffset(b *testing.B) {
+	benchmarkRun(b, &MonoExp{Offset: true}, t2BenchSeries(), 2)
+}
 func BenchmarkRunT2NLLSRician(b *testing.B) { benchmarkRun(b, &MonoExp{Sigma: 10}, t2BenchSeries(), 2) }
 
 // BenchmarkRunT2Gonum measures the gonum cross-check path on a smaller
@@ -214,4 +216,14 @@ func BenchmarkFitT2LogLinear16(b *testing.B) {
 func BenchmarkFitT2NLLS16(b *testing.B) {
 	te := spacedTE(16, 10, 10)
 	benchmarkFitter(b, &MonoExp{}, echoes(te), t2Voxels(te, 1024))
+}
+
+// TestBackgroundSigma: air of a series with σ = 10 gives σ back within 3%
+// (Rayleigh mean σ·√(π/2), Henkelman 1985).
+func TestBackgroundSigma(t *testing.T) {
+	im := decaySeries(64, 64, 2, []float64{10, 20, 30}, 10, 4)
+	s, ok := BackgroundSigma(im, AutoThreshold(im))
+	if !ok || math.Abs(s-10) > 0.3 {
+		t.Errorf("σ = %g (%v), want 10", s, ok)
+	}
 }

@@ -79,6 +79,7 @@ func (dst *Result) fail(s Status) {
 	}
 	dst.R2 = nan
 	dst.RSS = nan
+	dst.Iter = 0
 	dst.Status = s
 }
 

@@ -1,0 +1,88 @@
+package mapset
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+)
+
+// ErrExists reports an output folder that exists when Force was not given.
+var ErrExists = errors.New("exists; use --force to replace it")
+
+// Stage is an output folder under construction.
+type Stage struct {
+	target string
+	tmp    string
+	force  bool
+	done   bool
+}
+
+// NewStage prepares to write the folder dir: it refuses an existing dir
+// unless force is set, and creates an empty temporary folder beside it.
+func NewStage(dir string, force bool) (*Stage, error) {
+	dir = filepath.Clean(dir)
+	if st, err := os.Stat(dir); err == nil {
+		if !force {
+			return nil, fmt.Errorf("%s: %w", dir, ErrExists)
+		}
+		if !st.IsDir() {
+			return nil, fmt.Errorf("%s: exists and is not a folder", dir)
+		}
+	}
+	parent := filepath.Dir(dir)
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return nil, err
+	}
+	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
+	if err != nil {
+		return nil, err
+	}
+	return &Stage{target: dir, tmp: tmp, force: force}, nil
+}
+
+// Path returns the path of name inside the temporary folder.
+func (s *Stage) Path(name string) string { return filepath.Join(s.tmp, name) }
+
+// Target returns the final folder.
+func (s *Stage) Target() string { return s.target }
+
+// Commit moves the finished folder into place, replacing an existing one
+// (Force) only after the new one is complete.
+func (s *Stage) Commit() error {
+	if s.done {
+		return errors.New("mapset: stage already finished")
+	}
+	s.done = true
+	if _, err := os.Stat(s.target); err == nil {
+		old, err := os.MkdirTemp(filepath.Dir(s.target), "."+filepath.Base(s.target)+".old-")
+		if err != nil {
+			os.RemoveAll(s.tmp)
+			return err
+		}
+		os.Remove(old)
+		if err := os.Rename(s.target, old); err != nil {
+			os.RemoveAll(s.tmp)
+			return err
+		}
+		if err := os.Rename(s.tmp, s.target); err != nil {
+			os.Rename(old, s.target)
+			os.RemoveAll(s.tmp)
+			return err
+		}
+		return os.RemoveAll(old)
+	}
+	if err := os.Rename(s.tmp, s.target); err != nil {
+		os.RemoveAll(s.tmp)
+		return err
+	}
+	return nil
+}
+
+// Abort removes the temporary folder. It is safe to call after Commit.
+func (s *Stage) Abort() {
+	if !s.done {
+		s.done = true
+		os.RemoveAll(s.tmp)
+	}
+}

@@ -1,0 +1,228 @@
+package series
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+
+	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/io/sidecar"
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// Overrides are acquisition parameters given by the user (ms, degrees).
+// A nil list keeps what the sidecar says; a list of one value applies to
+// every volume; otherwise a list needs one value per volume.
+type Overrides struct {
+	TE, TI, TR, FA []float64
+}
+
+// Input describes one file read to make a series.
+type Input struct {
+	Path string
+	Role string // "series", "sidecar"
+}
+
+// Load reads the series at path. For a NIfTI file the sidecar beside it
+// (same name, .json) is read when present; o then replaces any parameter
+// it lists. It returns the image and the files read.
+func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
+	st, err := os.Stat(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	if st.IsDir() {
+		return nil, nil, fmt.Errorf("%s: is a folder; reading DICOM folders is not available yet, give a NIfTI file", path)
+	}
+	im, err := nifti.Read(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	inputs := []Input{{Path: path, Role: "series"}}
+	im.Acq = make([]volume.Acquisition, im.Volumes())
+	for i := range im.Acq {
+		im.Acq[i] = volume.Unknown()
+	}
+	im.Source.Path = path
+	im.Source.Format = "nifti"
+	if im.Source.Description == "" {
+		im.Source.Description = filepath.Base(path)
+	}
+	im.Source.FieldStrength = math.NaN()
+	if sc, ok := sidecar.ForImage(path); ok {
+		s, err := sidecar.Read(sc)
+		if err != nil {
+			return nil, nil, err
+		}
+		acq, err := s.Acquisitions(im.Volumes())
+		if err != nil {
+			return nil, nil, err
+		}
+		im.Acq = acq
+		s.ApplySource(&im.Source)
+		inputs = append(inputs, Input{Path: sc, Role: "sidecar"})
+	}
+	if o != nil {
+		if err := apply(im, o, path); err != nil {
+			return nil, nil, err
+		}
+	}
+	return im, inputs, nil
+}
+
+func apply(im *volume.Image, o *Overrides, path string) error {
+	nt := im.Volumes()
+	set := func(flag string, vals []float64, put func(a *volume.Acquisition, v float64)) error {
+		if vals == nil {
+			return nil
+		}
+		if len(vals) != 1 && len(vals) != nt {
+			return fmt.Errorf("%s: --%s lists %d values but the image has %d volumes", path, flag, len(vals), nt)
+		}
+		for t := range im.Acq {
+			v := vals[0]
+			if len(vals) == nt {
+				v = vals[t]
+			}
+			put(&im.Acq[t], v)
+		}
+		return nil
+	}
+	return errors.Join(
+		set("te", o.TE, func(a *volume.Acquisition, v float64) { a.EchoTime = v }),
+		set("ti", o.TI, func(a *volume.Acquisition, v float64) { a.InversionTime = v }),
+		set("tr", o.TR, func(a *volume.Acquisition, v float64) { a.RepetitionTime = v }),
+		set("fa", o.FA, func(a *volume.Acquisition, v float64) { a.FlipAngle = v }),
+	)
+}
+
+// SkipEchoes returns a copy of im without the n volumes of shortest echo
+// time (for dropping the first echoes of a spin-echo train, whose
+// stimulated-echo content differs from the rest). n = 0 returns im.
+func SkipEchoes(im *volume.Image, n int) (*volume.Image, error) {
+	if n == 0 {
+		return im, nil
+	}
+	nt := im.Volumes()
+	if n < 0 || n >= nt {
+		return nil, fmt.Errorf("cannot skip %d of %d echoes", n, nt)
+	}
+	order := make([]int, nt)
+	for i := range order {
+		order[i] = i
+		if math.IsNaN(im.Acq[i].EchoTime) {
+			return nil, fmt.Errorf("cannot skip echoes: echo time of volume %d is unknown", i+1)
+		}
+	}
+	sort.SliceStable(order, func(a, b int) bool { return im.Acq[order[a]].EchoTime < im.Acq[order[b]].EchoTime })
+	drop := map[int]bool{}
+	for _, t := range order[:n] {
+		drop[t] = true
+	}
+	out := &volume.Image{Dims: im.Dims, Affine: im.Affine, Source: im.Source}
+	out.Dims[3] = nt - n
+	nv := im.Voxels()
+	out.Data = make([]float32, 0, nv*(nt-n))
+	for t := 0; t < nt; t++ {
+		if drop[t] {
+			continue
+		}
+		out.Data = append(out.Data, im.Volume(t)...)
+		out.Acq = append(out.Acq, im.Acq[t])
+	}
+	return out, nil
+}
+
+// SidecarName returns the sidecar path of a NIfTI path (x.nii.gz → x.json).
+func SidecarName(niftiPath string) string {
+	base := strings.TrimSuffix(strings.TrimSuffix(niftiPath, ".gz"), ".nii")
+	return base + ".json"
+}
+
+// Write writes im as a NIfTI series (float32) and a BIDS-style sidecar
+// giving the acquisition parameters in seconds (BIDS metadata: EchoTime,
+// InversionTime and RepetitionTime in s; FlipAngle in degrees). Parameters
+// that vary are written as lists, constant ones as numbers, unknown ones
+// not at all. extra holds further sidecar keys.
+func Write(path string, im *volume.Image, extra map[string]any) error {
+	side := map[string]any{}
+	for k, v := range extra {
+		side[k] = v
+	}
+	put := func(key string, get func(volume.Acquisition) float64, scale float64) {
+		vals := volume.Values(nil, im.Acq, get)
+		if len(vals) == 0 || math.IsNaN(vals[0]) {
+			return
+		}
+		same := true
+		for _, v := range vals {
+			if math.IsNaN(v) {
+				return
+			}
+			if v != vals[0] {
+				same = false
+			}
+		}
+		if same {
+			side[key] = vals[0] * scale
+			return
+		}
+		out := make([]float64, len(vals))
+		for i, v := range vals {
+			out[i] = v * scale
+		}
+		side[key] = out
+	}
+	put("EchoTime", func(a volume.Acquisition) float64 { return a.EchoTime }, 1e-3)
+	put("InversionTime", func(a volume.Acquisition) float64 { return a.InversionTime }, 1e-3)
+	put("RepetitionTime", func(a volume.Acquisition) float64 { return a.RepetitionTime }, 1e-3)
+	put("FlipAngle", func(a volume.Acquisition) float64 { return a.FlipAngle }, 1)
+	if f := im.Source.FieldStrength; f > 0 {
+		side["MagneticFieldStrength"] = f
+	}
+	if im.Source.Scanner != "" {
+		side["StationName"] = im.Source.Scanner
+	}
+	if im.Source.Description != "" {
+		side["SeriesDescription"] = im.Source.Description
+	}
+	if err := nifti.Write(path, im, &nifti.WriteOptions{Description: im.Source.Description}); err != nil {
+		return err
+	}
+	b, err := json.MarshalIndent(side, "", "  ")
+	if err != nil {
+		return err
+	}
+	return WriteFileAtomic(SidecarName(path), append(b, '\n'))
+}
+
+// WriteFileAtomic writes b to a temporary file beside path and renames it
+// into place, so readers never see a partial file.
+func WriteFileAtomic(path string, b []byte) error {
+	dir, base := filepath.Split(path)
+	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	if err != nil {
+		return err
+	}
+	tmp := f.Name()
+	_, err = f.Write(b)
+	if err == nil {
+		err = f.Sync()
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Rename(tmp, path)
+	}
+	if err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return nil
+}
