@@ -127,6 +127,7 @@ func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, e
 					break
 				}
 				hi := min(lo+chunk, nv)
+				wk.load(lo, hi)
 				for v := lo; v < hi; v++ {
 					wk.voxel(v, maps)
 				}
@@ -169,6 +170,11 @@ type worker struct {
 	subAcq  []volume.Acquisition
 	min     int
 	counts  [NumStatus]int
+	// slab holds the samples of the current chunk, volume by volume
+	// (slab[t*chunk + v−lo]): copied with sequential reads so the voxel
+	// loop does not stride across the whole series.
+	slab []float32
+	lo   int
 }
 
 func newWorker(m Model, im *volume.Image, opt *Options, thr float64) (*worker, error) {
@@ -183,16 +189,26 @@ func newWorker(m Model, im *volume.Image, opt *Options, thr float64) (*worker, e
 		y: make([]float64, nt), sub: make([]float64, nt),
 		subsets: make(map[uint64]Fitter),
 		min:     m.MinPoints(),
+		slab:    make([]float32, nt*chunk),
 	}, nil
 }
 
-// voxel fits voxel v and stores the outcome in maps.
+// load copies the samples of voxels lo…hi−1 into the slab.
+func (wk *worker) load(lo, hi int) {
+	wk.lo = lo
+	for t := 0; t < wk.nt; t++ {
+		copy(wk.slab[t*chunk:t*chunk+hi-lo], wk.im.Data[t*wk.nv+lo:t*wk.nv+hi])
+	}
+}
+
+// voxel fits voxel v (inside the loaded chunk) and stores the outcome in
+// maps.
 func (wk *worker) voxel(v int, maps *Maps) {
-	data := wk.im.Data
+	slab := wk.slab[v-wk.lo:]
 	var bad uint64
 	peak := math.Inf(-1)
 	for t := 0; t < wk.nt; t++ {
-		s := float64(data[t*wk.nv+v])
+		s := float64(slab[t*chunk])
 		wk.y[t] = s
 		if math.IsNaN(s) || math.IsInf(s, 0) {
 			bad |= 1 << uint(t)

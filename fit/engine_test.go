@@ -227,3 +227,63 @@ func TestBackgroundSigma(t *testing.T) {
 		t.Errorf("σ = %g (%v), want 10", s, ok)
 	}
 }
+
+// seriesOf makes a 64×64×32 series of sequence seq with T1 spread over
+// 200–2500 ms, T2 = 80 ms and Rician noise σ (of a fully relaxed 1000).
+func seriesOf(seq Sequence, acq []volume.Acquisition, sigma float64) *volume.Image {
+	im := volume.New(64, 64, 32, len(acq))
+	im.Acq = acq
+	rng := rand.New(rand.NewPCG(21, 22))
+	nv := im.Voxels()
+	for v := 0; v < nv; v++ {
+		x := Tissue{PD: 1, T1: 200 + 2300*float64(v%101)/100, T2: 80}
+		for t, a := range acq {
+			s := 1000 * Signal(seq, x, a.EchoTime, a.InversionTime, a.RepetitionTime, a.FlipAngle, 0)
+			im.Data[t*nv+v] = float32(Rician(rng, s, sigma))
+		}
+	}
+	return im
+}
+
+func irProtocol() []volume.Acquisition {
+	ti := []float64{50, 100, 200, 400, 800, 1600, 3200, 6000}
+	acq := make([]volume.Acquisition, len(ti))
+	for i := range acq {
+		acq[i] = volume.Unknown()
+		acq[i].InversionTime, acq[i].RepetitionTime = ti[i], 10000
+	}
+	return acq
+}
+
+func vfaProtocol() []volume.Acquisition {
+	fa := []float64{2, 5, 10, 15, 20, 30}
+	acq := make([]volume.Acquisition, len(fa))
+	for i := range acq {
+		acq[i] = volume.Unknown()
+		acq[i].FlipAngle, acq[i].RepetitionTime = fa[i], 15
+	}
+	return acq
+}
+
+var runIR, runVFA *volume.Image
+
+func BenchmarkRunT1IR8(b *testing.B) {
+	if runIR == nil {
+		runIR = seriesOf(SeqInversionRecovery, irProtocol(), 10)
+	}
+	benchmarkRun(b, &InversionRecovery{}, runIR, 2)
+}
+
+func BenchmarkRunT1VFALinear(b *testing.B) {
+	if runVFA == nil {
+		runVFA = seriesOf(SeqGradientEcho, vfaProtocol(), 1)
+	}
+	benchmarkRun(b, &VariableFlipAngle{}, runVFA, 2)
+}
+
+func BenchmarkRunT1VFANLLS(b *testing.B) {
+	if runVFA == nil {
+		runVFA = seriesOf(SeqGradientEcho, vfaProtocol(), 1)
+	}
+	benchmarkRun(b, &VariableFlipAngle{Estimator: NLLS}, runVFA, 2)
+}

@@ -83,19 +83,19 @@ func (dst *Result) fail(s Status) {
 	dst.Status = s
 }
 
-// rsquared returns 1 − rss/TSS of y, NaN when y is constant.
+// rsquared returns 1 − rss/TSS of y, NaN when y is constant. TSS comes
+// from one pass over the samples shifted by the first one (so the moments
+// do not cancel for a large mean).
 func rsquared(y []float64, rss float64) float64 {
-	var m float64
+	var s, s2 float64
+	y0 := y[0]
 	for _, v := range y {
-		m += v
+		d := v - y0
+		s += d
+		s2 += d * d
 	}
-	m /= float64(len(y))
-	var tss float64
-	for _, v := range y {
-		d := v - m
-		tss += d * d
-	}
-	if tss == 0 {
+	tss := s2 - s*s/float64(len(y))
+	if !(tss > 0) {
 		return math.NaN()
 	}
 	return 1 - rss/tss

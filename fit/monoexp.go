@@ -172,6 +172,9 @@ func (m *MonoExp) NewFitter(acq []volume.Acquisition) (Fitter, error) {
 		m: m, te: te, lo: lo, hi: hi, np: np,
 		curve: newMonoExpCurve(te, m.Offset, m.Sigma),
 	}
+	if meth == NLLS && !m.Offset && m.Sigma == 0 && m.Solver == Dedicated {
+		f.fast = &monoExp2{c: &f.curve, set: m.LM, rlo: 1 / (hi * 10), rhi: 1 / (lo / 10)}
+	}
 	if meth == NLLS {
 		f.lm = newLM(m.LM, len(te), np)
 		f.solver = f.lm
@@ -271,6 +274,7 @@ type monoExpFitter struct {
 	np     int
 	curve  monoExpCurve
 	lm     *lm
+	fast   *monoExp2 // two-parameter fast path, nil when not applicable
 	solver solver
 	p      [3]float64
 	plo    [3]float64
@@ -281,14 +285,15 @@ type monoExpFitter struct {
 // logLinear fits ln y = ln M0 − R·TE with weights y² (the variance of ln y
 // is about σ²/y², so the weights undo the noise amplification of the log;
 // common practice, e.g. Bevington & Robinson, Data Reduction and Error
-// Analysis, §6). Non-positive samples get weight 0. It returns M0, R (1/ms),
+// Analysis, §6). Samples that are not positive, finite and normal get
+// weight 0. It returns M0, R (1/ms),
 // the standard errors of R and M0, the number of samples used, and whether
 // the fit was possible. One pass; the weighted residual sum comes from the
 // accumulated moments.
 func logLinear(te, y []float64) (m0, r, seR, seM0 float64, used int, ok bool) {
 	var sw, sx, sy, sxx, sxy, syy float64
 	for i, v := range y {
-		if !(v > 0) {
+		if !logUsable(v) {
 			continue
 		}
 		w := v * v
@@ -352,6 +357,17 @@ func (f *monoExpFitter) Fit(dst *Result, y []float64, _ Covariates) {
 	if !ok || !(r > 0) || math.IsInf(m0, 0) {
 		// Fall back to a start from the first sample and the echo spacing.
 		m0, r = y[0], 1/(f.te[len(f.te)-1]+1)
+	}
+	if f.fast != nil {
+		rss, iters, conv := f.fast.solve(y, &m0, &r)
+		if !conv {
+			dst.fail(NotConverged)
+			dst.Iter = iters
+			return
+		}
+		seM0, seR := f.fast.se(rss, len(y))
+		f.write(dst, m0, r, 0, seM0, seR, 0, y, rss, iters)
+		return
 	}
 	f.p[0], f.p[1] = m0, r
 	f.plo[0], f.phi[0] = -math.MaxFloat64, math.MaxFloat64
