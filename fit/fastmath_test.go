@@ -43,3 +43,26 @@ func ulp(x float64) float64 {
 	}
 	return math.Nextafter(x, math.Inf(1)) - x
 }
+
+// TestExpNeg: expNeg agrees with math.Exp within 3 ulp on [−708, 0] and
+// gives 0 below (consistency with the library, common practice).
+func TestExpNeg(t *testing.T) {
+	rng := rand.New(rand.NewPCG(13, 14))
+	for i := 0; i < 200000; i++ {
+		x := -708 * rng.Float64() * rng.Float64()
+		got, want := expNeg(x), math.Exp(x)
+		if math.Abs(got-want) > 3*ulp(want) {
+			t.Fatalf("expNeg(%g) = %.17g, math.Exp %.17g", x, got, want)
+		}
+	}
+	for _, x := range []float64{0, -1e-300, -0.5, -1, math.Ln2 / -128, -700, -708} {
+		if got, want := expNeg(x), math.Exp(x); math.Abs(got-want) > 3*ulp(want) {
+			t.Errorf("expNeg(%g) = %.17g, want %.17g", x, got, want)
+		}
+	}
+	for _, x := range []float64{-709, -1e9, math.Inf(-1), math.NaN()} {
+		if got := expNeg(x); got != 0 {
+			t.Errorf("expNeg(%g) = %g, want 0", x, got)
+		}
+	}
+}

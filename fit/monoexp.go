@@ -225,9 +225,9 @@ func evenSpacing(te []float64) (float64, bool) {
 
 // decay writes exp(−r·TE_i) into c.ex.
 func (c *monoExpCurve) decay(r float64) {
-	if c.uniform {
-		e := math.Exp(-r * c.te[0])
-		q := math.Exp(-r * c.step)
+	if c.uniform && r >= 0 {
+		e := expNeg(-r * c.te[0])
+		q := expNeg(-r * c.step)
 		for i := range c.ex {
 			c.ex[i] = e
 			e *= q
