@@ -179,20 +179,9 @@ func BenchmarkRunT2Gonum(b *testing.B) {
 
 // benchmarkFitter fits pre-generated voxels one after another on one core.
 func benchmarkFitter(b *testing.B, m Model, acq []volume.Acquisition, voxels [][]float64) {
-	f, err := m.NewFitter(acq)
-	if err != nil {
-		b.Fatal(err)
-	}
-	res := NewResult(m)
-	b.ReportAllocs()
-	b.ResetTimer()
-	for i := 0; i < b.N; i++ {
-		f.Fit(res, voxels[i%len(voxels)], Covariates{})
-	}
-	sinkResult = res.Values[0]
+	benchT1(b, m, acq, voxels, nil)
 }
 
-var sinkResult float64
 
 func t2Voxels(te []float64, n int) [][]float64 {
 	rng := rand.New(rand.NewPCG(5, 6))

@@ -43,10 +43,8 @@ type lm struct {
 	jtr, step [maxParams]float64
 }
 
-func newLM(set LM, n, p int) *lm {
-	if p > maxParams {
-		panic("fit: too many parameters for the dense solver")
-	}
+// withDefaults returns the settings with every zero field at its default.
+func (set LM) withDefaults() LM {
 	if set.MaxIter == 0 {
 		set.MaxIter = 100
 	}
@@ -56,6 +54,14 @@ func newLM(set LM, n, p int) *lm {
 	if set.FTol == 0 {
 		set.FTol = 1e-12
 	}
+	return set
+}
+
+func newLM(set LM, n, p int) *lm {
+	if p > maxParams {
+		panic("fit: too many parameters for the dense solver")
+	}
+	set = set.withDefaults()
 	return &lm{
 		set: set, n: n, p: p,
 		f: make([]float64, n), ft: make([]float64, n),

@@ -41,16 +41,7 @@ func (s *monoExp2) pass(y []float64, m0, r float64) (rss, a11, a12, a22, g1, g2 
 // solve refines (m0, r) in place and returns the cost, the iteration
 // count and whether it converged.
 func (s *monoExp2) solve(y []float64, m0, r *float64) (float64, int, bool) {
-	set := s.set
-	if set.MaxIter == 0 {
-		set.MaxIter = 100
-	}
-	if set.XTol == 0 {
-		set.XTol = 1e-9
-	}
-	if set.FTol == 0 {
-		set.FTol = 1e-12
-	}
+	set := s.set.withDefaults()
 	xtol2 := set.XTol * set.XTol
 	p0, p1 := *m0, *r
 	rss, a11, a12, a22, g1, g2 := s.pass(y, p0, p1)

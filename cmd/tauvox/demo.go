@@ -29,8 +29,10 @@ func runDemo(ctx context.Context, args []string, e *env) error {
 	defer st.Abort()
 	sim := simArgs{field: 1.5, temp: 21.5, sigma: 10, rotation: 17, b1: 1, ineff: 1, seed: 2026, matrix: 96, slices: 3,
 		center: vecFlag{[3]float64{12, -8, 0}}}
-	type job struct{ kind, model, q string }
-	jobs := []job{{"t2", "t2", "T2"}, {"t1-ir", "t1-ir", "T1"}}
+	// T2 with the noise-floor model (σ estimated from the air), T1 by
+	// RD-NLS with polarity restoration.
+	type job struct{ kind, model, q, noise string }
+	jobs := []job{{"t2", "t2", "T2", "rician"}, {"t1-ir", "t1-ir", "T1", "gaussian"}}
 	results := map[string][]roi.Stats{}
 	sc := sim.scene()
 	quiet := &env{stdout: io.Discard, stderr: e.stderr, terminal: e.terminal}
@@ -41,7 +43,7 @@ func runDemo(ctx context.Context, args []string, e *env) error {
 		}
 		series := st.Path(j.kind + ".nii.gz")
 		mapsDir := st.Path("fit-" + j.kind)
-		a := &fitArgs{series: series, out: mapsDir, model: j.model, noise: "gaussian"}
+		a := &fitArgs{series: series, out: mapsDir, model: j.model, noise: j.noise}
 		if err := fitSeries(ctx, a, quiet); err != nil {
 			return err
 		}

@@ -241,7 +241,6 @@ func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: version(), Settings: settings,
 		Inputs: inputs, Source: im.Source, Acq: im.Acq,
 		Timings: map[string]float64{"load": tLoad.Seconds(), "fit": tFit.Seconds()}}
-	info.Timings["write"] = 0 // filled below; provenance is written last
 	if _, err := mapset.Write(st, maps, im, info); err != nil {
 		return err
 	}
