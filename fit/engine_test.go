@@ -182,7 +182,6 @@ func benchmarkFitter(b *testing.B, m Model, acq []volume.Acquisition, voxels [][
 	benchT1(b, m, acq, voxels, nil)
 }
 
-
 func t2Voxels(te []float64, n int) [][]float64 {
 	rng := rand.New(rand.NewPCG(5, 6))
 	out := make([][]float64, n)

@@ -63,7 +63,7 @@ func expNeg(x float64) float64 {
 	}
 	const (
 		inv = 64 / math.Ln2
-		hi  = 0.01083042469326756     // ln2/64 cut to 31 mantissa bits, so k·hi is exact
+		hi  = 0.01083042469326756    // ln2/64 cut to 31 mantissa bits, so k·hi is exact
 		lo  = 2.9815858269852933e-12 // ln2/64 − hi (50-digit ln 2)
 	)
 	k := int64(x*inv - 0.5) // rounds to nearest for x ≤ 0
