@@ -1,0 +1,661 @@
+package phantom
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// Placement is where a phantom lies in an image: its centre in scanner
+// coordinates (RAS mm), its rotation in the slice plane, whether it lies
+// face down (mirror image), and the slice it was found on.
+//
+// The phantom's own frame (x_mm, y_mm of the definition) maps to the scanner
+// as
+//
+//	p = Center + R(Rotation)·(±x, y) in the plane basis (U, V),
+//
+// with x negated when Mirrored. U is the in-plane direction closest to the
+// scanner's +x (right-to-left becomes … RAS +x), V = N × U, N the slice
+// normal pointing to +z (superior) for axial slices; so for an axial slice
+// the frame is RAS x and y, and Rotation turns counter-clockwise from +x
+// towards +y, as in Scene.
+type Placement struct {
+	Center     [3]float64
+	Rotation   float64 // degrees
+	Mirrored   bool
+	Slice      int
+	U, V, N    [3]float64
+	Confidence float64 // 0…1
+	Residual   float64 // RMS mm between vial centres found and placed
+	Method     string  // "found", "given", "mixed"
+}
+
+// Point maps a point of the phantom's plane (mm from its centre) to the
+// scanner.
+func (p *Placement) Point(x, y float64) [3]float64 {
+	if p.Mirrored {
+		x = -x
+	}
+	th := p.Rotation * math.Pi / 180
+	a := x*math.Cos(th) - y*math.Sin(th)
+	b := x*math.Sin(th) + y*math.Cos(th)
+	var q [3]float64
+	for d := 0; d < 3; d++ {
+		q[d] = p.Center[d] + a*p.U[d] + b*p.V[d]
+	}
+	return q
+}
+
+// LocateOptions steers Locate; the zero value searches everything.
+type LocateOptions struct {
+	Center   *[3]float64 // given centre (scanner mm): not searched
+	Rotation *float64    // given rotation (degrees): not searched
+	Mirrored *bool       // given orientation
+	Slice    *int        // given slice index
+	// Map, when not nil, is a quantitative map on the same grid (T1 or T2,
+	// ms) with the reference of each vial in Expected (by vial id): among
+	// geometric candidates of nearly equal contrast (a symmetric vial
+	// layout), the one whose vial values best match the references wins.
+	Map      *volume.Image
+	Expected map[string]float64
+}
+
+// ErrNoPhantom reports an image in which no phantom could be found.
+var ErrNoPhantom = errors.New("no phantom found")
+
+// Locate finds the phantom of def in the first volume of im (an M0 or
+// first-echo image is best: vials and fill differ in signal).
+//
+// Method (tauvox's own; documented in docs/methods.md):
+//
+//  1. Slice: the slice with the largest object area (Otsu threshold of
+//     the volume), the middle one among those within 5 % of the largest.
+//  2. Start: the centroid of the object in that slice.
+//  3. Score of a placement: for each vial, the mean image value inside
+//     the vial's circle minus the mean in a 4 mm annulus outside it, in
+//     absolute value, summed over vials (bilinear samples). It is largest
+//     when every circle sits on its vial, edges included.
+//  4. Search: rotation on a 2° grid for both faces, at the start centre and
+//     a few shifted ones; the best candidates are refined by a shrinking
+//     pattern search over (centre, rotation) to 0.01 mm and 0.01°.
+//  5. Identity: candidates within 10 % of the best score are ranked by
+//     how well the map matches the references when a Map is given.
+//  6. Report: each vial's own best shift (a local search) gives the
+//     residual; the confidence combines the score margin over the next
+//     distinct candidate and the residual.
+func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, error) {
+	if opt == nil {
+		opt = &LocateOptions{}
+	}
+	sl, err := newSlicer(im)
+	if err != nil {
+		return nil, err
+	}
+	k := 0
+	if opt.Slice != nil {
+		k = *opt.Slice
+		if k < 0 || k >= im.Dims[2] {
+			return nil, fmt.Errorf("slice %d outside the image (0…%d)", k, im.Dims[2]-1)
+		}
+	} else if k, err = sl.bestSlice(); err != nil {
+		return nil, err
+	}
+	sl.setSlice(k)
+	pl := &Placement{Slice: k, U: sl.u, V: sl.v, N: sl.n, Method: "found"}
+	start, ok := sl.centroid()
+	if !ok {
+		return nil, ErrNoPhantom
+	}
+	if opt.Center != nil {
+		start = sl.project(*opt.Center)
+	}
+	given := 0
+	for _, g := range []bool{opt.Center != nil, opt.Rotation != nil, opt.Mirrored != nil} {
+		if g {
+			given++
+		}
+	}
+	switch given {
+	case 3:
+		pl.Method = "given"
+	case 0:
+	default:
+		pl.Method = "mixed"
+	}
+	sc := &scorer{sl: sl, def: def}
+	type cand struct {
+		c      [3]float64
+		th     float64
+		mirror bool
+		score  float64
+	}
+	var cands []cand
+	mirrors := []bool{false, true}
+	if opt.Mirrored != nil {
+		mirrors = []bool{*opt.Mirrored}
+	}
+	angles := make([]float64, 0, 180)
+	if opt.Rotation != nil {
+		angles = append(angles, *opt.Rotation)
+	} else {
+		for a := 0.0; a < 360; a += 2 {
+			angles = append(angles, a)
+		}
+	}
+	// Start centres: the centroid, and shifts of a quarter of the smallest
+	// vial radius… up to 6 mm around it (the centroid of an asymmetric
+	// layout is off the body centre by a few mm).
+	starts := [][3]float64{start}
+	if opt.Center == nil {
+		for _, d := range [][2]float64{{-6, 0}, {6, 0}, {0, -6}, {0, 6}} {
+			var c [3]float64
+			for x := 0; x < 3; x++ {
+				c[x] = start[x] + d[0]*sl.u[x] + d[1]*sl.v[x]
+			}
+			starts = append(starts, c)
+		}
+	}
+	sc.coarse = true
+	for _, m := range mirrors {
+		for _, c := range starts {
+			for _, a := range angles {
+				cands = append(cands, cand{c, a, m, sc.score(c, a, m)})
+			}
+		}
+	}
+	sc.coarse = false
+	sort.Slice(cands, func(i, j int) bool { return cands[i].score > cands[j].score })
+	// Refine the best few distinct candidates.
+	var refined []cand
+	for _, c := range cands {
+		if len(refined) >= 8 {
+			break
+		}
+		dup := false
+		for _, r := range refined {
+			if r.mirror == c.mirror && angleDiff(r.th, c.th) < 10 && dist(r.c, c.c) < 8 {
+				dup = true
+				break
+			}
+		}
+		if dup {
+			continue
+		}
+		cc, th := sc.refine(c.c, c.th, c.mirror, opt.Center == nil, opt.Rotation == nil)
+		refined = append(refined, cand{cc, th, c.mirror, sc.score(cc, th, c.mirror)})
+	}
+	// Merge refinements that converged to the same placement.
+	sort.Slice(refined, func(i, j int) bool { return refined[i].score > refined[j].score })
+	var uniq []cand
+	for _, r := range refined {
+		dup := false
+		for _, u := range uniq {
+			if u.mirror == r.mirror && angleDiff(u.th, r.th) < 3 && dist(u.c, r.c) < 2 {
+				dup = true
+			}
+		}
+		if !dup {
+			uniq = append(uniq, r)
+		}
+	}
+	best := uniq[0]
+	if !(best.score > 0) {
+		return nil, ErrNoPhantom
+	}
+	chosen := 0
+	if opt.Map != nil && len(opt.Expected) > 0 {
+		bestMis := math.Inf(1)
+		for i, u := range uniq {
+			if u.score < 0.9*best.score {
+				continue
+			}
+			if mis := sc.mismatch(opt.Map, opt.Expected, u.c, u.th, u.mirror); mis < bestMis {
+				bestMis, chosen = mis, i
+			}
+		}
+	}
+	win := uniq[chosen]
+	pl.Center, pl.Rotation, pl.Mirrored = win.c, math.Mod(win.th+360, 360), win.mirror
+	// Confidence: margin over the next distinct candidate, and residual.
+	margin := 1.0
+	for i, u := range uniq {
+		if i != chosen {
+			margin = math.Min(margin, 1-u.score/win.score)
+			break
+		}
+	}
+	pl.Residual = sc.residual(pl)
+	// 1 when the placement beats every other distinct one by at least 5 %
+	// of its score and each vial's own best position agrees with it; lower
+	// as a second placement scores nearly as well (an ambiguous layout) or
+	// the vials disagree (e^(−residual / 2 mm)).
+	pl.Confidence = clamp01(margin/0.05) * math.Exp(-pl.Residual/2)
+	if len(uniq) == 1 {
+		pl.Confidence = math.Exp(-pl.Residual / 2)
+	}
+	return pl, nil
+}
+
+func clamp01(x float64) float64 { return math.Max(0, math.Min(1, x)) }
+
+func angleDiff(a, b float64) float64 {
+	d := math.Mod(math.Abs(a-b), 360)
+	return math.Min(d, 360-d)
+}
+
+func dist(a, b [3]float64) float64 {
+	return math.Sqrt((a[0]-b[0])*(a[0]-b[0]) + (a[1]-b[1])*(a[1]-b[1]) + (a[2]-b[2])*(a[2]-b[2]))
+}
+
+// slicer samples one slice of an image in scanner coordinates.
+type slicer struct {
+	im      *volume.Image
+	inv     volume.Affine
+	u, v, n [3]float64
+	k       int
+	thr     float64
+}
+
+func newSlicer(im *volume.Image) (*slicer, error) {
+	inv, ok := im.Affine.Inverse()
+	if !ok {
+		return nil, errors.New("image affine is singular")
+	}
+	s := &slicer{im: im, inv: inv}
+	a := im.Affine
+	col := func(c int) [3]float64 { return [3]float64{a[0][c], a[1][c], a[2][c]} }
+	n := cross(col(0), col(1))
+	n = unit(n)
+	if n[2] < 0 || (n[2] == 0 && (n[1] < 0 || (n[1] == 0 && n[0] < 0))) {
+		n = [3]float64{-n[0], -n[1], -n[2]}
+	}
+	// U: +x projected into the plane (or +y when the plane is sagittal).
+	x := [3]float64{1, 0, 0}
+	if math.Abs(n[0]) > 0.9 {
+		x = [3]float64{0, 1, 0}
+	}
+	d := dot(x, n)
+	u := unit([3]float64{x[0] - d*n[0], x[1] - d*n[1], x[2] - d*n[2]})
+	s.u, s.n = u, n
+	s.v = cross(n, u)
+	s.thr = otsuVolume(im)
+	if !(s.thr > 0) {
+		return nil, ErrNoPhantom
+	}
+	return s, nil
+}
+
+func cross(a, b [3]float64) [3]float64 {
+	return [3]float64{a[1]*b[2] - a[2]*b[1], a[2]*b[0] - a[0]*b[2], a[0]*b[1] - a[1]*b[0]}
+}
+func dot(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
+func unit(a [3]float64) [3]float64 {
+	l := math.Sqrt(dot(a, a))
+	return [3]float64{a[0] / l, a[1] / l, a[2] / l}
+}
+
+// otsuVolume returns Otsu's threshold of the finite positive values of
+// the first volume (Otsu 1979).
+func otsuVolume(im *volume.Image) float64 {
+	vals := im.Volume(0)
+	top := 0.0
+	for _, v := range vals {
+		if f := float64(v); f > top && !math.IsInf(f, 0) {
+			top = f
+		}
+	}
+	if !(top > 0) {
+		return 0
+	}
+	const bins = 256
+	var h [bins]float64
+	var n float64
+	for _, v := range vals {
+		f := float64(v)
+		if !(f > 0) || math.IsInf(f, 0) {
+			f = 0
+		}
+		h[min(int(f/top*(bins-1)), bins-1)]++
+		n++
+	}
+	var all float64
+	for i, c := range h {
+		all += float64(i) * c
+	}
+	var wb, sb, best float64
+	lo, hi := 0, 0
+	for i := 0; i < bins; i++ {
+		wb += h[i]
+		if wb == 0 {
+			continue
+		}
+		wf := n - wb
+		if wf == 0 {
+			break
+		}
+		sb += float64(i) * h[i]
+		d := sb/wb - (all-sb)/wf
+		b := wb * wf * d * d
+		switch {
+		case b > best*(1+1e-12):
+			best, lo, hi = b, i, i
+		case b >= best*(1-1e-12):
+			hi = i
+		}
+	}
+	return (float64(lo+hi)/2 + 1) / (bins - 1) * top
+}
+
+// bestSlice picks the slice with the largest object area.
+func (s *slicer) bestSlice() (int, error) {
+	nx, ny, nz := s.im.Dims[0], s.im.Dims[1], s.im.Dims[2]
+	area := make([]int, nz)
+	top := 0
+	for k := 0; k < nz; k++ {
+		for j := 0; j < ny; j++ {
+			for i := 0; i < nx; i++ {
+				if float64(s.im.Data[i+nx*(j+ny*k)]) >= s.thr {
+					area[k]++
+				}
+			}
+		}
+		top = max(top, area[k])
+	}
+	if top == 0 {
+		return 0, ErrNoPhantom
+	}
+	var ks []int
+	for k, a := range area {
+		if float64(a) >= 0.95*float64(top) {
+			ks = append(ks, k)
+		}
+	}
+	return ks[len(ks)/2], nil
+}
+
+// Slices returns the slices whose object area is at least frac of the
+// largest (the interior of a cylindrical phantom).
+func Slices(im *volume.Image, frac float64) []int {
+	s, err := newSlicer(im)
+	if err != nil {
+		return nil
+	}
+	nx, ny, nz := im.Dims[0], im.Dims[1], im.Dims[2]
+	area := make([]int, nz)
+	top := 0
+	for k := 0; k < nz; k++ {
+		for j := 0; j < ny; j++ {
+			for i := 0; i < nx; i++ {
+				if float64(im.Data[i+nx*(j+ny*k)]) >= s.thr {
+					area[k]++
+				}
+			}
+		}
+		top = max(top, area[k])
+	}
+	var ks []int
+	for k, a := range area {
+		if top > 0 && float64(a) >= frac*float64(top) {
+			ks = append(ks, k)
+		}
+	}
+	return ks
+}
+
+func (s *slicer) setSlice(k int) { s.k = k }
+
+// centroid returns the centroid of the object in the current slice.
+func (s *slicer) centroid() ([3]float64, bool) {
+	nx, ny := s.im.Dims[0], s.im.Dims[1]
+	var si, sj, n float64
+	for j := 0; j < ny; j++ {
+		for i := 0; i < nx; i++ {
+			if float64(s.im.Data[i+nx*(j+ny*s.k)]) >= s.thr {
+				si += float64(i)
+				sj += float64(j)
+				n++
+			}
+		}
+	}
+	if n == 0 {
+		return [3]float64{}, false
+	}
+	x, y, z := s.im.Affine.Apply(si/n, sj/n, float64(s.k))
+	return [3]float64{x, y, z}, true
+}
+
+// project moves a scanner point onto the current slice plane.
+func (s *slicer) project(p [3]float64) [3]float64 {
+	i, j, _ := s.inv.Apply(p[0], p[1], p[2])
+	x, y, z := s.im.Affine.Apply(i, j, float64(s.k))
+	return [3]float64{x, y, z}
+}
+
+// sample returns the bilinear interpolation of the current slice at the
+// scanner point p (projected on the slice), and false outside the image or
+// on a non-finite value.
+func (s *slicer) sample(p [3]float64) (float64, bool) {
+	fi, fj, _ := s.inv.Apply(p[0], p[1], p[2])
+	nx, ny := s.im.Dims[0], s.im.Dims[1]
+	if !(fi >= 0 && fj >= 0 && fi <= float64(nx-1) && fj <= float64(ny-1)) {
+		return 0, false
+	}
+	i0, j0 := int(fi), int(fj)
+	i1, j1 := min(i0+1, nx-1), min(j0+1, ny-1)
+	a, b := fi-float64(i0), fj-float64(j0)
+	off := nx * ny * s.k
+	d := s.im.Data
+	v := (1-a)*(1-b)*float64(d[off+i0+nx*j0]) + a*(1-b)*float64(d[off+i1+nx*j0]) +
+		(1-a)*b*float64(d[off+i0+nx*j1]) + a*b*float64(d[off+i1+nx*j1])
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, false
+	}
+	return v, true
+}
+
+// scorer evaluates placements of a definition on a slice.
+type scorer struct {
+	sl     *slicer
+	def    *Definition
+	coarse bool
+	pts    map[[2]float64][2][][2]float64 // (radius, div) → in, out
+}
+
+func (sc *scorer) offsets(r float64) (in, out [][2]float64) {
+	div := 6.0
+	if sc.coarse {
+		div = 3
+	}
+	if sc.pts == nil {
+		sc.pts = map[[2]float64][2][][2]float64{}
+	}
+	key := [2]float64{r, div}
+	o, ok := sc.pts[key]
+	if !ok {
+		in, out := offsets(r, div)
+		o = [2][][2]float64{in, out}
+		sc.pts[key] = o
+	}
+	return o[0], o[1]
+}
+
+// offsets returns the circle and annulus sample points (phantom-plane mm,
+// relative to the vial centre) for radius r, about div points across a
+// radius.
+func offsets(r float64, div float64) (in, out [][2]float64) {
+	step := math.Max(r/div, 0.5)
+	for x := -r; x <= r; x += step {
+		for y := -r; y <= r; y += step {
+			if x*x+y*y <= r*r {
+				in = append(in, [2]float64{x, y})
+			}
+		}
+	}
+	for _, rr := range []float64{r + 1.5, r + 3} {
+		n := int(2 * math.Pi * rr / step)
+		for t := 0; t < n; t++ {
+			a := 2 * math.Pi * float64(t) / float64(n)
+			out = append(out, [2]float64{rr * math.Cos(a), rr * math.Sin(a)})
+		}
+	}
+	return in, out
+}
+
+func (sc *scorer) place(c [3]float64, th float64, mirror bool) *Placement {
+	return &Placement{Center: c, Rotation: th, Mirrored: mirror, U: sc.sl.u, V: sc.sl.v, N: sc.sl.n}
+}
+
+// vialContrast returns |mean inside − mean outside| of vial v for a
+// placement, with an extra shift (dx, dy) in the phantom plane.
+func (sc *scorer) vialContrast(p *Placement, v *Vial, dx, dy float64) (float64, bool) {
+	in, out := sc.offsets(v.Radius)
+	mean := func(pts [][2]float64) (float64, bool) {
+		var s float64
+		n := 0
+		for _, o := range pts {
+			q := p.Point(v.X+dx+o[0], v.Y+dy+o[1])
+			if val, ok := sc.sl.sample(q); ok {
+				s += val
+				n++
+			}
+		}
+		if n < len(pts)/2 {
+			return 0, false
+		}
+		return s / float64(n), true
+	}
+	mi, ok1 := mean(in)
+	mo, ok2 := mean(out)
+	if !ok1 || !ok2 {
+		return 0, false
+	}
+	return math.Abs(mi - mo), true
+}
+
+func (sc *scorer) score(c [3]float64, th float64, mirror bool) float64 {
+	p := sc.place(c, th, mirror)
+	var s float64
+	for i := range sc.def.Vials {
+		if v, ok := sc.vialContrast(p, &sc.def.Vials[i], 0, 0); ok {
+			s += v
+		}
+	}
+	return s
+}
+
+// refine runs a shrinking pattern search on the score.
+func (sc *scorer) refine(c [3]float64, th float64, mirror, moveC, moveTh bool) ([3]float64, float64) {
+	best := sc.score(c, th, mirror)
+	step, astep := 2.0, 2.0
+	for step > 0.01 || astep > 0.01 {
+		improved := false
+		try := func(c2 [3]float64, th2 float64) {
+			if s := sc.score(c2, th2, mirror); s > best {
+				best, c, th, improved = s, c2, th2, true
+			}
+		}
+		if moveC {
+			for _, d := range [][2]float64{{1, 0}, {-1, 0}, {0, 1}, {0, -1}} {
+				var c2 [3]float64
+				for x := 0; x < 3; x++ {
+					c2[x] = c[x] + step*(d[0]*sc.sl.u[x]+d[1]*sc.sl.v[x])
+				}
+				try(c2, th)
+			}
+		}
+		if moveTh {
+			try(c, th+astep)
+			try(c, th-astep)
+		}
+		if !improved {
+			step /= 2
+			astep /= 2
+			if !moveC {
+				step = 0
+			}
+			if !moveTh {
+				astep = 0
+			}
+		}
+	}
+	return c, th
+}
+
+// residual returns the RMS of each vial's own best shift from the placement
+// (a local pattern search per vial), over vials with contrast.
+func (sc *scorer) residual(p *Placement) float64 {
+	var ss float64
+	n := 0
+	for i := range sc.def.Vials {
+		v := &sc.def.Vials[i]
+		best, ok := sc.vialContrast(p, v, 0, 0)
+		if !ok || best == 0 {
+			continue
+		}
+		dx, dy, step := 0.0, 0.0, 1.0
+		for step > 0.02 {
+			moved := false
+			for _, d := range [][2]float64{{1, 0}, {-1, 0}, {0, 1}, {0, -1}} {
+				if s, ok := sc.vialContrast(p, v, dx+step*d[0], dy+step*d[1]); ok && s > best {
+					best, dx, dy, moved = s, dx+step*d[0], dy+step*d[1], true
+				}
+			}
+			if !moved {
+				step /= 2
+			}
+			if math.Hypot(dx, dy) > v.Radius {
+				break
+			}
+		}
+		ss += dx*dx + dy*dy
+		n++
+	}
+	if n == 0 {
+		return math.NaN()
+	}
+	return math.Sqrt(ss / float64(n))
+}
+
+// mismatch is the mean |log(median in vial / expected)| over vials with an
+// expected value, for a placement.
+func (sc *scorer) mismatch(m *volume.Image, expected map[string]float64, c [3]float64, th float64, mirror bool) float64 {
+	p := sc.place(c, th, mirror)
+	ms, err := newSlicer(m)
+	if err != nil {
+		ms = &slicer{im: m}
+		ms.inv, _ = m.Affine.Inverse()
+	}
+	ms.k = sc.sl.k
+	var s float64
+	n := 0
+	for i := range sc.def.Vials {
+		v := &sc.def.Vials[i]
+		e, ok := expected[v.ID]
+		if !ok || !(e > 0) {
+			continue
+		}
+		in, _ := offsets(v.Radius*0.6, 6)
+		var vals []float64
+		for _, o := range in {
+			if val, ok := ms.sample(p.Point(v.X+o[0], v.Y+o[1])); ok && val > 0 {
+				vals = append(vals, val)
+			}
+		}
+		if len(vals) == 0 {
+			s += 5
+			n++
+			continue
+		}
+		sort.Float64s(vals)
+		s += math.Abs(math.Log(vals[len(vals)/2] / e))
+		n++
+	}
+	if n == 0 {
+		return math.Inf(1)
+	}
+	return s / float64(n)
+}
