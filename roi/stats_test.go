@@ -1,7 +1,9 @@
 package roi
 
 import (
+	"encoding/json"
 	"math"
+	"os"
 	"testing"
 
 	"github.com/tauvox/tauvox/io/volume"
@@ -38,5 +40,65 @@ func TestSphere(t *testing.T) {
 	// centre, 3 faces, 3 edges... plus none beyond) = 1+3+3 = 7.
 	if n := len(Sphere(im, [3]float64{0, 0, 0}, 3)); n != 7 {
 		t.Errorf("corner sphere holds %d voxels, want 7", n)
+	}
+}
+
+// TestSummariseAgreesWithNumpy: statistics of the same values as numpy
+// 1.24 (testdata/gen/roi_stats_refs.py): mean, std(ddof=1), median,
+// percentile(25, 75) with linear interpolation, min, max.
+func TestSummariseAgreesWithNumpy(t *testing.T) {
+	raw, err := os.ReadFile("../testdata/reference/roi_stats.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ref struct {
+		Cases []struct {
+			Values                         []*float64
+			N                              int
+			Mean, Median, Q1, Q3, Min, Max float64
+			SD, CoV                        *float64
+		}
+	}
+	if err := json.Unmarshal(raw, &ref); err != nil || len(ref.Cases) == 0 {
+		t.Fatalf("reference: %v", err)
+	}
+	for ci, c := range ref.Cases {
+		vals := make([]float32, len(c.Values))
+		idx := make([]int, len(c.Values))
+		for i, v := range c.Values {
+			idx[i] = i
+			if v == nil {
+				vals[i] = float32(math.NaN())
+			} else {
+				vals[i] = float32(*v)
+			}
+		}
+		s, _ := Summarise(vals, nil, idx, nil)
+		// Values pass through float32 (maps are float32): tolerance 1e-6
+		// relative.
+		eq := func(name string, got, want float64) {
+			if math.Abs(got-want) > 1e-6*math.Abs(want)+1e-9 {
+				t.Errorf("case %d %s = %.9g, numpy %.9g", ci, name, got, want)
+			}
+		}
+		if s.N != c.N {
+			t.Errorf("case %d n = %d, numpy %d", ci, s.N, c.N)
+		}
+		eq("mean", s.Mean, c.Mean)
+		eq("median", s.Median, c.Median)
+		eq("q1", s.Q1, c.Q1)
+		eq("q3", s.Q3, c.Q3)
+		eq("min", s.Min, c.Min)
+		eq("max", s.Max, c.Max)
+		if c.SD != nil {
+			if math.Abs(s.SD-*c.SD) > 1e-4**c.SD {
+				t.Errorf("case %d sd = %g, numpy %g", ci, s.SD, *c.SD)
+			}
+			if math.Abs(s.CoV-*c.CoV) > 1e-4**c.CoV {
+				t.Errorf("case %d cov = %g, numpy %g", ci, s.CoV, *c.CoV)
+			}
+		} else if !math.IsNaN(s.SD) {
+			t.Errorf("case %d: SD of one value %g, want NaN", ci, s.SD)
+		}
 	}
 }
