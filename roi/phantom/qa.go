@@ -50,7 +50,7 @@ type SeriesRef struct {
 	Model        string       `json:"model,omitempty"`
 	Method       string       `json:"method,omitempty"`
 	Protocol     []Protocol   `json:"protocol,omitempty"`
-	Inputs       []Input      `json:"inputs,omitempty"`
+	Inputs       []FileRef    `json:"inputs,omitempty"`
 	Localisation Localisation `json:"localisation"`
 }
 
@@ -63,8 +63,8 @@ type Protocol struct {
 	FA *float64 `json:"flip_deg"`
 }
 
-// Input is a file that went into a map, with its checksum.
-type Input struct {
+// FileRef is a file that went into a map, with its checksum.
+type FileRef struct {
 	Path   string `json:"path"`
 	Role   string `json:"role,omitempty"`
 	SHA256 string `json:"sha256,omitempty"`
