@@ -23,6 +23,7 @@ import (
 	"os/signal"
 	"runtime/debug"
 	"strings"
+	"sync"
 	"syscall"
 )
 
@@ -52,6 +53,7 @@ func commands() []command {
 	return []command{
 		{"fit", "fit a model to a series and write maps", runFit},
 		{"simulate", "write a synthetic series of the demo phantom with known truth", runSimulate},
+		{"phantom", "measure phantom vials against their reference and give a QA verdict", runPhantom},
 		{"demo", "run simulate and fit on built-in data and print per-vial results", runDemo},
 		{"version", "print the version", runVersion},
 		{"help", "show help for a command", nil},
@@ -156,11 +158,22 @@ func runVersion(_ context.Context, args []string, e *env) error {
 	return nil
 }
 
-// newFlags makes a FlagSet whose usage text goes to stdout on --help.
+// helpText holds the --help printer of each FlagSet made by newFlags until
+// it is parsed.
+var (
+	helpMu   sync.Mutex
+	helpText = map[*flag.FlagSet]func(){}
+)
+
+// newFlags makes a FlagSet whose usage text goes to stdout on --help only
+// (a parse error is one line on stderr, without the usage).
 func newFlags(name, args, summary string, e *env) *flag.FlagSet {
 	fs := flag.NewFlagSet(name, flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
-	fs.Usage = func() {
+	fs.Usage = func() {}
+	helpMu.Lock()
+	defer helpMu.Unlock()
+	helpText[fs] = func() {
 		w := e.stdout
 		fmt.Fprintf(w, "Usage: tauvox %s %s\n\n%s\n\nOptions:\n", name, args, summary)
 		fs.SetOutput(w)
@@ -173,10 +186,16 @@ func newFlags(name, args, summary string, e *env) *flag.FlagSet {
 // parse parses flags that may come before or after the positional
 // arguments, which it appends to *pos (pos nil: none allowed).
 func parse(fs *flag.FlagSet, args []string, pos *[]string) error {
+	helpMu.Lock()
+	help := helpText[fs]
+	delete(helpText, fs)
+	helpMu.Unlock()
 	for {
 		if err := fs.Parse(args); err != nil {
 			if errors.Is(err, flag.ErrHelp) {
-				fs.Usage()
+				if help != nil {
+					help()
+				}
 				return errHelp
 			}
 			return fmt.Errorf("%v (see --help)", err)

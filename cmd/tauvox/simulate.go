@@ -6,13 +6,14 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strconv"
 	"strings"
+	"time"
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -80,24 +81,31 @@ type vecFlag struct{ v [3]float64 }
 
 func (f *vecFlag) String() string { return "" }
 func (f *vecFlag) Set(s string) error {
-	v, err := sidecar.ParseList(s)
-	if err != nil || len(v) != 3 {
+	parts := strings.Split(s, ",")
+	if len(parts) != 3 {
 		return fmt.Errorf("want three numbers x,y,z")
 	}
-	copy(f.v[:], v)
+	for i, p := range parts {
+		v, err := strconv.ParseFloat(strings.TrimSpace(p), 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("want three numbers x,y,z")
+		}
+		f.v[i] = v
+	}
 	return nil
 }
 
 type simArgs struct {
-	kind, out           string
-	force               bool
-	field, temp, sigma  float64
-	rotation, b1, ineff float64
-	mirror              bool
-	seed                uint64
-	matrix, slices      int
-	center              vecFlag
-	te, ti, tr, fa      listFlag
+	scanner, date, clock string
+	kind, out            string
+	force                bool
+	field, temp, sigma   float64
+	rotation, b1, ineff  float64
+	mirror               bool
+	seed                 uint64
+	matrix, slices       int
+	center               vecFlag
+	te, ti, tr, fa       listFlag
 }
 
 func simFlags(a *simArgs, e *env) *flag.FlagSet {
@@ -121,6 +129,9 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	fs.Uint64Var(&a.seed, "seed", 1, "noise seed")
 	fs.IntVar(&a.matrix, "matrix", 96, "in-plane matrix (2.5 mm voxels)")
 	fs.IntVar(&a.slices, "slices", 3, "number of 5 mm slices")
+	fs.StringVar(&a.scanner, "scanner", "TVX-SIM1", "station name written to the sidecar (invented)")
+	fs.StringVar(&a.date, "date", "", "acquisition date YYYY-MM-DD written to the sidecar")
+	fs.StringVar(&a.clock, "time", "09:00", "acquisition time HH:MM (with --date)")
 	fs.Var(&a.te, "te", "override echo times, ms")
 	fs.Var(&a.ti, "ti", "override inversion times, ms")
 	fs.Var(&a.tr, "tr", "override repetition times, ms")
@@ -209,6 +220,9 @@ func simulateInto(st *mapset.Stage, a *simArgs) ([]string, error) {
 		return nil, err
 	}
 	im.Source.Description = "tauvox demo phantom " + k.name
+	if a.scanner != "" {
+		im.Source.Scanner = a.scanner
+	}
 	name := k.name + ".nii.gz"
 	extra := map[string]any{
 		"Manufacturer":          "tauvox simulator",
@@ -217,6 +231,13 @@ func simulateInto(st *mapset.Stage, a *simArgs) ([]string, error) {
 		"SimulatedNoiseSigma":   a.sigma,
 		"SimulatedB1":           a.b1,
 		"SimulatedSuggestModel": k.model,
+	}
+	if a.date != "" {
+		t, err := time.Parse("2006-01-02 15:04", a.date+" "+a.clock)
+		if err != nil {
+			return nil, fmt.Errorf("--date/--time: want YYYY-MM-DD and HH:MM")
+		}
+		extra["AcquisitionDateTime"] = t.Format("2006-01-02T15:04:05")
 	}
 	if err := series.Write(st.Path(name), im, extra); err != nil {
 		return nil, err
