@@ -53,6 +53,7 @@ func commands() []command {
 	return []command{
 		{"fit", "fit a model to a series and write maps", runFit},
 		{"simulate", "write a synthetic series of the demo phantom with known truth", runSimulate},
+		{"roi", "statistics of maps inside regions (spheres or a label image)", runROI},
 		{"phantom", "measure phantom vials against their reference and give a QA verdict", runPhantom},
 		{"demo", "run simulate and fit on built-in data and print per-vial results", runDemo},
 		{"version", "print the version", runVersion},

@@ -95,7 +95,22 @@ func (f *vecFlag) Set(s string) error {
 	return nil
 }
 
+// driftFlag parses VIAL=FACTOR pairs.
+type driftFlag map[string]float64
+
+func (d driftFlag) String() string { return "" }
+func (d driftFlag) Set(s string) error {
+	id, f, ok := strings.Cut(s, "=")
+	v, err := strconv.ParseFloat(f, 64)
+	if !ok || err != nil || !(v > 0) || math.IsInf(v, 0) || id == "" {
+		return fmt.Errorf("want VIAL=FACTOR, e.g. A4=1.05")
+	}
+	d[id] = v
+	return nil
+}
+
 type simArgs struct {
+	drift                driftFlag
 	scanner, date, clock string
 	kind, out            string
 	force                bool
@@ -132,6 +147,8 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	fs.StringVar(&a.scanner, "scanner", "TVX-SIM1", "station name written to the sidecar (invented)")
 	fs.StringVar(&a.date, "date", "", "acquisition date YYYY-MM-DD written to the sidecar")
 	fs.StringVar(&a.clock, "time", "09:00", "acquisition time HH:MM (with --date)")
+	a.drift = driftFlag{}
+	fs.Var(a.drift, "drift", "scale a vial's true T1 and T2, VIAL=FACTOR (repeatable)")
 	fs.Var(&a.te, "te", "override echo times, ms")
 	fs.Var(&a.ti, "ti", "override inversion times, ms")
 	fs.Var(&a.tr, "tr", "override repetition times, ms")
@@ -146,7 +163,7 @@ func (a *simArgs) scene() *phantom.Scene {
 	}
 	return &phantom.Scene{Def: phantom.Demo(), Field: a.field, Temperature: a.temp, Center: a.center.v,
 		Rotation: a.rotation, Mirror: a.mirror, Matrix: a.matrix, Slices: a.slices, Sigma: sigma,
-		B1: a.b1, Efficiency: a.ineff, Seed: a.seed}
+		B1: a.b1, Efficiency: a.ineff, Seed: a.seed, Shift: a.drift}
 }
 
 func runSimulate(_ context.Context, args []string, e *env) error {
@@ -215,6 +232,15 @@ func simulateInto(st *mapset.Stage, a *simArgs) ([]string, error) {
 		}
 	}
 	sc := a.scene()
+	for id := range a.drift {
+		found := false
+		for _, v := range sc.Def.Vials {
+			found = found || v.ID == id
+		}
+		if !found {
+			return nil, fmt.Errorf("--drift: the demo phantom has no vial %q", id)
+		}
+	}
 	im, err := sc.Series(k.seq, acq)
 	if err != nil {
 		return nil, err

@@ -126,7 +126,13 @@ func (d *Definition) check() error {
 		if !finite(v.X) || !finite(v.Y) || !(v.Radius > 0) || !finite(v.Radius) {
 			return fmt.Errorf("vial %s: position and a positive radius are required", v.ID)
 		}
+		if len(v.Reference) == 0 {
+			return fmt.Errorf("vial %s has no reference values", v.ID)
+		}
 		for q, rows := range v.Reference {
+			if len(rows) == 0 {
+				return fmt.Errorf("vial %s: %s reference is empty", v.ID, q)
+			}
 			for _, r := range rows {
 				if !(r.Value > 0) || !finite(r.Value) || !finite(r.Field) || !(r.Field > 0) || !finite(r.Temperature) || r.Uncertainty < 0 {
 					return fmt.Errorf("vial %s: %s reference row needs field_T > 0, temperature_C and value_ms > 0", v.ID, q)

@@ -46,7 +46,9 @@ func TestParseErrors(t *testing.T) {
 		{`{"format":"x"}`, `format "x", want "tauvox-phantom/1"`},
 		{`{"format":"tauvox-phantom/1","vials":[]}`, "no vials"},
 		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","x_mm":0,"y_mm":0,"radius_mm":0}]}`, "vial a: position and a positive radius are required"},
-		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1},{"id":"a","radius_mm":1}]}`, `vial id "a" appears twice`},
+		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1,"reference":{"T1":[{"field_T":1.5,"temperature_C":20,"value_ms":3}]}},{"id":"a","radius_mm":1}]}`, `vial id "a" appears twice`},
+		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1}]}`, "vial a has no reference values"},
+		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1,"reference":{"T2":[]}}]}`, "vial a: T2 reference is empty"},
 		{`{"format":"tauvox-phantom/1","colour":1}`, `unknown field "colour"`},
 		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1,"reference":{"T1":[{"field_T":1.5,"temperature_C":20,"value_ms":-3}]}}]}`, "T1 reference row needs"},
 	}

@@ -28,7 +28,7 @@ func TestJudge(t *testing.T) {
 		ref    float64
 		tolms  float64
 	}{
-		{"inside", "T1", 103, 20, 50, Pass, 100, 5},      // ref 100 at 20 °C (between 98 and 102), tol max(5, 5)
+		{"inside", "T1", 103, 20, 50, Pass, 100, 5},       // ref 100 at 20 °C (between 98 and 102), tol max(5, 5)
 		{"on the limit", "T1", 105, 20, 50, Pass, 100, 5}, // |105 − 100| = 5 ≤ 5
 		{"outside", "T1", 105.01, 20, 50, Fail, 100, 5},
 		{"below", "T1", 94.9, 20, 50, Fail, 100, 5},
