@@ -1,0 +1,153 @@
+package preview
+
+import (
+	"fmt"
+	"image"
+	"image/color"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+)
+
+// ColorOf returns the display colour of value v in the window [lo, hi]:
+// invalid for NaN and ±Inf, the darkest valid colour for v ≤ lo, the
+// brightest for v ≥ hi, and the table entry at the fraction (v−lo)/(hi−lo)
+// of the table otherwise (the table's n entries split the window into n
+// equal bins). When hi ≤ lo every valid value above lo is drawn in the
+// brightest colour.
+func ColorOf(cm ColorMap, v, lo, hi float64, invalid color.RGBA) color.RGBA {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return invalid
+	}
+	n := len(cm.Colors)
+	if v <= lo {
+		return cm.Colors[0]
+	}
+	if !(hi > lo) || v >= hi {
+		return cm.Colors[n-1]
+	}
+	k := int((v - lo) / (hi - lo) * float64(n))
+	if k >= n {
+		k = n - 1
+	}
+	return cm.Colors[k]
+}
+
+// Slice draws one slice of a map into dst and returns dst. values holds
+// nx·ny samples with i varying fastest (index i + nx·j). The slice is
+// scaled to fill dst's bounds by nearest neighbour, so a caller sets the
+// zoom and the aspect ratio by the size of dst. Image column x shows
+// i = x·nx/w, image row y shows j = ny−1 − y·ny/h (top row is the largest
+// j; see the package comment on orientation). Colours follow ColorOf.
+//
+// If dst is nil an nx×ny image is allocated. Slice allocates nothing
+// otherwise. It panics if nx or ny is below 1, if values is shorter than
+// nx·ny, or if cm is empty.
+func Slice(dst *image.RGBA, values []float32, nx, ny int, cm ColorMap, lo, hi float64, invalid color.RGBA) *image.RGBA {
+	if nx < 1 || ny < 1 {
+		panic("preview: slice size below 1")
+	}
+	if len(values) < nx*ny {
+		panic("preview: fewer values than nx*ny")
+	}
+	if len(cm.Colors) == 0 {
+		panic("preview: empty colour map")
+	}
+	if dst == nil {
+		dst = image.NewRGBA(image.Rect(0, 0, nx, ny))
+	}
+	b := dst.Bounds()
+	w, h := b.Dx(), b.Dy()
+	for y := 0; y < h; y++ {
+		j := ny - 1 - y*ny/h
+		row := values[nx*j : nx*j+nx]
+		off := dst.PixOffset(b.Min.X, b.Min.Y+y)
+		for x := 0; x < w; x++ {
+			c := ColorOf(cm, float64(row[x*nx/w]), lo, hi, invalid)
+			p := dst.Pix[off : off+4 : off+4]
+			p[0], p[1], p[2], p[3] = c.R, c.G, c.B, c.A
+			off += 4
+		}
+	}
+	return dst
+}
+
+// AutoRange returns a robust display window for values: the 1st and 99th
+// percentiles of the finite values, each the linear interpolation between
+// the two nearest order statistics (Hyndman & Fan 1996, definition 7, the
+// default of numpy.percentile). Non-finite values are ignored. When no
+// value is finite it returns 0, 1; when the percentiles are equal it
+// widens the window by 5 % of the value on each side (or to 0..1 for 0).
+// It allocates a sorted copy of the finite values.
+func AutoRange(values []float32) (lo, hi float64) {
+	s := make([]float64, 0, len(values))
+	for _, v := range values {
+		if f := float64(v); !math.IsNaN(f) && !math.IsInf(f, 0) {
+			s = append(s, f)
+		}
+	}
+	if len(s) == 0 {
+		return 0, 1
+	}
+	sort.Float64s(s)
+	lo, hi = percentile(s, 0.01), percentile(s, 0.99)
+	if hi <= lo {
+		if lo == 0 {
+			return 0, 1
+		}
+		d := 0.05 * math.Abs(lo)
+		lo, hi = lo-d, lo+d
+	}
+	return lo, hi
+}
+
+// percentile returns the p-quantile (0 ≤ p ≤ 1) of sorted s by linear
+// interpolation (Hyndman–Fan definition 7).
+func percentile(s []float64, p float64) float64 {
+	h := p * float64(len(s)-1)
+	k := int(math.Floor(h))
+	if k >= len(s)-1 {
+		return s[len(s)-1]
+	}
+	return s[k] + (h-float64(k))*(s[k+1]-s[k])
+}
+
+// Window is an explicit display window. The zero value asks for AutoRange.
+type Window struct {
+	Lo, Hi float64
+}
+
+// IsAuto reports whether w is the zero window (choose automatically).
+func (w Window) IsAuto() bool { return w.Lo == 0 && w.Hi == 0 }
+
+// Resolve returns w's limits, or AutoRange(values) for the zero window.
+func (w Window) Resolve(values []float32) (lo, hi float64) {
+	if w.IsAuto() {
+		return AutoRange(values)
+	}
+	return w.Lo, w.Hi
+}
+
+// ParseWindow parses a display window written "LO,HI" or "LO:HI" (the
+// form of a --range option), e.g. "0,2000". LO must be below HI and both
+// finite.
+func ParseWindow(s string) (Window, error) {
+	sep := ","
+	if !strings.Contains(s, ",") {
+		sep = ":"
+	}
+	a, b, ok := strings.Cut(s, sep)
+	if !ok {
+		return Window{}, fmt.Errorf("range %q: want LO,HI", s)
+	}
+	lo, err1 := strconv.ParseFloat(strings.TrimSpace(a), 64)
+	hi, err2 := strconv.ParseFloat(strings.TrimSpace(b), 64)
+	if err1 != nil || err2 != nil || math.IsInf(lo, 0) || math.IsInf(hi, 0) || math.IsNaN(lo) || math.IsNaN(hi) {
+		return Window{}, fmt.Errorf("range %q: want two finite numbers LO,HI", s)
+	}
+	if !(lo < hi) {
+		return Window{}, fmt.Errorf("range %q: LO must be below HI", s)
+	}
+	return Window{Lo: lo, Hi: hi}, nil
+}

@@ -1,0 +1,64 @@
+package report
+
+import (
+	"github.com/tauvox/tauvox/io/preview"
+	"github.com/tauvox/tauvox/roi/phantom"
+)
+
+// Page is the content of one report.
+type Page struct {
+	// QA is the session result (qa.json). It is required.
+	QA *phantom.QA
+	// Views are the measured maps to show, normally one per quantity.
+	// A quantity without a view gets its plots and table rows but no
+	// picture.
+	Views []View
+	// Tolerance is the phantom definition's acceptance limit per
+	// quantity (phantom.Definition.Tolerance). It sets the tolerance band
+	// of the measured-against-reference plots: reference ± max(Pct % of
+	// reference, Abs) over the whole axis. When a quantity has no entry,
+	// the band joins the vials' own tolerances (VialQA.Tolerance) in
+	// order of reference, from the smallest reference to the largest.
+	// Optional.
+	Tolerance map[string]phantom.Tolerance
+}
+
+// View is one measured map: the slice the vials were measured on and the
+// regions measured.
+type View struct {
+	// Quantity is the quantity shown, as in VialQA.Quantity ("T1", "T2").
+	Quantity string
+	// Unit is printed on the colour bar; empty means
+	// preview.DefaultUnit(Quantity).
+	Unit string
+	// Values holds the slice, Nx·Ny samples with i varying fastest
+	// (index i + Nx·j). NaN marks a failed or masked voxel.
+	Values []float32
+	Nx, Ny int
+	// PixelMM is the in-plane voxel size (along i, along j) in mm, used
+	// for the aspect ratio; zero or invalid means square pixels.
+	PixelMM [2]float64
+	// Slice is the 0-based slice index in the map's grid, for the
+	// caption (normally SeriesRef.Localisation.Slice).
+	Slice int
+	// Window is the display window; the zero value means
+	// preview.AutoRange of Values.
+	Window preview.Window
+	// Regions are the measured vial regions in this slice.
+	Regions []Region
+}
+
+// Region is one measured vial region as a circle in a View's slice.
+type Region struct {
+	// ID is the vial id, drawn as the label.
+	ID string
+	// I, J are the centre in pixel (voxel index) coordinates of the
+	// slice, 0-based, so pixel (i, j) covers I ∈ [i−½, i+½].
+	I, J float64
+	// Radius is the radius in pixels along i; with non-square pixels the
+	// outline is drawn as a circle in millimetres.
+	Radius float64
+	// Verdict is phantom.Pass, phantom.Fail or phantom.NotMeasured; it
+	// sets the outline's colour and style.
+	Verdict string
+}

@@ -1,0 +1,383 @@
+package report
+
+import (
+	"bufio"
+	_ "embed"
+	"encoding/base64"
+	"errors"
+	"fmt"
+	"html/template"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/io/preview"
+	"github.com/tauvox/tauvox/roi/phantom"
+)
+
+//go:embed report.html.tmpl
+var pageTemplate string
+
+var tmpl = template.Must(template.New("report").Parse(pageTemplate))
+
+// Write renders p as a self-contained HTML page and writes it to path
+// atomically (a temporary file in the same folder, renamed when
+// complete). An existing file at path is replaced. It returns an error
+// naming path when p has no QA result, when a view is inconsistent, or
+// when writing fails.
+func Write(path string, p *Page) error {
+	if p == nil || p.QA == nil {
+		return fmt.Errorf("%s: report: no QA result", path)
+	}
+	d, err := build(p)
+	if err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return writeAtomic(path, func(w io.Writer) error { return tmpl.Execute(w, d) })
+}
+
+// Render writes the page of p to w, as Write does without the file.
+func Render(w io.Writer, p *Page) error {
+	if p == nil || p.QA == nil {
+		return errors.New("report: no QA result")
+	}
+	d, err := build(p)
+	if err != nil {
+		return err
+	}
+	return tmpl.Execute(w, d)
+}
+
+// writeAtomic writes through fn into a temporary file beside path and
+// renames it to path when everything succeeded.
+func writeAtomic(path string, fn func(io.Writer) error) (err error) {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".tmp*")
+	if err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	tmp := f.Name()
+	defer func() {
+		if err != nil {
+			f.Close()
+			os.Remove(tmp)
+		}
+	}()
+	w := bufio.NewWriter(f)
+	if err = fn(w); err != nil {
+		return fmt.Errorf("%s: writing report: %w", path, err)
+	}
+	if err = w.Flush(); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = f.Chmod(0o644); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = f.Close(); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = os.Rename(tmp, path); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return nil
+}
+
+// The template's data: every value already formatted as text. Texts from
+// files stay plain strings, so html/template escapes them; only the data:
+// URIs tauvox makes itself are typed as template.URL.
+type pageData struct {
+	Phantom, Scanner, When, Field, Temperature string
+	Verdict, VerdictText, Counts               string
+	Extrapolated                               bool
+	Caution, Tool, Format                      string
+	Quantities                                 []quantityData
+	Rows                                       []rowData
+	Series                                     []seriesData
+}
+
+type quantityData struct {
+	Name, Anchor, Unit, Counts string
+	Map, Bar                   template.URL
+	MapW, MapH, Slice          int
+	Window, Table, Orientation string
+	Scatter, Deviation         template.URL
+	BandText                   string
+}
+
+type rowData struct {
+	ID, Quantity, N, Mean, Median, SD, Reference, Deviation, Tolerance, Verdict, Note string
+}
+
+type seriesData struct {
+	Quantity, Map, Slice, Centre, Rotation, Mirrored, Confidence, LocMethod, Residual string
+	Model, FitMethod, Protocol                                                        string
+	Inputs                                                                            []inputData
+}
+
+type inputData struct{ Path, Role, Sum, FullSum string }
+
+func build(p *Page) (*pageData, error) {
+	qa := p.QA
+	s := qa.Session
+	d := &pageData{
+		Phantom:      orDash(s.Phantom),
+		Scanner:      orDash(s.Scanner),
+		When:         strings.TrimSpace(s.Date + " " + s.Time),
+		Field:        num(s.Field, 2, " T"),
+		Temperature:  num(s.Temperature, 1, " °C"),
+		Verdict:      verdictClass(qa.Verdict),
+		Extrapolated: s.Extrapolated,
+		Caution:      qa.Caution,
+		Format:       orDash(qa.Format),
+		Tool:         strings.TrimSpace(orDash(qa.Tool.Name) + " " + qa.Tool.Version),
+	}
+	if d.When == "" {
+		d.When = "–"
+	}
+	if d.Caution == "" {
+		d.Caution = mapset.Caution
+	}
+	d.VerdictText = strings.ToUpper(strings.ReplaceAll(d.Verdict, "-", " "))
+	d.Counts = counts(qa.Vials)
+
+	byQ := map[string][]*phantom.VialQA{}
+	var order []string
+	addQ := func(q string) {
+		if _, ok := byQ[q]; !ok {
+			byQ[q] = nil
+			order = append(order, q)
+		}
+	}
+	for _, sr := range qa.Series {
+		addQ(sr.Quantity)
+	}
+	for i := range qa.Vials {
+		r := &qa.Vials[i]
+		addQ(r.Quantity)
+		byQ[r.Quantity] = append(byQ[r.Quantity], r)
+		d.Rows = append(d.Rows, row(r))
+	}
+	views := map[string]*View{}
+	for i := range p.Views {
+		v := &p.Views[i]
+		addQ(v.Quantity)
+		if views[v.Quantity] == nil {
+			views[v.Quantity] = v
+		}
+	}
+	for k, q := range order {
+		vials := byQ[q]
+		qd := quantityData{Name: orDash(q), Anchor: fmt.Sprint(k + 1), Unit: preview.DefaultUnit(q), Counts: counts(derefs(vials))}
+		if v := views[q]; v != nil {
+			if v.Unit != "" {
+				qd.Unit = v.Unit
+			}
+			m, b, err := renderView(v)
+			if err != nil {
+				return nil, err
+			}
+			qd.Map, qd.Bar = dataURI("image/png", m), dataURI("image/png", b)
+			cfg := previewSize(v)
+			qd.MapW, qd.MapH, qd.Slice = cfg.X, cfg.Y, v.Slice
+			lo, hi := v.Window.Resolve(v.Values)
+			qd.Window = fmt.Sprintf("%.4g–%.4g", lo, hi)
+			if v.Window.IsAuto() {
+				qd.Window += " (1st–99th percentile)"
+			}
+			cm, rev := preview.ForQuantity(q)
+			qd.Table = cm.Name
+			if rev {
+				qd.Table += " reversed"
+			}
+			qd.Orientation = "columns: i left to right; rows: j decreasing downwards"
+		}
+		var tol *phantom.Tolerance
+		if t, ok := p.Tolerance[q]; ok {
+			tol = &t
+			qd.BandText = fmt.Sprintf("Shaded: the tolerance band, reference ± max(%g %% of the reference, %g %s), the phantom definition's limit for %s.", t.Pct, t.Abs, qd.Unit, q)
+		} else {
+			qd.BandText = "Shaded: the vials' own tolerances (reference ± tolerance) joined in order of reference."
+		}
+		sc, err := scatterSVG(q, qd.Unit, vials, tol)
+		if err != nil {
+			return nil, err
+		}
+		if sc != nil {
+			qd.Scatter = dataURI("image/svg+xml", sc)
+		}
+		dv, err := deviationSVG(q, vials)
+		if err != nil {
+			return nil, err
+		}
+		if dv != nil {
+			qd.Deviation = dataURI("image/svg+xml", dv)
+		}
+		d.Quantities = append(d.Quantities, qd)
+	}
+	for _, sr := range qa.Series {
+		d.Series = append(d.Series, series(&sr))
+	}
+	return d, nil
+}
+
+func derefs(v []*phantom.VialQA) []phantom.VialQA {
+	out := make([]phantom.VialQA, len(v))
+	for i, r := range v {
+		out[i] = *r
+	}
+	return out
+}
+
+// previewSize is the displayed size of a view's picture, as renderView
+// draws it.
+func previewSize(v *View) (pt struct{ X, Y int }) {
+	dx, dy := v.PixelMM[0], v.PixelMM[1]
+	if !(dx > 0) || !(dy > 0) || math.IsInf(dx, 0) || math.IsInf(dy, 0) {
+		dx, dy = 1, 1
+	}
+	p := previewWidth / (float64(v.Nx) * dx)
+	pt.X = previewWidth
+	pt.Y = max(1, min(int(math.Round(float64(v.Ny)*dy*p)), 3*previewWidth))
+	return pt
+}
+
+func dataURI(mime string, b []byte) template.URL {
+	// The content is base64, so the URI holds no character that could
+	// leave the attribute.
+	return template.URL("data:" + mime + ";base64," + base64.StdEncoding.EncodeToString(b))
+}
+
+func verdictClass(v string) string {
+	switch v {
+	case phantom.Pass, phantom.Fail:
+		return v
+	}
+	return phantom.NotMeasured
+}
+
+func counts(vials []phantom.VialQA) string {
+	var pass, fail, nm int
+	for _, r := range vials {
+		switch r.Verdict {
+		case phantom.Pass:
+			pass++
+		case phantom.Fail:
+			fail++
+		default:
+			nm++
+		}
+	}
+	return fmt.Sprintf("%d of %d vial measurements passed, %d failed, %d not measured", pass, len(vials), fail, nm)
+}
+
+func row(r *phantom.VialQA) rowData {
+	rd := rowData{
+		ID: orDash(r.ID), Quantity: orDash(r.Quantity), N: fmt.Sprint(r.N),
+		Mean: num(r.Mean, 1, ""), Median: num(r.Median, 1, ""), SD: num(r.SD, 1, ""),
+		Reference: "–", Deviation: "–", Tolerance: "–",
+		Verdict: verdictClass(r.Verdict), Note: r.Note,
+	}
+	if r.Reference > 0 {
+		rd.Reference = num(r.Reference, 1, "") + " ± " + num(r.RefUncPct, 1, " %")
+		if rd.Verdict != phantom.NotMeasured {
+			rd.Deviation = fmt.Sprintf("%+.1f %%", r.Deviation)
+		}
+	}
+	if r.Tolerance > 0 {
+		rd.Tolerance = "± " + num(r.Tolerance, 1, "")
+	}
+	return rd
+}
+
+func series(sr *phantom.SeriesRef) seriesData {
+	l := sr.Localisation
+	sd := seriesData{
+		Quantity: orDash(sr.Quantity), Map: orDash(sr.Map), Slice: fmt.Sprint(l.Slice),
+		Centre:     fmt.Sprintf("%s, %s, %s", num(l.Center[0], 1, ""), num(l.Center[1], 1, ""), num(l.Center[2], 1, "")),
+		Rotation:   num(l.Rotation, 1, "°"),
+		Mirrored:   "no",
+		Confidence: num(l.Confidence, 2, ""),
+		LocMethod:  orDash(l.Method),
+		FitMethod:  orDash(sr.Method),
+		Residual:   num(l.Residual, 2, " mm"),
+		Model:      orDash(sr.Model),
+		Protocol:   protocol(sr.Protocol),
+	}
+	if l.Mirrored {
+		sd.Mirrored = "yes"
+	}
+	for _, in := range sr.Inputs {
+		id := inputData{Path: in.Path, Role: in.Role, FullSum: in.SHA256, Sum: in.SHA256}
+		if len(id.Sum) > 12 {
+			id.Sum = id.Sum[:12] + "…" // checksums are hex, so byte slicing is safe
+		}
+		sd.Inputs = append(sd.Inputs, id)
+	}
+	return sd
+}
+
+// protocol summarises the acquisition parameters of a series: for each of
+// TE, TI, TR and flip angle the distinct values in order of first
+// appearance (at most 8, then the count), e.g. "TE 10, 20, 30 ms; TR 2000 ms
+// (3 volumes)".
+func protocol(ps []phantom.Protocol) string {
+	if len(ps) == 0 {
+		return "–"
+	}
+	var parts []string
+	for _, f := range []struct {
+		name, unit string
+		get        func(phantom.Protocol) *float64
+	}{
+		{"TE", " ms", func(p phantom.Protocol) *float64 { return p.TE }},
+		{"TI", " ms", func(p phantom.Protocol) *float64 { return p.TI }},
+		{"TR", " ms", func(p phantom.Protocol) *float64 { return p.TR }},
+		{"flip angle", "°", func(p phantom.Protocol) *float64 { return p.FA }},
+	} {
+		var vals []float64
+		seen := map[float64]bool{}
+		for _, p := range ps {
+			if v := f.get(p); v != nil && !seen[*v] {
+				seen[*v] = true
+				vals = append(vals, *v)
+			}
+		}
+		if len(vals) == 0 {
+			continue
+		}
+		var txt []string
+		for i, v := range vals {
+			if i == 8 {
+				txt = append(txt, fmt.Sprintf("… (%d values)", len(vals)))
+				break
+			}
+			txt = append(txt, fmt.Sprintf("%g", v))
+		}
+		parts = append(parts, f.name+" "+strings.Join(txt, ", ")+f.unit)
+	}
+	if len(parts) == 0 {
+		return fmt.Sprintf("%d volumes, parameters unknown", len(ps))
+	}
+	return fmt.Sprintf("%s (%d volumes)", strings.Join(parts, "; "), len(ps))
+}
+
+func orDash(s string) string {
+	if strings.TrimSpace(s) == "" {
+		return "–"
+	}
+	return s
+}
+
+// num formats v with dec decimals and a unit, or "–" when not finite.
+func num(v float64, dec int, unit string) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "–"
+	}
+	return fmt.Sprintf("%.*f%s", dec, v, unit)
+}
