@@ -106,7 +106,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if !fieldSet {
 		a.field = math.NaN()
 	}
-	qa, res, inputs, err := assessPhantom(&a, pos)
+	qa, res, inputs, def, err := assessPhantom(&a, pos)
 	if err != nil {
 		return err
 	}
@@ -122,7 +122,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if err := series.WriteFileAtomic(st.Path("qa.csv"), qaCSV(qa)); err != nil {
 		return err
 	}
-	if err := writeReport(st.Path("report.html"), qa, res, inputs); err != nil {
+	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance); err != nil {
 		return err
 	}
 	if err := st.Commit(); err != nil {
@@ -143,14 +143,14 @@ var (
 )
 
 // assessPhantom reads the maps and runs the assessment.
-func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result, []phantom.Input, error) {
+func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result, []phantom.Input, *phantom.Definition, error) {
 	var def *phantom.Definition
 	if a.def == "demo" {
 		def = phantom.Demo()
 	} else {
 		var err error
 		if def, err = phantom.Read(a.def); err != nil {
-			return nil, nil, nil, err
+			return nil, nil, nil, nil, err
 		}
 	}
 	var inputs []phantom.Input
@@ -158,7 +158,7 @@ func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result
 	for _, p := range paths {
 		ins, prov, err := phantomInputs(p)
 		if err != nil {
-			return nil, nil, nil, err
+			return nil, nil, nil, nil, err
 		}
 		if prov != nil {
 			if sess.Scanner == "" {
@@ -179,20 +179,20 @@ func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result
 		inputs = append(inputs, ins...)
 	}
 	if len(inputs) == 0 {
-		return nil, nil, nil, fmt.Errorf("%s: no T1map or T2map found", strings.Join(paths, ", "))
+		return nil, nil, nil, nil, fmt.Errorf("%s: no T1map or T2map found", strings.Join(paths, ", "))
 	}
 	switch {
 	case sess.Date == "":
-		return nil, nil, nil, errors.New("session date unknown: give --date YYYY-MM-DD")
+		return nil, nil, nil, nil, errors.New("session date unknown: give --date YYYY-MM-DD")
 	case !dateRE.MatchString(sess.Date):
-		return nil, nil, nil, fmt.Errorf("--date %q: want YYYY-MM-DD", sess.Date)
+		return nil, nil, nil, nil, fmt.Errorf("--date %q: want YYYY-MM-DD", sess.Date)
 	case sess.Time != "" && !clockRE.MatchString(sess.Time):
-		return nil, nil, nil, fmt.Errorf("--time %q: want HH:MM", sess.Time)
+		return nil, nil, nil, nil, fmt.Errorf("--time %q: want HH:MM", sess.Time)
 	case math.IsNaN(sess.Field):
-		return nil, nil, nil, errors.New("field strength unknown: give --field")
+		return nil, nil, nil, nil, errors.New("field strength unknown: give --field")
 	}
 	if _, err := time.Parse("2006-01-02", sess.Date); err != nil {
-		return nil, nil, nil, fmt.Errorf("--date %q is not a calendar date", sess.Date)
+		return nil, nil, nil, nil, fmt.Errorf("--date %q is not a calendar date", sess.Date)
 	}
 	if sess.Scanner == "" {
 		sess.Scanner = "unknown"
@@ -209,9 +209,9 @@ func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result
 	}
 	res, err := phantom.Assess(def, inputs, opt)
 	if err != nil {
-		return nil, nil, nil, err
+		return nil, nil, nil, nil, err
 	}
-	return res.QA, res, inputs, nil
+	return res.QA, res, inputs, def, nil
 }
 
 // phantomInputs reads the T1/T2 maps (with their status and M0 map) of a
