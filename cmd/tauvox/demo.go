@@ -2,91 +2,132 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"io"
+	"math"
+	"math/rand/v2"
 	"path/filepath"
-	"text/tabwriter"
+	"time"
 
 	"github.com/tauvox/tauvox/io/mapset"
-	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/roi"
+	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/roi/history"
+	"github.com/tauvox/tauvox/roi/phantom"
 )
+
+// demoDrift is the invented yearly drift of vial A7's material in the demo.
+const demoDrift = -0.05
 
 func runDemo(ctx context.Context, args []string, e *env) error {
 	var out string
 	var force bool
-	fs := newFlags("demo", "[--out DIR]",
-		"Runs tauvox on built-in synthetic data: simulates a multi-echo spin-echo and an\ninversion-recovery series of the invented demo phantom (1.5 T, 21.5 °C, placed\noff-centre and turned), fits T2 and T1, and prints each vial's measured value\nagainst the value the phantom was simulated with.", e)
-	fs.StringVar(&out, "out", "tauvox-demo", "folder for the demo's series and maps")
+	var sessions int
+	fs := newFlags("demo", "[--out DIR] [--sessions N]",
+		`Runs the whole chain on built-in synthetic data. For each of N monthly QA
+sessions of an invented scanner it simulates a multi-echo spin-echo and an
+inversion-recovery series of the invented demo phantom (1.5 T, the phantom
+placed a little differently and at a different temperature each time, vial A7
+slowly drifting), fits T2 and T1, runs the phantom QA, records the session in
+a history database, and finally charts the history. Prints the last session's
+verdict table and the drift table.`, e)
+	fs.StringVar(&out, "out", "tauvox-demo", "folder for the demo's files")
 	fs.BoolVar(&force, "force", false, "replace an existing demo folder")
+	fs.IntVar(&sessions, "sessions", 12, "number of monthly sessions (3…36)")
 	if err := parse(fs, args, nil); err != nil {
 		return err
+	}
+	if sessions < 3 || sessions > 36 {
+		return fmt.Errorf("--sessions must be 3…36")
 	}
 	st, err := mapset.NewStage(out, force)
 	if err != nil {
 		return err
 	}
 	defer st.Abort()
-	sim := simArgs{field: 1.5, temp: 21.5, sigma: 10, rotation: 17, b1: 1, ineff: 1, seed: 2026, matrix: 96, slices: 3,
-		center: vecFlag{[3]float64{12, -8, 0}}}
-	// T2 with the noise-floor model (σ estimated from the air), T1 by
-	// RD-NLS with polarity restoration.
-	type job struct{ kind, model, q, noise string }
-	jobs := []job{{"t2", "t2", "T2", "rician"}, {"t1-ir", "t1-ir", "T1", "gaussian"}}
-	results := map[string][]roi.Stats{}
-	sc := sim.scene()
-	quiet := &env{stdout: io.Discard, stderr: e.stderr, terminal: e.terminal}
-	for _, j := range jobs {
-		sim.kind = j.kind
-		if _, err := simulateInto(st, &sim); err != nil {
-			return err
+	quiet := &env{stdout: io.Discard, stderr: e.stderr, terminal: false}
+	db, err := history.Open(st.Path("history.db"), nil)
+	if err != nil {
+		return err
+	}
+	defer db.Close()
+	rng := rand.New(rand.NewPCG(2026, 12))
+	start := time.Date(2026, 1, 12, 8, 30, 0, 0, time.UTC)
+	var last *phantom.QA
+	for n := 0; n < sessions; n++ {
+		when := start.AddDate(0, n, rng.IntN(7)-3)
+		years := when.Sub(start).Hours() / 24 / 365.2425
+		temp := math.Round((21+1.5*math.Sin(float64(n)*1.3)+0.3*rng.NormFloat64())*10) / 10
+		sim := simArgs{field: 1.5, temp: temp, sigma: 10, rotation: math.Round(rng.Float64()*360*10) / 10, b1: 1, ineff: 1,
+			seed: uint64(100 + n), matrix: 96, slices: 3, scanner: "HARBOUR-MR2", date: when.Format("2006-01-02"), clock: when.Format("15:04"),
+			center: vecFlag{[3]float64{math.Round(rng.NormFloat64()*80) / 10, math.Round(rng.NormFloat64()*80) / 10, 0}},
+			drift:  driftFlag{"A7": 1 + demoDrift*years}}
+		dir := "session-" + when.Format("2006-01-02")
+		var fits []string
+		for _, j := range []struct{ kind, model, noise string }{{"t2", "t2", "rician"}, {"t1-ir", "t1-ir", "gaussian"}} {
+			sim.kind = j.kind
+			sub := st.Path(filepath.Join(dir, j.kind))
+			if err := mkdirAll(sub); err != nil {
+				return err
+			}
+			ss := &subStage{root: sub}
+			if _, err := simulateInto(ss, &sim); err != nil {
+				return err
+			}
+			fitDir := st.Path(filepath.Join(dir, "fit-"+j.kind))
+			a := &fitArgs{series: filepath.Join(sub, j.kind+".nii.gz"), out: fitDir, model: j.model, noise: j.noise, quiet: true}
+			if err := fitSeries(ctx, a, quiet); err != nil {
+				return err
+			}
+			fits = append(fits, fitDir)
 		}
-		series := st.Path(j.kind + ".nii.gz")
-		mapsDir := st.Path("fit-" + j.kind)
-		a := &fitArgs{series: series, out: mapsDir, model: j.model, noise: j.noise}
-		if err := fitSeries(ctx, a, quiet); err != nil {
-			return err
-		}
-		m, err := nifti.Read(filepath.Join(mapsDir, j.q+"map.nii.gz"))
+		pa := &phantomArgs{def: "demo", temp: temp, field: math.NaN(), frac: phantom.DefaultROIFraction}
+		qa, res, inputs, def, err := assessPhantom(pa, fits)
 		if err != nil {
 			return err
 		}
-		status, err := nifti.Read(filepath.Join(mapsDir, "status.nii.gz"))
-		if err != nil {
+		qaDir := st.Path(filepath.Join(dir, "qa"))
+		if err := mkdirAll(qaDir); err != nil {
 			return err
 		}
-		codes := make([]uint8, len(status.Data))
-		for i, v := range status.Data {
-			codes[i] = uint8(v)
+		b, _ := json.MarshalIndent(qa, "", "  ")
+		b = append(b, '\n')
+		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.json"), b); err != nil {
+			return err
 		}
-		var scratch []float64
-		for _, v := range sc.Def.Vials {
-			x, y := sc.FromPhantom(v.X, v.Y)
-			idx := roi.Sphere(m, [3]float64{x, y, sim.center.v[2]}, v.Radius-3)
-			var s roi.Stats
-			s, scratch = roi.Summarise(m.Data, codes, idx, scratch)
-			results[j.q] = append(results[j.q], s)
+		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
+			return err
 		}
+		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance); err != nil {
+			return err
+		}
+		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
+			return err
+		}
+		fmt.Fprintf(e.stdout, "session %2d  %s  %4.1f °C  phantom at (%5.1f, %5.1f) mm, %5.1f°: %s\n", n+1, when.Format("2006-01-02"), temp,
+			qa.Series[0].Localisation.Center[0], qa.Series[0].Localisation.Center[1], qa.Series[0].Localisation.Rotation, qa.Verdict)
+		last = qa
+	}
+	db.Close()
+	a := &chartArgs{db: st.Path("history.db"), out: st.Path("history"), baseline: max(3, sessions/2), minDrift: 1}
+	ss, err := analyseHistory(ctx, a)
+	if err != nil {
+		return err
+	}
+	violated, err := writeCharts(a.out, ss)
+	if err != nil {
+		return err
 	}
 	if err := st.Commit(); err != nil {
 		return err
 	}
-	fmt.Fprintf(e.stdout, "tauvox demo: invented phantom at %.1f T, %.1f °C, centre (%g, %g) mm, turned %g°\n",
-		sim.field, sim.temp, sim.center.v[0], sim.center.v[1], sim.rotation)
-	fmt.Fprintf(e.stdout, "series and maps in %s (fit-t2/, fit-t1-ir/)\n\n", out)
-	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "vial\tT1 true\tT1 fit mean ± SD\tdev %\tT2 true\tT2 fit mean ± SD\tdev %\tvoxels\t")
-	for i, v := range sc.Def.Vials {
-		mat, err := sc.Material(&sc.Def.Vials[i])
-		if err != nil {
-			return err
-		}
-		t1, t2 := results["T1"][i], results["T2"][i]
-		fmt.Fprintf(tw, "%s\t%.1f\t%.1f ± %.1f\t%+.2f\t%.1f\t%.1f ± %.1f\t%+.2f\t%d\t\n", v.ID,
-			mat.T1, t1.Mean, t1.SD, 100*(t1.Mean-mat.T1)/mat.T1,
-			mat.T2, t2.Mean, t2.SD, 100*(t2.Mean-mat.T2)/mat.T2, t2.N)
+	fmt.Fprintln(e.stdout)
+	printQA(e, last, filepath.Join(out, "session-"+last.Session.Date, "qa"))
+	fmt.Fprintf(e.stdout, "\nstability over %d sessions (baseline: first %d; deviation from the temperature-corrected reference, %%):\n", sessions, a.baseline)
+	driftTable(e, ss)
+	if violated {
+		fmt.Fprintln(e.stdout, "rules were violated: see", filepath.Join(out, "history", "index.html"))
 	}
-	tw.Flush()
 	fmt.Fprintln(e.stdout, "\n"+mapset.Caution)
 	return nil
 }

@@ -55,6 +55,7 @@ func commands() []command {
 		{"simulate", "write a synthetic series of the demo phantom with known truth", runSimulate},
 		{"roi", "statistics of maps inside regions (spheres or a label image)", runROI},
 		{"phantom", "measure phantom vials against their reference and give a QA verdict", runPhantom},
+		{"history", "record QA sessions in SQLite; control charts and drift per year", runHistory},
 		{"demo", "run simulate and fit on built-in data and print per-vial results", runDemo},
 		{"version", "print the version", runVersion},
 		{"help", "show help for a command", nil},

@@ -314,13 +314,18 @@ func TestHelpAndVersion(t *testing.T) {
 
 func TestDemo(t *testing.T) {
 	out := filepath.Join(t.TempDir(), "demo")
-	code, stdout, stderr := tauvox(t, "demo", "--out", out)
+	code, stdout, stderr := tauvox(t, "demo", "--out", out, "--sessions", "4")
 	if code != 0 {
 		t.Fatal(stderr)
 	}
-	for _, w := range []string{"A1", "B2", "T1 true", "not a medical device"} {
+	for _, w := range []string{"session  4", "A1", "B2", "drift %/yr", "HARBOUR-MR2", "not a medical device"} {
 		if !strings.Contains(stdout, w) {
 			t.Errorf("demo output lacks %q:\n%s", w, stdout)
+		}
+	}
+	for _, f := range []string{"history.db", "history", "session-2026-01-10/qa/report.html", "session-2026-01-10/fit-t2/T2map.nii.gz"} {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Error(err)
 		}
 	}
 }

@@ -5,6 +5,8 @@ import (
 	"flag"
 	"fmt"
 	"math"
+	"os"
+	"path/filepath"
 	"sort"
 	"strconv"
 	"strings"
@@ -197,8 +199,18 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 	return nil
 }
 
-// simulateInto writes the series and truth maps of one kind into a stage.
-func simulateInto(st *mapset.Stage, a *simArgs) ([]string, error) {
+// pather places output files: a Stage, or a plain folder.
+type pather interface{ Path(name string) string }
+
+// subStage is a folder inside a stage that is already being built.
+type subStage struct{ root string }
+
+func (s *subStage) Path(name string) string { return filepath.Join(s.root, name) }
+
+func mkdirAll(dir string) error { return os.MkdirAll(dir, 0o755) }
+
+// simulateInto writes the series and truth maps of one kind.
+func simulateInto(st pather, a *simArgs) ([]string, error) {
 	k, err := findKind(a.kind)
 	if err != nil {
 		return nil, err
