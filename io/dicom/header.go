@@ -1,0 +1,436 @@
+package dicom
+
+import (
+	"bytes"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+
+	lib "github.com/suyashkumar/dicom"
+	"github.com/suyashkumar/dicom/pkg/tag"
+)
+
+// SOP classes read as enhanced (multi-frame with functional groups),
+// PS3.4 Annex B / check-values §3.3.
+const (
+	sopMR                = "1.2.840.10008.5.1.4.1.1.4"
+	sopEnhancedMR        = "1.2.840.10008.5.1.4.1.1.4.1"
+	sopLegacyEnhancedMR  = "1.2.840.10008.5.1.4.1.1.4.4"
+	sopEnhancedMRColour  = "1.2.840.10008.5.1.4.1.1.4.3"
+	maxFramesPerFile     = 1 << 16
+	maxMatrix            = 1 << 15
+	defaultMaxHeadBytes  = 64 << 20
+	defaultMaxImageBytes = 1 << 31
+)
+
+// Identifiers holds the patient identifiers of a series. Scan fills it
+// only when ScanOptions.KeepIdentifiers is set.
+type Identifiers struct {
+	PatientName      string
+	PatientID        string
+	PatientBirthDate string
+	AccessionNumber  string
+}
+
+// fileInfo is what the grouping pass keeps of one file.
+type fileInfo struct {
+	raw *rawFile
+
+	sopClass, sopInstance           string
+	seriesUID, studyUID, frameOfRef string
+	description                     string
+	seriesNumber                    int
+	hasNumber                       bool
+	imageType                       []string
+	scanningSeq, seqName, echoPulse string
+	manufacturer, model, station    string
+	field                           float64
+	acquired                        string // DICOM DT form, YYYYMMDDHHMMSS.FFFFFF[&ZZXX]
+	rows, cols                      int
+	bitsAlloc, bitsStored, pixelRep int
+	samples                         int
+	nFrames                         int
+	enhanced                        bool
+	ids                             *Identifiers
+
+	frames []frameInfo
+}
+
+// frameInfo holds the per-image attributes of a frame (the one image of a
+// classic file, or one frame of an enhanced file).
+type frameInfo struct {
+	file      *fileInfo
+	index     int // frame number in the file, 0-based
+	ipp       [3]float64
+	iop       [6]float64
+	spacing   [2]float64 // row spacing, column spacing (PixelSpacing order)
+	thickness float64
+	between   float64
+	hasIPP    bool
+	hasIOP    bool
+	hasPS     bool
+	te, ti    float64
+	tr, fa    float64
+	echo      int
+	slope     float64
+	intercept float64
+	kind      string // image/frame type used to split series
+}
+
+// parseHead hands the checked header bytes of rf to the library and
+// extracts the attributes tauvox uses. The library's panics on odd input
+// become FormatErrors.
+func parseHead(rf *rawFile, keepIDs bool) (fi *fileInfo, err error) {
+	meta := metaExplicit
+	switch {
+	case rf.syn.implicit:
+		meta = metaImplicit
+	case rf.syn.bo != nil && rf.syn.bo.Uint16([]byte{0, 1}) == 1:
+		meta = metaBig
+	}
+	defer func() {
+		if r := recover(); r != nil {
+			fi, err = nil, formatErr(rf.path, fmt.Sprintf("header cannot be parsed (%v)", r), nil)
+		}
+	}()
+	n := int64(len(meta) + len(rf.head))
+	in := io.MultiReader(bytes.NewReader(meta), bytes.NewReader(rf.head))
+	ds, err := lib.Parse(in, n, nil, lib.SkipPixelData(), lib.AllowUnknownSpecificCharacterSet())
+	if err != nil {
+		return nil, formatErr(rf.path, "header", err)
+	}
+	return extract(rf, ds.Elements, keepIDs)
+}
+
+func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
+	fi := &fileInfo{raw: rf}
+	fi.sopClass = str(top, tag.SOPClassUID)
+	if fi.sopClass == "" {
+		fi.sopClass = rf.metaSOP
+	}
+	fi.sopInstance = str(top, tag.SOPInstanceUID)
+	fi.seriesUID = str(top, tag.SeriesInstanceUID)
+	fi.studyUID = str(top, tag.StudyInstanceUID)
+	fi.frameOfRef = str(top, tag.FrameOfReferenceUID)
+	fi.description = str(top, tag.SeriesDescription)
+	if v, ok := integer(top, tag.SeriesNumber); ok {
+		fi.seriesNumber, fi.hasNumber = v, true
+	}
+	fi.imageType = strs(top, tag.ImageType)
+	fi.scanningSeq = strings.Join(strs(top, tag.ScanningSequence), `\`)
+	fi.seqName = str(top, tag.SequenceName)
+	if fi.seqName == "" {
+		fi.seqName = str(top, tag.PulseSequenceName)
+	}
+	fi.echoPulse = str(top, tag.EchoPulseSequence)
+	fi.manufacturer = str(top, tag.Manufacturer)
+	fi.model = str(top, tag.ManufacturerModelName)
+	fi.station = str(top, tag.StationName)
+	fi.field = num(top, tag.MagneticFieldStrength)
+	fi.acquired = dateTime(top)
+	if keepIDs {
+		fi.ids = &Identifiers{
+			PatientName:      str(top, tag.PatientName),
+			PatientID:        str(top, tag.PatientID),
+			PatientBirthDate: str(top, tag.PatientBirthDate),
+			AccessionNumber:  str(top, tag.AccessionNumber),
+		}
+	}
+	fi.enhanced = fi.sopClass == sopEnhancedMR || fi.sopClass == sopLegacyEnhancedMR || fi.sopClass == sopEnhancedMRColour ||
+		find(top, tag.PerFrameFunctionalGroupsSequence) != nil
+
+	if !rf.pix.found {
+		return fi, nil // not an image; the caller decides
+	}
+	var ok bool
+	if fi.rows, ok = integer(top, tag.Rows); !ok {
+		return nil, formatErr(rf.path, "image without Rows (0028,0010)", nil)
+	}
+	if fi.cols, ok = integer(top, tag.Columns); !ok {
+		return nil, formatErr(rf.path, "image without Columns (0028,0011)", nil)
+	}
+	if fi.rows < 1 || fi.cols < 1 || fi.rows > maxMatrix || fi.cols > maxMatrix {
+		return nil, formatErr(rf.path, fmt.Sprintf("impossible matrix %d×%d (Columns×Rows)", fi.cols, fi.rows), nil)
+	}
+	fi.bitsAlloc, _ = integer(top, tag.BitsAllocated)
+	fi.bitsStored, ok = integer(top, tag.BitsStored)
+	if !ok {
+		fi.bitsStored = fi.bitsAlloc
+	}
+	fi.pixelRep, _ = integer(top, tag.PixelRepresentation)
+	fi.samples, ok = integer(top, tag.SamplesPerPixel)
+	if !ok {
+		fi.samples = 1
+	}
+	fi.nFrames = 1
+	if v, ok := integer(top, tag.NumberOfFrames); ok {
+		fi.nFrames = v
+	}
+	if fi.nFrames < 1 || fi.nFrames > maxFramesPerFile {
+		return nil, formatErr(rf.path, fmt.Sprintf("impossible NumberOfFrames %d", fi.nFrames), nil)
+	}
+
+	base := frameInfo{
+		file:      fi,
+		te:        num(top, tag.EchoTime),
+		ti:        num(top, tag.InversionTime),
+		tr:        num(top, tag.RepetitionTime),
+		fa:        num(top, tag.FlipAngle),
+		slope:     num(top, tag.RescaleSlope),
+		intercept: num(top, tag.RescaleIntercept),
+		thickness: num(top, tag.SliceThickness),
+		between:   num(top, tag.SpacingBetweenSlices),
+		kind:      strings.Join(fi.imageType, `\`),
+	}
+	if v, ok := integer(top, tag.EchoNumbers); ok {
+		base.echo = v
+	}
+	base.hasIPP = vec(top, tag.ImagePositionPatient, base.ipp[:])
+	base.hasIOP = vec(top, tag.ImageOrientationPatient, base.iop[:])
+	base.hasPS = vec(top, tag.PixelSpacing, base.spacing[:])
+
+	if !fi.enhanced {
+		fi.frames = []frameInfo{base}
+		return fi, nil
+	}
+	// Enhanced MR: per-frame functional groups first, then the shared
+	// group, then the top level (PS3.3 C.7.6.16; check-values §3.1).
+	shared := firstItem(find(top, tag.SharedFunctionalGroupsSequence))
+	perFrame := itemsOf(find(top, tag.PerFrameFunctionalGroupsSequence))
+	if len(perFrame) != fi.nFrames {
+		return nil, formatErr(rf.path, fmt.Sprintf("PerFrameFunctionalGroupsSequence has %d items for %d frames", len(perFrame), fi.nFrames), nil)
+	}
+	fi.frames = make([]frameInfo, fi.nFrames)
+	for k := range fi.frames {
+		fr := base
+		fr.index = k
+		groups := [][]*lib.Element{perFrame[k], shared}
+		macro := func(seq tag.Tag) []*lib.Element {
+			for _, g := range groups {
+				if it := firstItem(find(g, seq)); it != nil {
+					return it
+				}
+			}
+			return nil
+		}
+		if m := macro(tag.PlanePositionSequence); m != nil {
+			fr.hasIPP = vec(m, tag.ImagePositionPatient, fr.ipp[:]) || fr.hasIPP
+		}
+		if m := macro(tag.PlaneOrientationSequence); m != nil {
+			fr.hasIOP = vec(m, tag.ImageOrientationPatient, fr.iop[:]) || fr.hasIOP
+		}
+		if m := macro(tag.PixelMeasuresSequence); m != nil {
+			fr.hasPS = vec(m, tag.PixelSpacing, fr.spacing[:]) || fr.hasPS
+			fr.thickness = numOr(m, tag.SliceThickness, fr.thickness)
+			fr.between = numOr(m, tag.SpacingBetweenSlices, fr.between)
+		}
+		if m := macro(tag.MREchoSequence); m != nil {
+			fr.te = numOr(m, tag.EffectiveEchoTime, fr.te)
+		}
+		if m := macro(tag.MRModifierSequence); m != nil {
+			if ir := str(m, tag.InversionRecovery); ir != "NO" {
+				fr.ti = numOr(m, tag.InversionTimes, fr.ti)
+			}
+		}
+		if m := macro(tag.MRTimingAndRelatedParametersSequence); m != nil {
+			fr.tr = numOr(m, tag.RepetitionTime, fr.tr)
+			fr.fa = numOr(m, tag.FlipAngle, fr.fa)
+		}
+		if m := macro(tag.PixelValueTransformationSequence); m != nil {
+			fr.slope = numOr(m, tag.RescaleSlope, fr.slope)
+			fr.intercept = numOr(m, tag.RescaleIntercept, fr.intercept)
+		}
+		if m := macro(tag.MRImageFrameTypeSequence); m != nil {
+			ft := strings.Join(strs(m, tag.FrameType), `\`)
+			if c := str(m, tag.ComplexImageComponent); c != "" {
+				ft += "/" + c
+			}
+			if ft != "" {
+				fr.kind = ft
+			}
+		}
+		fi.frames[k] = fr
+	}
+	return fi, nil
+}
+
+// dateTime returns the acquisition date-time in DT form from
+// AcquisitionDateTime, or AcquisitionDate + AcquisitionTime, else the
+// series or study date and time, with TimezoneOffsetFromUTC appended when
+// the value has no offset of its own.
+func dateTime(top []*lib.Element) string {
+	dt := str(top, tag.AcquisitionDateTime)
+	if dt == "" {
+		for _, p := range [][2]tag.Tag{
+			{tag.AcquisitionDate, tag.AcquisitionTime},
+			{tag.SeriesDate, tag.SeriesTime},
+			{tag.ContentDate, tag.ContentTime},
+			{tag.StudyDate, tag.StudyTime},
+		} {
+			if d := str(top, p[0]); d != "" {
+				dt = d + str(top, p[1])
+				break
+			}
+		}
+	}
+	if dt != "" && !strings.ContainsAny(dt, "+-") {
+		dt += str(top, tag.TimezoneOffsetFromUTC)
+	}
+	return dt
+}
+
+// rfc3339 converts a DICOM DT value (PS3.5 Table 6.2-1) to RFC 3339 when
+// it carries a UTC offset, else to the same form without offset; "" when
+// the value is malformed.
+func rfc3339(dt string) string {
+	zone := ""
+	if i := strings.IndexAny(dt, "+-"); i >= 0 {
+		zone, dt = dt[i:], dt[:i]
+		if len(zone) != 5 || !digits(zone[1:]) {
+			return ""
+		}
+		zone = zone[:3] + ":" + zone[3:]
+	}
+	frac := ""
+	if i := strings.IndexByte(dt, '.'); i >= 0 {
+		frac, dt = dt[i:], dt[:i]
+		if !digits(frac[1:]) {
+			return ""
+		}
+	}
+	if len(dt) < 8 || len(dt)%2 == 1 || !digits(dt) {
+		return ""
+	}
+	if len(dt) < 14 {
+		dt += "000000"[:14-len(dt)]
+	}
+	if len(dt) != 14 {
+		return ""
+	}
+	return dt[0:4] + "-" + dt[4:6] + "-" + dt[6:8] + "T" + dt[8:10] + ":" + dt[10:12] + ":" + dt[12:14] + frac + zone
+}
+
+func digits(s string) bool {
+	for i := 0; i < len(s); i++ {
+		if s[i] < '0' || s[i] > '9' {
+			return false
+		}
+	}
+	return len(s) > 0
+}
+
+// Element accessors. They never panic: a missing element, a wrong value
+// type or an unparsable number gives "" / NaN / false.
+
+func find(elems []*lib.Element, t tag.Tag) *lib.Element {
+	for _, e := range elems {
+		if e != nil && e.Tag == t {
+			return e
+		}
+	}
+	return nil
+}
+
+func itemsOf(e *lib.Element) [][]*lib.Element {
+	if e == nil || e.Value == nil {
+		return nil
+	}
+	seq, ok := e.Value.GetValue().([]*lib.SequenceItemValue)
+	if !ok {
+		return nil
+	}
+	out := make([][]*lib.Element, len(seq))
+	for i, it := range seq {
+		if it != nil {
+			out[i], _ = it.GetValue().([]*lib.Element)
+		}
+	}
+	return out
+}
+
+func firstItem(e *lib.Element) []*lib.Element {
+	if it := itemsOf(e); len(it) > 0 {
+		return it[0]
+	}
+	return nil
+}
+
+func strs(elems []*lib.Element, t tag.Tag) []string {
+	e := find(elems, t)
+	if e == nil || e.Value == nil {
+		return nil
+	}
+	v, _ := e.Value.GetValue().([]string)
+	out := make([]string, 0, len(v))
+	for _, s := range v {
+		out = append(out, strings.Trim(s, " \x00"))
+	}
+	return out
+}
+
+func str(elems []*lib.Element, t tag.Tag) string {
+	return strings.Join(strs(elems, t), `\`)
+}
+
+// nums returns the numeric values of an element of any numeric VR
+// (DS/IS strings, FL/FD, US/SS/UL/SL).
+func nums(elems []*lib.Element, t tag.Tag) []float64 {
+	e := find(elems, t)
+	if e == nil || e.Value == nil {
+		return nil
+	}
+	switch v := e.Value.GetValue().(type) {
+	case []string:
+		out := make([]float64, 0, len(v))
+		for _, s := range v {
+			f, err := strconv.ParseFloat(strings.TrimSpace(strings.Trim(s, "\x00")), 64)
+			if err != nil {
+				return nil
+			}
+			out = append(out, f)
+		}
+		return out
+	case []float64:
+		return v
+	case []int:
+		out := make([]float64, len(v))
+		for i, x := range v {
+			out[i] = float64(x)
+		}
+		return out
+	}
+	return nil
+}
+
+func num(elems []*lib.Element, t tag.Tag) float64 { return numOr(elems, t, math.NaN()) }
+
+func numOr(elems []*lib.Element, t tag.Tag, def float64) float64 {
+	if v := nums(elems, t); len(v) > 0 && !math.IsNaN(v[0]) && !math.IsInf(v[0], 0) {
+		return v[0]
+	}
+	return def
+}
+
+func integer(elems []*lib.Element, t tag.Tag) (int, bool) {
+	v := nums(elems, t)
+	if len(v) == 0 || v[0] != math.Trunc(v[0]) || math.Abs(v[0]) > 1<<31 {
+		return 0, false
+	}
+	return int(v[0]), true
+}
+
+func vec(elems []*lib.Element, t tag.Tag, dst []float64) bool {
+	v := nums(elems, t)
+	if len(v) < len(dst) {
+		return false
+	}
+	for i := range dst {
+		if math.IsNaN(v[i]) || math.IsInf(v[i], 0) {
+			return false
+		}
+		dst[i] = v[i]
+	}
+	return true
+}

@@ -1,0 +1,196 @@
+package dicom
+
+import (
+	"compress/flate"
+	"encoding/binary"
+	"fmt"
+	"io"
+	"math"
+	"os"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// LoadSeries reads the pixel data of the files of s (and no others) and
+// returns the series as one image: i = column, j = row, k = slice in
+// ascending position along the slice normal, t = volume in ascending
+// order of the varying parameter. Samples are RescaleSlope·stored +
+// RescaleIntercept, per file (per frame for enhanced files), as float32.
+// Acq holds TE, TI, TR and flip angle of each volume (NaN when absent);
+// Source holds the series folder, "dicom", the description, field
+// strength, scanner and acquisition time.
+//
+// It refuses a series that Scan found incomplete or unevenly spaced (the
+// error names the series and the missing slice and parameter value), a
+// compressed transfer syntax (*UnsupportedError naming it), and a series
+// larger than ScanOptions.MaxBytes. A file that changed since the scan, or
+// whose pixel data are short, gives a *FormatError naming it.
+func LoadSeries(s *Series) (*volume.Image, error) {
+	if s == nil {
+		panic("dicom: LoadSeries of a nil series")
+	}
+	if s.err != nil {
+		return nil, s.err
+	}
+	lay := s.lay
+	dims := [4]int{lay.nx, lay.ny, lay.nz, lay.nt}
+	count, err := volume.Count(dims)
+	if err != nil || int64(count) > s.opt.maxBytes()/4 {
+		return nil, unsupportedErr(s.Source.Path, fmt.Sprintf("series %s: %d×%d×%d×%d samples exceed the memory limit of %d bytes",
+			s.ID, dims[0], dims[1], dims[2], dims[3], s.opt.maxBytes()), ErrTooLarge)
+	}
+	im := &volume.Image{Dims: dims, Data: make([]float32, count), Affine: lay.affine, Source: s.Source}
+	im.Acq = append([]volume.Acquisition(nil), lay.acq...)
+
+	// Cells of each file, so that each file is read once.
+	type cell struct {
+		fr  *frameInfo
+		off int // sample offset in im.Data
+	}
+	byFile := map[*fileInfo][]cell{}
+	var order []*fileInfo
+	plane := lay.nx * lay.ny
+	for i, fr := range lay.cells {
+		if byFile[fr.file] == nil {
+			order = append(order, fr.file)
+		}
+		byFile[fr.file] = append(byFile[fr.file], cell{fr, i * plane})
+	}
+	var buf []byte
+	for _, f := range order {
+		buf, err = readPixels(f, buf, s.opt.maxBytes())
+		if err != nil {
+			return nil, err
+		}
+		bps := bytesPerSample(f)
+		frameBytes := plane * bps
+		for _, c := range byFile[f] {
+			decode(im.Data[c.off:c.off+plane], buf[c.fr.index*frameBytes:(c.fr.index+1)*frameBytes], f, c.fr)
+		}
+	}
+	return im, nil
+}
+
+func bytesPerSample(f *fileInfo) int {
+	switch f.raw.pix.tag {
+	case 0x7FE00008:
+		return 4
+	case 0x7FE00009:
+		return 8
+	}
+	return f.bitsAlloc / 8
+}
+
+// readPixels reads the pixel data of f into buf (grown when short) and
+// returns the bytes of all its frames.
+func readPixels(f *fileInfo, buf []byte, maxBytes int64) ([]byte, error) {
+	rf := f.raw
+	path := rf.path
+	need := int64(f.rows) * int64(f.cols) * int64(f.nFrames) * int64(bytesPerSample(f))
+	vl := int64(rf.pix.vl)
+	if need > maxBytes {
+		return nil, unsupportedErr(path, fmt.Sprintf("pixel data of %d bytes exceed the memory limit of %d bytes", need, maxBytes), ErrTooLarge)
+	}
+	if vl < need {
+		return nil, formatErr(path, fmt.Sprintf("pixel data has %d bytes but %d frames of %d×%d samples of %d bits need %d",
+			vl, f.nFrames, f.cols, f.rows, 8*bytesPerSample(f), need), nil)
+	}
+	file, err := os.Open(path)
+	if err != nil {
+		return nil, &fileError{path, "open", err}
+	}
+	defer file.Close()
+	st, err := file.Stat()
+	if err != nil {
+		return nil, &fileError{path, "stat", err}
+	}
+	if st.Size() != rf.size {
+		return nil, formatErr(path, fmt.Sprintf("file changed since the scan (%d bytes, was %d)", st.Size(), rf.size), nil)
+	}
+	if int64(cap(buf)) < need {
+		buf = make([]byte, need)
+	}
+	buf = buf[:need]
+	var r io.Reader
+	if rf.syn.deflate {
+		zr := flate.NewReader(io.NewSectionReader(file, rf.dataStart, rf.size-rf.dataStart))
+		defer zr.Close()
+		if _, err := io.CopyN(io.Discard, zr, rf.pix.value); err != nil {
+			return nil, formatErr(path, "deflated data set ends before the pixel data", err)
+		}
+		r = zr
+	} else {
+		r = io.NewSectionReader(file, rf.dataStart+rf.pix.value, need)
+	}
+	if _, err := io.ReadFull(r, buf); err != nil {
+		if err == io.EOF {
+			err = io.ErrUnexpectedEOF
+		}
+		return nil, formatErr(path, fmt.Sprintf("truncated: pixel data declares %d bytes", vl), err)
+	}
+	return buf, nil
+}
+
+// decode converts one frame of stored samples to rescaled float32.
+func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
+	slope, icpt := fr.slope, fr.intercept
+	if math.IsNaN(slope) || slope == 0 {
+		slope = 1 // absent (or an invalid zero): identity, PS3.3 C.11.1.1.2
+	}
+	if math.IsNaN(icpt) {
+		icpt = 0
+	}
+	bo := f.raw.syn.bo
+	if bo == nil {
+		bo = binary.LittleEndian
+	}
+	switch f.raw.pix.tag {
+	case 0x7FE00008:
+		for i := range dst {
+			dst[i] = float32(slope*float64(math.Float32frombits(bo.Uint32(src[4*i:]))) + icpt)
+		}
+		return
+	case 0x7FE00009:
+		for i := range dst {
+			dst[i] = float32(slope*math.Float64frombits(bo.Uint64(src[8*i:])) + icpt)
+		}
+		return
+	}
+	signed := f.pixelRep == 1
+	shift := uint(f.bitsAlloc - f.bitsStored) // high bits beyond BitsStored are not part of the value
+	switch f.bitsAlloc {
+	case 8:
+		for i := range dst {
+			v := uint8(src[i]) << shift
+			var x float64
+			if signed {
+				x = float64(int8(v) >> shift)
+			} else {
+				x = float64(v >> shift)
+			}
+			dst[i] = float32(slope*x + icpt)
+		}
+	case 16:
+		for i := range dst {
+			v := bo.Uint16(src[2*i:]) << shift
+			var x float64
+			if signed {
+				x = float64(int16(v) >> shift)
+			} else {
+				x = float64(v >> shift)
+			}
+			dst[i] = float32(slope*x + icpt)
+		}
+	case 32:
+		for i := range dst {
+			v := bo.Uint32(src[4*i:]) << shift
+			var x float64
+			if signed {
+				x = float64(int32(v) >> shift)
+			} else {
+				x = float64(v >> shift)
+			}
+			dst[i] = float32(slope*x + icpt)
+		}
+	}
+}

@@ -1,0 +1,581 @@
+package dicom
+
+import (
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// ScanOptions are the settings of Scan. The zero value (and nil) leaves
+// out localizers and derived images, keeps no patient identifiers, and
+// uses the default limits.
+type ScanOptions struct {
+	// Localizers keeps images whose ImageType contains LOCALIZER (left
+	// out by default).
+	Localizers bool
+	// Derived keeps images whose ImageType starts with DERIVED (maps,
+	// reformats, subtractions; left out by default).
+	Derived bool
+	// KeepIdentifiers fills Series.Identifiers with the patient name,
+	// patient ID, birth date and accession number. By default no patient
+	// identifier leaves this package.
+	KeepIdentifiers bool
+	// MaxHeaderBytes caps the bytes read (or inflated) before the pixel
+	// data of one file. Defaults to 64 MiB if 0 or negative.
+	MaxHeaderBytes int64
+	// MaxBytes caps the memory of one loaded series (4 bytes per
+	// sample). Defaults to 2 GiB if 0 or negative.
+	MaxBytes int64
+}
+
+func (o *ScanOptions) maxHead() int64 {
+	if o == nil || o.MaxHeaderBytes <= 0 {
+		return defaultMaxHeadBytes
+	}
+	return o.MaxHeaderBytes
+}
+
+func (o *ScanOptions) maxBytes() int64 {
+	if o == nil || o.MaxBytes <= 0 {
+		return defaultMaxImageBytes
+	}
+	return min(o.MaxBytes, 1<<60)
+}
+
+// Problem is a file or series that Scan could not use, with the reason.
+// Err's text is one line that starts with the path.
+type Problem struct {
+	Path string
+	Err  error
+}
+
+func (p Problem) String() string { return p.Err.Error() }
+
+// MarshalJSON writes {"path": ..., "error": ...}.
+func (p Problem) MarshalJSON() ([]byte, error) {
+	return json.Marshal(struct {
+		Path  string `json:"path"`
+		Error string `json:"error"`
+	}{p.Path, p.Err.Error()})
+}
+
+// Catalog is the result of Scan: every series found, and what was left
+// out.
+type Catalog struct {
+	Series     []*Series `json:"series"`
+	Files      int       `json:"files"`      // DICOM image files read
+	Skipped    int       `json:"skipped"`    // files that are not DICOM
+	Unreadable int       `json:"unreadable"` // DICOM-like files that could not be read (each has a Problem)
+	Ignored    int       `json:"ignored"`    // localizers, derived images and non-image DICOM objects left out
+	Problems   []Problem `json:"problems"`   // unreadable files and series that cannot be loaded
+
+	opt ScanOptions
+}
+
+// Series summarises one series: the files of one SeriesInstanceUID with
+// one orientation, matrix and image type.
+type Series struct {
+	// ID is short and stable across scans: the series number, '-', and
+	// six hex digits of a hash of the SeriesInstanceUID (and of the split
+	// key when a series was split), e.g. "7-3fa2c1".
+	ID          string        `json:"id"`
+	UID         string        `json:"series_uid"`
+	StudyUID    string        `json:"study_uid"`
+	Number      int           `json:"number"` // SeriesNumber, 0 when absent
+	Description string        `json:"description"`
+	SOPClass    string        `json:"sop_class"`
+	Enhanced    bool          `json:"enhanced"`   // multi-frame with functional groups
+	ImageType   string        `json:"image_type"` // ImageType, or FrameType/ComplexImageComponent
+	Sequence    string        `json:"scanning_sequence"`
+	Varying     string        `json:"varying"` // "EchoTime", "InversionTime", "FlipAngle", "RepetitionTime", "EchoNumber" or ""
+	Values      []float64     `json:"values"`  // distinct values of Varying, ascending (ms, degrees or echo numbers)
+	Model       string        `json:"model"`   // suggested tauvox model: "t2", "t2star", "t1-ir", "t1-vfa", "t1-sr" or ""
+	Rows        int           `json:"rows"`
+	Columns     int           `json:"columns"`
+	Slices      int           `json:"slices"`
+	Volumes     int           `json:"volumes"`
+	Files       int           `json:"files"`
+	Frames      int           `json:"frames"`
+	Source      volume.Source `json:"source"`
+	// Identifiers is nil unless ScanOptions.KeepIdentifiers was set.
+	Identifiers *Identifiers `json:"identifiers,omitempty"`
+	// Notes are remarks that do not stop loading (a split series, a
+	// second varying parameter).
+	Notes []string `json:"notes,omitempty"`
+	// Problem is why the series cannot be loaded ("" when it can).
+	Problem string `json:"problem,omitempty"`
+
+	frames []*frameInfo
+	key    string
+	lay    *layout
+	err    error
+	opt    *ScanOptions
+}
+
+// Err returns why the series cannot be loaded, or nil.
+func (s *Series) Err() error { return s.err }
+
+// Scan finds the DICOM series in paths (files, or folders searched
+// recursively; symbolic links to folders are not followed). Files are
+// recognised by content, not name: the Part-10 preamble with "DICM" at
+// byte 128, or a bare data set starting with a group 0008 element. Only
+// headers are read (up to the pixel data). Unreadable files are counted
+// and listed in Problems; the scan goes on. The error is non-nil only when
+// a path itself cannot be read.
+func Scan(paths []string, opt *ScanOptions) (*Catalog, error) {
+	c := &Catalog{}
+	if opt != nil {
+		c.opt = *opt
+	}
+	var files []string
+	seen := map[string]bool{}
+	for _, p := range paths {
+		st, err := os.Stat(p)
+		if err != nil {
+			return nil, &fileError{p, "scan", err}
+		}
+		if !st.IsDir() {
+			if !seen[p] {
+				seen[p] = true
+				files = append(files, p)
+			}
+			continue
+		}
+		err = filepath.WalkDir(p, func(path string, d fs.DirEntry, err error) error {
+			if err != nil {
+				c.problem(path, &fileError{path, "read folder", err})
+				c.Unreadable++
+				if d != nil && d.IsDir() {
+					return fs.SkipDir
+				}
+				return nil
+			}
+			if d.IsDir() || seen[path] {
+				return nil
+			}
+			seen[path] = true
+			files = append(files, path)
+			return nil
+		})
+		if err != nil {
+			return nil, &fileError{p, "scan", err}
+		}
+	}
+	sort.Strings(files)
+
+	var infos []*fileInfo
+	for _, path := range files {
+		fi, err := c.readFile(path)
+		if err != nil {
+			if errors.Is(err, errNotDICOM) {
+				c.Skipped++
+				continue
+			}
+			c.Unreadable++
+			c.problem(path, err)
+			continue
+		}
+		if fi != nil {
+			infos = append(infos, fi)
+		}
+	}
+	c.group(infos)
+	return c, nil
+}
+
+func (c *Catalog) problem(path string, err error) {
+	c.Problems = append(c.Problems, Problem{Path: path, Err: err})
+}
+
+// readFile reads one header; it returns nil, nil for a file left out.
+func (c *Catalog) readFile(path string) (*fileInfo, error) {
+	rf, err := readHead(path, c.opt.maxHead())
+	if err != nil {
+		return nil, err
+	}
+	fi, err := parseHead(rf, c.opt.KeepIdentifiers)
+	rf.head = nil // keep only what the grouping needs
+	if err != nil {
+		return nil, err
+	}
+	if !rf.pix.found {
+		c.Ignored++ // a DICOM object without pixel data (report, presentation state, ...)
+		return nil, nil
+	}
+	for i, v := range fi.imageType {
+		if v == "LOCALIZER" && !c.opt.Localizers || i == 0 && v == "DERIVED" && !c.opt.Derived {
+			c.Ignored++
+			return nil, nil
+		}
+	}
+	if fi.seriesUID == "" {
+		return nil, formatErr(path, "image without SeriesInstanceUID (0020,000E)", nil)
+	}
+	c.Files++
+	return fi, nil
+}
+
+// splitKey is what must agree inside one series: orientation, matrix and
+// image type.
+func splitKey(fr *frameInfo) string {
+	var b strings.Builder
+	if fr.hasIOP {
+		for i, v := range fr.iop {
+			if i > 0 {
+				b.WriteByte(',')
+			}
+			b.WriteString(strconv.FormatFloat(math.Round(v*1e4)/1e4+0, 'f', 4, 64))
+		}
+	} else {
+		b.WriteString("no-orientation")
+	}
+	fmt.Fprintf(&b, "|%dx%d|%s", fr.file.cols, fr.file.rows, fr.kind)
+	return b.String()
+}
+
+// group builds the series from the file headers.
+func (c *Catalog) group(infos []*fileInfo) {
+	type part struct {
+		uid, key string
+	}
+	parts := map[part]*Series{}
+	byUID := map[string][]*Series{}
+	for _, fi := range infos {
+		for k := range fi.frames {
+			fr := &fi.frames[k]
+			p := part{fi.seriesUID, splitKey(fr)}
+			s := parts[p]
+			if s == nil {
+				s = &Series{UID: fi.seriesUID, key: p.key, opt: &c.opt}
+				parts[p] = s
+				byUID[fi.seriesUID] = append(byUID[fi.seriesUID], s)
+				c.Series = append(c.Series, s)
+			}
+			s.frames = append(s.frames, fr)
+		}
+	}
+	for uid, list := range byUID {
+		if len(list) > 1 {
+			c.noteSplit(uid, list)
+		}
+	}
+	for _, s := range c.Series {
+		s.summarise()
+		if s.err != nil {
+			c.problem(s.Source.Path, s.err)
+		}
+	}
+	sort.SliceStable(c.Series, func(a, b int) bool {
+		sa, sb := c.Series[a], c.Series[b]
+		if sa.Number != sb.Number {
+			return sa.Number < sb.Number
+		}
+		if sa.UID != sb.UID {
+			return sa.UID < sb.UID
+		}
+		return sa.key < sb.key
+	})
+}
+
+// noteSplit records how a series was split. Mixed matrix sizes are also a
+// problem: they usually mean a stray file.
+func (c *Catalog) noteSplit(uid string, list []*Series) {
+	var desc []string
+	matrices := map[string]bool{}
+	total := 0
+	for _, s := range list {
+		total += len(s.frames)
+	}
+	for _, s := range list {
+		f := s.frames[0].file
+		matrices[fmt.Sprintf("%dx%d", f.cols, f.rows)] = true
+		desc = append(desc, fmt.Sprintf("%d×%d %s (%d of %d images)", f.cols, f.rows, s.frames[0].kind, len(s.frames), total))
+	}
+	note := fmt.Sprintf("series %s was split by orientation, matrix or image type into %d parts: %s", uid, len(list), strings.Join(desc, "; "))
+	for _, s := range list {
+		s.Notes = append(s.Notes, note)
+	}
+	if len(matrices) > 1 {
+		// Name the files of the smallest part and compare with the largest.
+		small, big := list[0], list[0]
+		for _, s := range list {
+			if len(s.frames) < len(small.frames) {
+				small = s
+			}
+			if len(s.frames) > len(big.frames) {
+				big = s
+			}
+		}
+		var names []string
+		for i, fr := range small.frames {
+			if i == 3 {
+				names = append(names, "...")
+				break
+			}
+			names = append(names, frameName(fr))
+		}
+		fs, fb := small.frames[0].file, big.frames[0].file
+		c.problem(fs.raw.path, formatErr(strings.Join(names, ", "),
+			fmt.Sprintf("matrix %d×%d (Columns×Rows) differs from %d×%d of the other %d images of series %d (%s); the series is split",
+				fs.cols, fs.rows, fb.cols, fb.rows, len(big.frames), fb.seriesNumber, uid), nil))
+	}
+}
+
+// summarise fills the exported fields of s from its frames and arranges
+// the grid.
+func (s *Series) summarise() {
+	f0 := s.frames[0].file
+	s.StudyUID = f0.studyUID
+	s.Number = f0.seriesNumber
+	s.Description = f0.description
+	s.SOPClass = f0.sopClass
+	s.Enhanced = f0.enhanced
+	s.ImageType = s.frames[0].kind
+	s.Sequence = f0.scanningSeq
+	s.Rows, s.Columns = f0.rows, f0.cols
+	s.Identifiers = f0.ids
+	s.Frames = len(s.frames)
+	files := map[*fileInfo]bool{}
+	acquired := ""
+	dir := ""
+	for _, fr := range s.frames {
+		f := fr.file
+		if !files[f] {
+			files[f] = true
+			d := filepath.Dir(f.raw.path)
+			if dir == "" {
+				dir = d
+			} else {
+				dir = commonDir(dir, d)
+			}
+			if a := f.acquired; a != "" && (acquired == "" || a < acquired) {
+				acquired = a
+			}
+		}
+	}
+	s.Files = len(files)
+	h := sha256.Sum256([]byte(s.UID + "|" + s.key))
+	prefix := "s"
+	if f0.hasNumber {
+		prefix = strconv.Itoa(f0.seriesNumber)
+	}
+	s.ID = prefix + "-" + hex.EncodeToString(h[:3])
+	s.Source = volume.Source{
+		Path:          dir,
+		Format:        "dicom",
+		Description:   f0.description,
+		FieldStrength: math.NaN(),
+		Scanner:       f0.station,
+		AcquiredAt:    rfc3339(acquired),
+	}
+	if f0.field > 0 {
+		s.Source.FieldStrength = f0.field
+	}
+	if s.Source.Scanner == "" {
+		s.Source.Scanner = strings.TrimSpace(f0.manufacturer + " " + f0.model)
+	}
+
+	s.classify()
+	s.lay, s.err = arrange(s)
+	if s.lay != nil {
+		s.Slices, s.Volumes = s.lay.nz, s.lay.nt
+	}
+	if s.err == nil {
+		s.err = s.unsupported()
+	}
+	if s.err != nil {
+		s.Problem = s.err.Error()
+	}
+}
+
+func commonDir(a, b string) string {
+	for a != b {
+		if len(a) > len(b) {
+			a = filepath.Dir(a)
+		} else {
+			b = filepath.Dir(b)
+		}
+		if a == "." || b == "." || a == string(filepath.Separator) || b == string(filepath.Separator) {
+			if a == b {
+				return a
+			}
+			if len(a) < len(b) {
+				return a
+			}
+			return b
+		}
+	}
+	return a
+}
+
+// unsupported reports the first file of s whose pixel data this package
+// cannot decode.
+func (s *Series) unsupported() error {
+	for _, fr := range s.frames {
+		f := fr.file
+		rf := f.raw
+		switch {
+		case rf.syn.encapsulated || rf.pix.vl == undefinedLength:
+			return unsupportedErr(rf.path, fmt.Sprintf("transfer syntax %s (%s) is compressed; tauvox reads only uncompressed and deflated files; decompress them first (e.g. with dcmtk's dcmdjpeg)", rf.syn.name, rf.syn.uid), nil)
+		case f.samples != 1:
+			return unsupportedErr(rf.path, fmt.Sprintf("%d samples per pixel (colour); tauvox reads grey-scale images", f.samples), nil)
+		case rf.pix.tag == 0x7FE00010 && f.bitsAlloc != 8 && f.bitsAlloc != 16 && f.bitsAlloc != 32:
+			return unsupportedErr(rf.path, fmt.Sprintf("BitsAllocated %d; tauvox reads 8, 16 and 32 bits", f.bitsAlloc), nil)
+		case rf.pix.tag == 0x7FE00010 && (f.bitsStored < 1 || f.bitsStored > f.bitsAlloc):
+			return formatErr(rf.path, fmt.Sprintf("BitsStored %d with BitsAllocated %d", f.bitsStored, f.bitsAlloc), nil)
+		}
+	}
+	return nil
+}
+
+// volKey identifies the volume a frame belongs to.
+type volKey struct {
+	te, ti, tr, fa int64
+	echo           int
+}
+
+// unknownKey stands for a NaN parameter in a volKey.
+const unknownKey = math.MinInt64
+
+func quant(v float64) int64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return unknownKey
+	}
+	return int64(math.Round(v * 1e4)) // 0.1 µs or 1e-4 degree
+}
+
+func keyOf(fr *frameInfo) volKey {
+	return volKey{quant(fr.te), quant(fr.ti), quant(fr.tr), quant(fr.fa), fr.echo}
+}
+
+// classify finds the varying parameter and the suggested model.
+func (s *Series) classify() {
+	sets := [4]map[int64]float64{{}, {}, {}, {}}
+	echoes := map[int]bool{}
+	for _, fr := range s.frames {
+		for i, v := range [4]float64{fr.ti, fr.fa, fr.te, fr.tr} {
+			sets[i][quant(v)] = v
+		}
+		echoes[fr.echo] = true
+	}
+	names := [4]string{"InversionTime", "FlipAngle", "EchoTime", "RepetitionTime"}
+	models := [4]string{"t1-ir", "t1-vfa", "", "t1-sr"}
+	chosen := -1
+	for i := range sets {
+		if len(sets[i]) > 1 {
+			if chosen < 0 {
+				chosen = i
+			} else {
+				s.Notes = append(s.Notes, fmt.Sprintf("%s also varies (%d values)", names[i], len(sets[i])))
+			}
+		}
+	}
+	if chosen < 0 {
+		if len(echoes) > 1 {
+			s.Varying = "EchoNumber"
+			for e := range echoes {
+				s.Values = append(s.Values, float64(e))
+			}
+			sort.Float64s(s.Values)
+		}
+		return
+	}
+	s.Varying = names[chosen]
+	for _, v := range sets[chosen] {
+		s.Values = append(s.Values, v)
+	}
+	sort.Float64s(s.Values)
+	s.Model = models[chosen]
+	if names[chosen] == "EchoTime" {
+		s.Model = echoModel(s.frames[0].file)
+		if s.Model == "" {
+			s.Notes = append(s.Notes, "echo time varies but neither ScanningSequence nor SequenceName tells spin echo from gradient echo")
+		}
+	}
+}
+
+// echoModel tells a multi-echo spin echo ("t2") from a multi-echo
+// gradient echo ("t2star") by ScanningSequence (PS3.3 C.8.3.1: SE, GR,
+// ...), EchoPulseSequence of enhanced files (SPIN, GRADIENT), or common
+// vendor sequence-name fragments (common practice).
+func echoModel(f *fileInfo) string {
+	parts := strings.Split(f.scanningSeq, `\`)
+	has := func(v string) bool {
+		for _, p := range parts {
+			if strings.TrimSpace(p) == v {
+				return true
+			}
+		}
+		return false
+	}
+	switch {
+	case has("GR"):
+		return "t2star"
+	case has("SE"):
+		return "t2"
+	case f.echoPulse == "GRADIENT":
+		return "t2star"
+	case f.echoPulse == "SPIN":
+		return "t2"
+	}
+	name := strings.ToLower(strings.TrimLeft(f.seqName, "*"))
+	for _, h := range []string{"fl", "gre", "fgre", "medic", "t2star", "swi", "ffe", "mge"} {
+		if strings.HasPrefix(name, h) {
+			return "t2star"
+		}
+	}
+	for _, h := range []string{"se", "tse", "fse", "mese", "cpmg", "me_se", "t2map"} {
+		if strings.HasPrefix(name, h) {
+			return "t2"
+		}
+	}
+	return ""
+}
+
+// Lookup returns the series with the given ID; the SeriesInstanceUID or
+// the series number are accepted too when they name exactly one series.
+func (c *Catalog) Lookup(id string) (*Series, error) {
+	for _, s := range c.Series {
+		if s.ID == id {
+			return s, nil
+		}
+	}
+	var hits []*Series
+	for _, s := range c.Series {
+		if s.UID == id || strconv.Itoa(s.Number) == id && id != "0" {
+			hits = append(hits, s)
+		}
+	}
+	if len(hits) == 1 {
+		return hits[0], nil
+	}
+	var ids []string
+	for _, s := range c.Series {
+		ids = append(ids, s.ID)
+	}
+	if len(hits) > 1 {
+		return nil, fmt.Errorf("dicom: %q names %d series; choose one of %s", oneLine(id), len(hits), strings.Join(ids, ", "))
+	}
+	return nil, fmt.Errorf("dicom: no series %q in the scan (found %s)", oneLine(id), strings.Join(ids, ", "))
+}
+
+// Load reads the pixel data of the series with the given ID (see Lookup)
+// and returns it as an image; see LoadSeries.
+func (c *Catalog) Load(id string) (*volume.Image, error) {
+	s, err := c.Lookup(id)
+	if err != nil {
+		return nil, err
+	}
+	return LoadSeries(s)
+}
