@@ -28,9 +28,11 @@ fitquality (R²), status (0 ok, 1 masked, 2 too few points, 3 not converged,
 4 out of bounds), a JSON sidecar per map and provenance.json. Failed voxels
 are NaN, never 0. Times are in ms.
 
-SERIES is a 4-D NIfTI file (.nii or .nii.gz); its BIDS sidecar (same name,
-.json; times in seconds) gives the echo/inversion times, or use --te/--ti/
---tr/--fa (ms, degrees) as lists "10,20,30" or ranges "10:10:320".
+SERIES is a DICOM folder (searched recursively; --series ID picks one of
+several, see tauvox scan) or file, or a 4-D NIfTI file (.nii, .nii.gz) whose
+BIDS sidecar (same name, .json; times in seconds) gives the echo/inversion
+times; --te/--ti/--tr/--fa (ms, degrees) as lists "10,20,30" or ranges
+"10:10:320" replace them.
 
 Models:
 ` + "%s" + `
@@ -70,11 +72,11 @@ func (l *listFlag) list() []float64 {
 }
 
 type fitArgs struct {
-	series, out, model, method, maskFile, b1File, noise, cpuprofile string
-	force, offset, efficiency, noMask, quiet, gonum                 bool
-	threshold, sigma, minT, maxT                                    float64
-	skip, workers                                                   int
-	te, ti, tr, fa                                                  listFlag
+	series, out, model, method, maskFile, b1File, noise, cpuprofile, seriesID string
+	force, offset, efficiency, noMask, quiet, gonum                           bool
+	threshold, sigma, minT, maxT                                              float64
+	skip, workers                                                             int
+	te, ti, tr, fa                                                            listFlag
 }
 
 func runFit(ctx context.Context, args []string, e *env) error {
@@ -83,6 +85,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.StringVar(&a.model, "model", "", "signal model: t2, t2star, t1-ir, t1-vfa, t1-sr (required)")
 	fs.StringVar(&a.method, "method", "", "estimation method (default: the model's first)")
 	fs.StringVar(&a.out, "out", "", "output folder (required; refused if it exists, see --force)")
+	fs.StringVar(&a.seriesID, "series", "", "DICOM series id when SERIES is a folder holding several (see tauvox scan)")
 	fs.BoolVar(&a.force, "force", false, "replace an existing output folder")
 	fs.StringVar(&a.maskFile, "mask", "", "NIfTI mask on the series grid; voxels > 0 are fitted")
 	fs.Float64Var(&a.threshold, "threshold", 0, "fit voxels whose largest sample reaches this value (default automatic)")
@@ -138,7 +141,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 
 func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 	t0 := time.Now()
-	im, inputs, err := series.Load(a.series, &series.Overrides{TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list()})
+	im, inputs, err := series.Load(a.series, &series.Overrides{TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list(), Series: a.seriesID})
 	if err != nil {
 		return err
 	}

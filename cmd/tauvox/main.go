@@ -51,6 +51,7 @@ type env struct {
 
 func commands() []command {
 	return []command{
+		{"scan", "list the series under folders (DICOM, NIfTI) with a suggested model", runScan},
 		{"fit", "fit a model to a series and write maps", runFit},
 		{"simulate", "write a synthetic series of the demo phantom with known truth", runSimulate},
 		{"roi", "statistics of maps inside regions (spheres or a label image)", runROI},

@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
@@ -112,6 +113,9 @@ func (d driftFlag) Set(s string) error {
 }
 
 type simArgs struct {
+	format               string
+	enhanced             bool
+	tilt                 float64
 	drift                driftFlag
 	scanner, date, clock string
 	kind, out            string
@@ -146,6 +150,9 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	fs.Uint64Var(&a.seed, "seed", 1, "noise seed")
 	fs.IntVar(&a.matrix, "matrix", 96, "in-plane matrix (2.5 mm voxels)")
 	fs.IntVar(&a.slices, "slices", 3, "number of 5 mm slices")
+	fs.StringVar(&a.format, "format", "nifti", "nifti (NIfTI + BIDS sidecar) or dicom (a classic MR series, one file per slice and volume)")
+	fs.BoolVar(&a.enhanced, "enhanced", false, "with --format dicom: one Enhanced MR multi-frame file")
+	fs.Float64Var(&a.tilt, "tilt", 0, "tilt the slices about the scanner x axis by this many degrees (oblique)")
 	fs.StringVar(&a.scanner, "scanner", "TVX-SIM1", "station name written to the sidecar (invented)")
 	fs.StringVar(&a.date, "date", "", "acquisition date YYYY-MM-DD written to the sidecar")
 	fs.StringVar(&a.clock, "time", "09:00", "acquisition time HH:MM (with --date)")
@@ -165,7 +172,7 @@ func (a *simArgs) scene() *phantom.Scene {
 	}
 	return &phantom.Scene{Def: phantom.Demo(), Field: a.field, Temperature: a.temp, Center: a.center.v,
 		Rotation: a.rotation, Mirror: a.mirror, Matrix: a.matrix, Slices: a.slices, Sigma: sigma,
-		B1: a.b1, Efficiency: a.ineff, Seed: a.seed, Shift: a.drift}
+		B1: a.b1, Efficiency: a.ineff, Seed: a.seed, Shift: a.drift, Tilt: a.tilt}
 }
 
 func runSimulate(_ context.Context, args []string, e *env) error {
@@ -182,6 +189,15 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 	}
 	if !(a.sigma >= 0) || !(a.field > 0) || !(a.b1 > 0) {
 		return fmt.Errorf("--sigma must be ≥ 0, --field and --b1 positive")
+	}
+	if a.format != "nifti" && a.format != "dicom" {
+		return fmt.Errorf("--format must be nifti or dicom")
+	}
+	if a.enhanced && a.format != "dicom" {
+		return fmt.Errorf("--enhanced needs --format dicom")
+	}
+	if math.Abs(a.tilt) >= 60 {
+		return fmt.Errorf("--tilt must be below 60°")
 	}
 	st, err := mapset.NewStage(a.out, a.force)
 	if err != nil {
@@ -270,17 +286,31 @@ func simulateInto(st pather, a *simArgs) ([]string, error) {
 		"SimulatedB1":           a.b1,
 		"SimulatedSuggestModel": k.model,
 	}
+	var when time.Time
 	if a.date != "" {
 		t, err := time.Parse("2006-01-02 15:04", a.date+" "+a.clock)
 		if err != nil {
 			return nil, fmt.Errorf("--date/--time: want YYYY-MM-DD and HH:MM")
 		}
+		when = t
 		extra["AcquisitionDateTime"] = t.Format("2006-01-02T15:04:05")
 	}
-	if err := series.Write(st.Path(name), im, extra); err != nil {
-		return nil, err
+	var files []string
+	if a.format == "dicom" {
+		seq := map[fit.Sequence]string{fit.SeqSpinEcho: "SE", fit.SeqGradientEcho: "GR", fit.SeqInversionRecovery: "IR", fit.SeqSaturationRecovery: "SE"}[k.seq]
+		opt := &dicom.WriteOptions{Enhanced: a.enhanced, Description: im.Source.Description, SeriesNumber: 1 + len(kinds),
+			Sequence: seq, Manufacturer: "tauvox simulator", StationName: im.Source.Scanner, FieldStrength: a.field,
+			PhantomName: "TAUVOX^DEMO", AcquiredAt: when}
+		if err := dicom.WriteSeries(st.Path(k.name), im, opt); err != nil {
+			return nil, err
+		}
+		files = append(files, k.name+"/")
+	} else {
+		if err := series.Write(st.Path(name), im, extra); err != nil {
+			return nil, err
+		}
+		files = append(files, name, strings.TrimSuffix(name, ".nii.gz")+".json")
 	}
-	files := []string{name, strings.TrimSuffix(name, ".nii.gz") + ".json"}
 	qs := []string{"T1", "T2", "PD"}
 	if k.name == "t2star" {
 		qs = append(qs, "T2star")

@@ -579,3 +579,17 @@ func (c *Catalog) Load(id string) (*volume.Image, error) {
 	}
 	return LoadSeries(s)
 }
+
+// Paths returns the files the series is read from, sorted, each once.
+func (s *Series) Paths() []string {
+	seen := map[string]bool{}
+	var out []string
+	for _, f := range s.frames {
+		if p := f.file.raw.path; !seen[p] {
+			seen[p] = true
+			out = append(out, p)
+		}
+	}
+	sort.Strings(out)
+	return out
+}

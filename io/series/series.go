@@ -10,16 +10,20 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
 // Overrides are acquisition parameters given by the user (ms, degrees).
-// A nil list keeps what the sidecar says; a list of one value applies to
-// every volume; otherwise a list needs one value per volume.
+// A nil list keeps what the sidecar or the DICOM headers say; a list of
+// one value applies to every volume; otherwise a list needs one value per
+// volume. Series chooses a DICOM series by its ID (see tauvox scan) when
+// the path holds several.
 type Overrides struct {
 	TE, TI, TR, FA []float64
+	Series         string
 }
 
 // Input describes one file read to make a series.
@@ -28,16 +32,39 @@ type Input struct {
 	Role string // "series", "sidecar"
 }
 
-// Load reads the series at path. For a NIfTI file the sidecar beside it
-// (same name, .json) is read when present; o then replaces any parameter
-// it lists. It returns the image and the files read.
+// IsNIfTI reports whether a path names a NIfTI file by its extension.
+func IsNIfTI(path string) bool {
+	for _, ext := range []string{".nii", ".nii.gz", ".hdr", ".img"} {
+		if strings.HasSuffix(strings.ToLower(path), ext) {
+			return true
+		}
+	}
+	return false
+}
+
+// Load reads the series at path: a NIfTI file (with the sidecar beside it,
+// same name .json, when present), or a DICOM folder or file (a folder is
+// searched recursively; with several series o.Series chooses one). o then
+// replaces any parameter it lists. It returns the image and the files read.
 func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
 	st, err := os.Stat(path)
 	if err != nil {
 		return nil, nil, err
 	}
-	if st.IsDir() {
-		return nil, nil, fmt.Errorf("%s: is a folder; reading DICOM folders is not available yet, give a NIfTI file", path)
+	if st.IsDir() || !IsNIfTI(path) {
+		im, inputs, err := loadDICOM(path, o)
+		if err != nil {
+			return nil, nil, err
+		}
+		if o != nil {
+			if err := apply(im, o, path); err != nil {
+				return nil, nil, err
+			}
+		}
+		return im, inputs, nil
+	}
+	if o != nil && o.Series != "" {
+		return nil, nil, fmt.Errorf("%s: --series applies to DICOM folders, not to a NIfTI file", path)
 	}
 	im, err := nifti.Read(path)
 	if err != nil {
@@ -71,6 +98,67 @@ func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
 		if err := apply(im, o, path); err != nil {
 			return nil, nil, err
 		}
+	}
+	return im, inputs, nil
+}
+
+// loadDICOM scans a DICOM folder or file and loads one series.
+func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
+	cat, err := dicom.Scan([]string{path}, nil)
+	if err != nil {
+		return nil, nil, err
+	}
+	var s *dicom.Series
+	if o != nil && o.Series != "" {
+		if s, err = cat.Lookup(o.Series); err != nil {
+			return nil, nil, fmt.Errorf("%s: %v", path, err)
+		}
+	} else {
+		// Candidates: loadable series of at least two volumes (a lone image
+		// split off a series is not a relaxation series).
+		var ok []*dicom.Series
+		var broken *dicom.Series
+		for _, x := range cat.Series {
+			switch {
+			case x.Problem == "" && x.Volumes >= 2:
+				ok = append(ok, x)
+			case x.Problem != "" && (broken == nil || x.Files > broken.Files):
+				broken = x
+			}
+		}
+		switch {
+		case len(ok) == 1:
+			s = ok[0]
+		case len(ok) > 1:
+			var ids []string
+			for _, x := range ok {
+				ids = append(ids, x.ID)
+			}
+			return nil, nil, fmt.Errorf("%s: holds %d series (%s); choose one with --series (see tauvox scan)", path, len(ok), strings.Join(ids, ", "))
+		case broken != nil:
+			also := ""
+			for _, p := range cat.Problems {
+				if !strings.Contains(p.String(), broken.Problem) && p.Path != path {
+					also = " (also: " + p.String() + ")"
+					break
+				}
+			}
+			return nil, nil, fmt.Errorf("%s: series %s cannot be loaded: %s%s", path, broken.ID, broken.Problem, also)
+		case len(cat.Series) > 0:
+			return nil, nil, fmt.Errorf("%s: no series with more than one volume (series %s has %d)", path, cat.Series[0].ID, cat.Series[0].Volumes)
+		case len(cat.Problems) > 0:
+			return nil, nil, fmt.Errorf("%s: no readable DICOM series (%d problems; first: %s)", path, len(cat.Problems), cat.Problems[0].String())
+		default:
+			return nil, nil, fmt.Errorf("%s: no DICOM series found (%d other files skipped)", path, cat.Skipped)
+		}
+	}
+	im, err := dicom.LoadSeries(s)
+	if err != nil {
+		return nil, nil, err
+	}
+	var inputs []Input
+	for _, p := range s.Paths() {
+		inputs = append(inputs, Input{Path: p, Role: "dicom"})
 	}
 	return im, inputs, nil
 }

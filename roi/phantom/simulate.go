@@ -34,6 +34,9 @@ type Scene struct {
 	Shift map[string]float64
 	// R2prime is the extra dephasing rate for T2*, 1/s; default 15.
 	R2prime float64
+	// Tilt turns the slice grid about the scanner x axis by this many
+	// degrees (an oblique acquisition); the phantom stays upright.
+	Tilt float64
 }
 
 func (s *Scene) defaults() Scene {
@@ -88,6 +91,11 @@ func (s *Scene) Affine() volume.Affine {
 	a[0][3] = c.Voxel * (n - 1) / 2
 	a[1][3] = -c.Voxel * (n - 1) / 2
 	a[2][3] = -c.Thickness * float64(c.Slices-1) / 2
+	if c.Tilt != 0 {
+		th := c.Tilt * math.Pi / 180
+		r := volume.Affine{{1, 0, 0, 0}, {0, math.Cos(th), -math.Sin(th), 0}, {0, math.Sin(th), math.Cos(th), 0}, {0, 0, 0, 1}}
+		a = r.Mul(&a)
+	}
 	return a
 }
 

@@ -1,0 +1,230 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"text/tabwriter"
+
+	"github.com/tauvox/tauvox/io/dicom"
+	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/io/sidecar"
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// scanEntry is one series found by scan.
+type scanEntry struct {
+	ID          string    `json:"id"`
+	Format      string    `json:"format"`
+	Path        string    `json:"path,omitempty"`
+	Description string    `json:"description"`
+	Varying     string    `json:"varying"`
+	Values      []float64 `json:"values"`
+	Matrix      [2]int    `json:"matrix"`
+	Slices      int       `json:"slices"`
+	Volumes     int       `json:"volumes"`
+	Model       string    `json:"model"`
+	Problem     string    `json:"problem,omitempty"`
+	Notes       []string  `json:"notes,omitempty"`
+	Scanner     string    `json:"scanner,omitempty"`
+	Acquired    string    `json:"acquired,omitempty"`
+	Field       *float64  `json:"field_T,omitempty"`
+}
+
+type scanResult struct {
+	Series     []scanEntry     `json:"series"`
+	Files      int             `json:"dicom_files"`
+	Skipped    int             `json:"skipped_files"`
+	Unreadable int             `json:"unreadable_files"`
+	Ignored    int             `json:"ignored"`
+	Problems   []dicom.Problem `json:"problems"`
+}
+
+func runScan(_ context.Context, args []string, e *env) error {
+	var asJSON, localizers, derived bool
+	fs := newFlags("scan", "PATH... [--json]",
+		`Finds every series under the paths — DICOM files recognised by content in
+folders searched recursively, and NIfTI files with their BIDS sidecars — and
+prints one row per series: id, description, what varies (TE, TI, flip angle,
+TR) and its values, matrix, slices, volumes and a suggested model. Give the id
+to 'tauvox fit PATH --series ID'. Files that cannot be read are listed with the
+reason; the scan goes on with the rest.`, e)
+	fs.BoolVar(&asJSON, "json", false, "machine-readable output")
+	fs.BoolVar(&localizers, "localizers", false, "include localizer images")
+	fs.BoolVar(&derived, "derived", false, "include derived images")
+	var pos []string
+	if err := parse(fs, args, &pos); err != nil {
+		return err
+	}
+	if len(pos) == 0 {
+		return errors.New("give at least one file or folder (see --help)")
+	}
+	for _, p := range pos {
+		if _, err := os.Stat(p); err != nil {
+			return err
+		}
+	}
+	cat, err := dicom.Scan(pos, &dicom.ScanOptions{Localizers: localizers, Derived: derived})
+	if err != nil {
+		return err
+	}
+	res := scanResult{Files: cat.Files, Skipped: cat.Skipped, Unreadable: cat.Unreadable, Ignored: cat.Ignored, Problems: cat.Problems}
+	for _, s := range cat.Series {
+		en := scanEntry{ID: s.ID, Format: "dicom", Description: s.Description, Varying: s.Varying, Values: s.Values,
+			Matrix: [2]int{s.Columns, s.Rows}, Slices: s.Slices, Volumes: s.Volumes, Model: s.Model, Problem: s.Problem,
+			Notes: s.Notes, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt}
+		if f := s.Source.FieldStrength; f > 0 {
+			en.Field = &f
+		}
+		res.Series = append(res.Series, en)
+	}
+	nii := niftiEntries(pos)
+	res.Series = append(res.Series, nii...)
+	res.Skipped -= len(nii) // NIfTI files are not "other files"
+	if res.Skipped < 0 {
+		res.Skipped = 0
+	}
+	if asJSON {
+		b, _ := json.MarshalIndent(res, "", "  ")
+		fmt.Fprintln(e.stdout, string(b))
+		return nil
+	}
+	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', 0)
+	fmt.Fprintln(tw, "id\tdescription\tvaries\tvalues\tmatrix\tslices\tvolumes\tmodel\t")
+	for _, s := range res.Series {
+		model := s.Model
+		if s.Problem != "" {
+			model = "(cannot load: " + oneLine(s.Problem) + ")"
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(oneLine(s.Description), 40), s.Varying, valueList(s.Values),
+			s.Matrix[0], s.Matrix[1], s.Slices, s.Volumes, model)
+	}
+	tw.Flush()
+	fmt.Fprintf(e.stdout, "%d series; %d DICOM files, %d other files skipped, %d unreadable, %d localizer/derived left out\n",
+		len(res.Series), res.Files, res.Skipped, res.Unreadable, res.Ignored)
+	for _, p := range res.Problems {
+		fmt.Fprintln(e.stdout, "  problem: "+oneLine(p.String()))
+	}
+	return nil
+}
+
+func clip(s string, n int) string {
+	r := []rune(s)
+	if len(r) > n {
+		return string(r[:n-1]) + "…"
+	}
+	return s
+}
+
+func valueList(v []float64) string {
+	if len(v) == 0 {
+		return "-"
+	}
+	var parts []string
+	for i, x := range v {
+		if len(v) > 8 && i == 3 {
+			parts = append(parts, "…")
+			i = len(v) - 2
+			parts = append(parts, fmt.Sprintf("%g", v[len(v)-2]), fmt.Sprintf("%g", v[len(v)-1]))
+			break
+		}
+		parts = append(parts, fmt.Sprintf("%g", x))
+	}
+	return strings.Join(parts, ",")
+}
+
+// niftiEntries lists the NIfTI series under the paths (headers and
+// sidecars only).
+func niftiEntries(paths []string) []scanEntry {
+	var out []scanEntry
+	visit := func(p string) {
+		if !series.IsNIfTI(p) || strings.HasSuffix(p, ".img") {
+			return
+		}
+		h, err := nifti.ReadHeader(p)
+		en := scanEntry{ID: p, Format: "nifti", Path: p, Description: filepath.Base(p)}
+		if err != nil {
+			en.Problem = err.Error()
+			out = append(out, en)
+			return
+		}
+		d := h.Dims()
+		en.Matrix, en.Slices, en.Volumes = [2]int{d[0], d[1]}, d[2], d[3]
+		if en.Volumes < 2 {
+			return // a map, not a series
+		}
+		if sc, ok := sidecar.ForImage(p); ok {
+			s, err := sidecar.Read(sc)
+			if err != nil {
+				en.Problem = err.Error()
+			} else if acq, err := s.Acquisitions(en.Volumes); err != nil {
+				en.Problem = err.Error()
+			} else {
+				en.Varying, en.Values, en.Model = varying(acq)
+				if s.SeriesDescription != "" {
+					en.Description = s.SeriesDescription
+				}
+			}
+		} else {
+			en.Notes = []string{"no sidecar: give --te/--ti/--tr/--fa to fit"}
+		}
+		out = append(out, en)
+	}
+	for _, root := range paths {
+		filepath.WalkDir(root, func(p string, d fs.DirEntry, err error) error {
+			if err == nil && !d.IsDir() {
+				visit(p)
+			}
+			return nil
+		})
+	}
+	return out
+}
+
+// varying finds the parameter that varies across volumes and suggests a
+// model (the same rule as the DICOM classification).
+func varying(acq []volume.Acquisition) (string, []float64, string) {
+	type param struct {
+		name, model string
+		get         func(volume.Acquisition) float64
+	}
+	for _, p := range []param{
+		{"InversionTime", "t1-ir", func(a volume.Acquisition) float64 { return a.InversionTime }},
+		{"FlipAngle", "t1-vfa", func(a volume.Acquisition) float64 { return a.FlipAngle }},
+		{"EchoTime", "t2", func(a volume.Acquisition) float64 { return a.EchoTime }},
+		{"RepetitionTime", "t1-sr", func(a volume.Acquisition) float64 { return a.RepetitionTime }},
+	} {
+		seen := map[float64]bool{}
+		var vals []float64
+		for _, a := range acq {
+			v := p.get(a)
+			if math.IsNaN(v) {
+				continue
+			}
+			if !seen[v] {
+				seen[v] = true
+				vals = append(vals, v)
+			}
+		}
+		if len(vals) > 1 {
+			sortFloats(vals)
+			return p.name, vals, p.model
+		}
+	}
+	return "", nil, ""
+}
+
+func sortFloats(v []float64) {
+	for i := 1; i < len(v); i++ {
+		for j := i; j > 0 && v[j] < v[j-1]; j-- {
+			v[j], v[j-1] = v[j-1], v[j]
+		}
+	}
+}
