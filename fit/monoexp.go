@@ -17,6 +17,7 @@ const (
 	NLLS      Method = "nlls"      // nonlinear least squares (Levenberg–Marquardt)
 	Linear    Method = "linear"    // closed-form linearisation (DESPOT1 for VFA)
 	RDNLS     Method = "rdnls"     // reduced-dimension search + polish (IR)
+	ARLO      Method = "arlo"      // auto-regression on linear operations (Pei et al. 2015)
 )
 
 // Solver selects the numerical engine of a nonlinear method.
@@ -45,7 +46,22 @@ const (
 type MonoExp struct {
 	// Star selects T2* naming (T2starmap, R2starmap) instead of T2.
 	Star bool
-	// Estimator is LogLinear or NLLS; the zero value means NLLS.
+	// Estimator is LogLinear, NLLS or ARLO; the zero value means NLLS.
+	//
+	// ARLO (Pei et al. 2015, MRM 73:843), offered for T2* (Star) only,
+	// needs at least 3 evenly spaced echoes. By Simpson's rule over two echo spacings Δ,
+	//
+	//	∫ S dt from TE_{i−2} to TE_i = T·(S_{i−2} − S_i)
+	//	                             ≈ (Δ/3)·(S_{i−2} + 4·S_{i−1} + S_i),
+	//
+	// so with x_i the right-hand side and d_i = S_{i−2} − S_i the
+	// least-squares estimate is T = Σx_i·d_i / Σd_i² (the simple-LS form
+	// of check-values §1.1; Pei et al. weight it differently). M0 then
+	// follows by linear least squares given T, and the standard errors
+	// from the Jacobian of the mono-exponential at (M0, T), as for NLLS.
+	// It is closed form (no iterations) and, like Simpson's rule, biased
+	// by a small amount that grows with Δ/T (check-values §2.3: 10.0034
+	// for T = 10 ms, Δ = 5 ms).
 	Estimator Method
 	// Offset adds the constant c (NLLS only).
 	Offset bool
@@ -113,10 +129,10 @@ func (m *MonoExp) Outputs() []Param {
 	return out
 }
 
-// MinPoints is 2, or 3 with an offset (one more sample than parameters is
+// MinPoints is 2, or 3 with an offset or with ARLO (one more sample than parameters is
 // needed for a standard error; with exactly as many, SE is NaN).
 func (m *MonoExp) MinPoints() int {
-	if m.Offset {
+	if m.Offset || m.method() == ARLO {
 		return 3
 	}
 	return 2
@@ -160,8 +176,22 @@ func (m *MonoExp) NewFitter(acq []volume.Acquisition) (Fitter, error) {
 			return nil, fmt.Errorf("%w: the log-linear method cannot fit an offset; use nlls", ErrProtocol)
 		}
 	case NLLS:
+	case ARLO:
+		if !m.Star {
+			return nil, fmt.Errorf("%w: model %s has no method %q (loglinear, nlls)", ErrProtocol, m.Name(), meth)
+		}
+		if m.Sigma > 0 || m.Offset {
+			return nil, fmt.Errorf("%w: the arlo method fits neither an offset nor the Rician noise floor; use nlls", ErrProtocol)
+		}
+		if _, even := evenSpacing(te); !even {
+			return nil, fmt.Errorf("%w: the arlo method needs evenly spaced echo times", ErrProtocol)
+		}
 	default:
-		return nil, fmt.Errorf("%w: model %s has no method %q (loglinear, nlls)", ErrProtocol, m.Name(), meth)
+		methods := "loglinear, nlls"
+		if m.Star {
+			methods += ", arlo"
+		}
+		return nil, fmt.Errorf("%w: model %s has no method %q (%s)", ErrProtocol, m.Name(), meth, methods)
 	}
 	lo, hi := m.bounds()
 	np := 2
@@ -334,6 +364,10 @@ func logLinear(te, y []float64) (m0, r, seR, seM0 float64, used int, ok bool) {
 }
 
 func (f *monoExpFitter) Fit(dst *Result, y []float64, _ Covariates) {
+	if f.m.method() == ARLO {
+		f.arlo(dst, y)
+		return
+	}
 	m0, r, seR, seM0, used, ok := logLinear(f.te, y)
 	if used < f.m.MinPoints() && f.m.method() == LogLinear {
 		dst.fail(TooFewPoints)
@@ -423,4 +457,55 @@ func (f *monoExpFitter) write(dst *Result, m0, r, off, seM0, seR, seOff float64,
 	dst.R2 = rsquared(y, rss)
 	dst.Iter = iters
 	dst.Status = OK
+}
+
+// arlo fits by auto-regression on linear operations (see
+// MonoExp.Estimator): T = Σx_i·d_i/Σd_i², then M0 = Σy·e/Σe² with
+// e = exp(−TE/T), and the standard errors of (M0, R) from the 2×2 normal
+// matrix of the mono-exponential at the solution.
+func (f *monoExpFitter) arlo(dst *Result, y []float64) {
+	step := f.curve.step
+	var sxd, sdd float64
+	for i := 2; i < len(y); i++ {
+		x := step / 3 * (y[i-2] + 4*y[i-1] + y[i])
+		d := y[i-2] - y[i]
+		sxd += x * d
+		sdd += d * d
+	}
+	t := sxd / sdd
+	if !(sdd > 0) || !finite(t) {
+		dst.fail(NotConverged)
+		return
+	}
+	if !(t > 0) {
+		dst.fail(OutOfBounds)
+		return
+	}
+	r := 1 / t
+	f.curve.decay(r)
+	var sye, see float64
+	for i, e := range f.curve.ex {
+		sye += y[i] * e
+		see += e * e
+	}
+	if !(see > 0) {
+		dst.fail(NotConverged)
+		return
+	}
+	m0 := sye / see
+	var rss, a11, a12, a22 float64
+	for i, e := range f.curve.ex {
+		d := y[i] - m0*e
+		j2 := -m0 * f.te[i] * e
+		rss += d * d
+		a11 += e * e
+		a12 += e * j2
+		a22 += j2 * j2
+	}
+	seM0, seR := math.NaN(), math.NaN()
+	if det := a11*a22 - a12*a12; len(y) > 2 && det > 0 {
+		s2 := rss / float64(len(y)-2)
+		seM0, seR = math.Sqrt(s2*a22/det), math.Sqrt(s2*a11/det)
+	}
+	f.write(dst, m0, r, 0, seM0, seR, 0, y, rss, 0)
 }
