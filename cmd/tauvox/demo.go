@@ -114,7 +114,7 @@ verdict table and the drift table.`, e)
 	if err != nil {
 		return err
 	}
-	violated, err := writeCharts(a.out, ss)
+	violated, err := writeCharts(a.out, ss, a.settings(), "history.db")
 	if err != nil {
 		return err
 	}

@@ -73,8 +73,8 @@ func (l *listFlag) list() []float64 {
 
 type fitArgs struct {
 	series, out, model, method, maskFile, b1File, noise, cpuprofile, seriesID string
-	force, offset, efficiency, noMask, quiet, gonum                           bool
-	threshold, sigma, minT, maxT                                              float64
+	force, offset, efficiency, noMask, quiet, gonum, epgBasis                 bool
+	threshold, sigma, minT, maxT, t1, refocus, window                         float64
 	skip, workers                                                             int
 	te, ti, tr, fa                                                            listFlag
 }
@@ -103,11 +103,23 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&a.efficiency, "efficiency", false, "t1-sr: fit the saturation efficiency")
 	fs.Float64Var(&a.minT, "min", 0, "lower bound of the time constant, ms (default per model)")
 	fs.Float64Var(&a.maxT, "max", 0, "upper bound of the time constant, ms (default per model)")
+	fs.Float64Var(&a.t1, "t1", 0, "t2-epg, t2-spectrum --epg-basis: the fixed T1, ms (default 1000)")
+	fs.Float64Var(&a.refocus, "refocus", 0, "t2-epg: nominal refocusing angle, degrees (default 180)")
+	fs.Float64Var(&a.window, "window", 0, "t2-spectrum: upper T2 of the short (myelin-water) window, ms (default 40)")
+	fs.BoolVar(&a.epgBasis, "epg-basis", false, "t2-spectrum: EPG basis functions with a fitted refocusing angle")
 	fs.BoolVar(&a.gonum, "gonum", false, "use gonum's optimiser for nonlinear fits (slow cross-check)")
 	fs.BoolVar(&a.quiet, "quiet", false, "no progress bar or summary")
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
+		if errors.Is(err, errHelp) && a.model != "" {
+			for _, m := range fit.Models() {
+				if m.Name == a.model {
+					fmt.Fprintf(e.stdout, "\nModel %s: %s\nmethods: %s (default %s); needs %s per volume\n\n%s\n", m.Name, m.Summary,
+						strings.Join(m.Methods, ", "), m.Methods[0], m.Needs, m.Help)
+				}
+			}
+		}
 		return err
 	}
 	switch {
@@ -151,7 +163,8 @@ func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 	if im, err = series.SkipEchoes(im, a.skip); err != nil {
 		return fmt.Errorf("%s: --skip-echoes: %v", a.series, err)
 	}
-	spec := fit.Spec{Model: a.model, Method: a.method, Offset: a.offset, Efficiency: a.efficiency, MinT: a.minT, MaxT: a.maxT, Gonum: a.gonum}
+	spec := fit.Spec{Model: a.model, Method: a.method, Offset: a.offset, Efficiency: a.efficiency, MinT: a.minT, MaxT: a.maxT, Gonum: a.gonum,
+		T1Fixed: a.t1, RefocusAngle: a.refocus, Window: a.window, EPGBasis: a.epgBasis}
 	if a.sigma > 0 && a.noise != "rician" {
 		return fmt.Errorf("--sigma needs --noise rician")
 	}
@@ -164,8 +177,8 @@ func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 		opt.Mask = mask
 	}
 	if a.b1File != "" {
-		if a.model != "t1-vfa" {
-			return fmt.Errorf("--b1 applies to t1-vfa only")
+		if a.model != "t1-vfa" && a.model != "t2-epg" {
+			return fmt.Errorf("--b1 applies to t1-vfa and t2-epg only")
 		}
 		b1, err := readB1(a.b1File, im)
 		if err != nil {
@@ -229,7 +242,8 @@ func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 		"model": model.Name(), "method": model.Method(), "offset": a.offset, "noise": a.noise,
 		"skip_echoes": a.skip, "workers": workers, "threshold": a.threshold, "no_mask": a.noMask,
 		"mask": a.maskFile, "b1": a.b1File, "efficiency": a.efficiency, "min_ms": a.minT, "max_ms": a.maxT,
-		"solver": map[bool]string{false: "dedicated", true: "gonum"}[a.gonum],
+		"solver":      map[bool]string{false: "dedicated", true: "gonum"}[a.gonum],
+		"t1_fixed_ms": a.t1, "refocus_deg": a.refocus, "window_ms": a.window, "epg_basis": a.epgBasis,
 	}
 	if spec.Sigma > 0 {
 		settings["sigma"] = spec.Sigma

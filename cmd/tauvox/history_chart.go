@@ -5,7 +5,11 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"path/filepath"
 	"time"
+
+	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/io/report"
 
 	"github.com/tauvox/tauvox/roi/history"
 )
@@ -15,6 +19,7 @@ type chartArgs struct {
 	baseline                   int
 	minDrift                   float64
 	force                      bool
+	set                        *history.Settings
 }
 
 func chartFlags(a *chartArgs, e *env) *flag.FlagSet {
@@ -37,12 +42,19 @@ when any rule is violated.`, e)
 	return fs
 }
 
+func (a *chartArgs) settings() *history.Settings {
+	if a.set == nil {
+		a.set = &history.Settings{Baseline: history.Baseline{N: a.baseline}, MinDrift: a.minDrift}
+	}
+	return a.set
+}
+
 // analyseHistory reads the points and computes the statistics.
 func analyseHistory(ctx context.Context, a *chartArgs) ([]*history.Series, error) {
 	if a.baseline < 2 {
 		return nil, errors.New("--baseline must be at least 2 sessions")
 	}
-	set := &history.Settings{Baseline: history.Baseline{N: a.baseline}, MinDrift: a.minDrift}
+	set := a.settings()
 	if a.from != "" {
 		f, err := time.Parse("2006-01-02", a.from)
 		if err != nil {
@@ -85,19 +97,35 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
+	st, err := mapset.NewStage(a.out, a.force)
+	if err != nil {
+		return err
+	}
+	defer st.Abort()
+	violated, err := writeCharts(st.Path(""), ss, a.settings(), filepath.Base(a.db))
+	if err != nil {
+		return err
+	}
+	if err := st.Commit(); err != nil {
+		return err
+	}
 	driftTable(e, ss)
+	fmt.Fprintf(e.stdout, "wrote %s (index.html, drift.csv, charts)\n", a.out)
+	if violated {
+		return &exitError{code: 1, err: errors.New("rules violated: see " + filepath.Join(a.out, report.HistoryIndex))}
+	}
 	return nil
 }
 
-// writeCharts writes the charts, index.html and drift.csv of ss into dir
-// and reports whether any rule was violated.
-func writeCharts(dir string, ss []*history.Series) (bool, error) {
+// writeCharts writes the charts, index.html and drift.csv of ss into the
+// existing folder dir and reports whether any rule was violated.
+func writeCharts(dir string, ss []*history.Series, set *history.Settings, source string) (bool, error) {
 	if err := mkdirAll(dir); err != nil {
 		return false, err
 	}
-	violated := false
-	for _, s := range ss {
-		violated = violated || len(s.Violations) > 0
+	sum, err := report.WriteHistory(dir, ss, &report.HistoryOptions{Settings: set, Source: source, Tool: "tauvox " + version()})
+	if err != nil {
+		return false, err
 	}
-	return violated, nil
+	return sum.Violations, nil
 }

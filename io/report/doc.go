@@ -15,4 +15,8 @@
 // methods) goes through html/template and is escaped; nothing is built by
 // string concatenation. The file is written to a temporary name in the
 // target folder and renamed when complete.
+//
+// WriteHistory writes the stability pages of `tauvox history chart`: one
+// SVG control chart per scanner × vial × quantity, index.html (series
+// worst first, charts inline) and drift.csv.
 package report

@@ -1,0 +1,84 @@
+package main
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestHistoryCommands: add is idempotent, list and export show the
+// sessions, remove needs --yes, chart writes its files and exits 1 when a
+// rule is violated; bad inputs are one line with exit 2.
+func TestHistoryCommands(t *testing.T) {
+	dir := t.TempDir()
+	demo := filepath.Join(dir, "demo")
+	if code, _, stderr := tauvox(t, "demo", "--out", demo, "--sessions", "4"); code != 0 {
+		t.Fatal(stderr)
+	}
+	qas, _ := filepath.Glob(filepath.Join(demo, "session-*", "qa", "qa.json"))
+	if len(qas) != 4 {
+		t.Fatalf("%d qa.json files", len(qas))
+	}
+	db := filepath.Join(dir, "h.db")
+	code, stdout, stderr := tauvox(t, append([]string{"history", "add", "--db", db}, qas...)...)
+	if code != 0 || strings.Count(stdout, "recorded as session") != 4 {
+		t.Fatalf("add: %d %s %s", code, stdout, stderr)
+	}
+	code, stdout, _ = tauvox(t, "history", "add", "--db", db, qas[0])
+	if code != 0 || !strings.Contains(stdout, "already recorded") {
+		t.Errorf("second add: %d %s", code, stdout)
+	}
+	code, stdout, _ = tauvox(t, "history", "list", "--db", db)
+	if code != 0 || !strings.Contains(stdout, "4 sessions") || !strings.Contains(stdout, "HARBOUR-MR2") {
+		t.Errorf("list: %s", stdout)
+	}
+	code, stdout, _ = tauvox(t, "history", "export", "--db", db, "--csv")
+	if code != 0 || strings.Count(stdout, "\n") != 1+4*20 || !strings.HasPrefix(stdout, "session,scanner,acquired,") {
+		t.Errorf("export: %d lines", strings.Count(stdout, "\n"))
+	}
+	out := filepath.Join(dir, "charts")
+	code, stdout, stderr = tauvox(t, "history", "chart", "--db", db, "--out", out, "--baseline", "3")
+	if code != 0 && code != 1 {
+		t.Fatalf("chart: %d %s", code, stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "drift.csv"))
+	if err != nil || !strings.HasPrefix(string(b), "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations\n") {
+		t.Errorf("drift.csv: %v %q", err, b)
+	}
+	if _, err := os.Stat(filepath.Join(out, "index.html")); err != nil {
+		t.Error(err)
+	}
+	if (code == 1) != strings.Contains(stderr, "rules violated") {
+		t.Errorf("exit %d with %q", code, stderr)
+	}
+	if code, _, stderr := tauvox(t, "history", "remove", "--db", db, "--id", "2"); code != 2 || !strings.Contains(stderr, "--yes") {
+		t.Errorf("remove without --yes: %d %s", code, stderr)
+	}
+	if code, stdout, _ := tauvox(t, "history", "remove", "--db", db, "--id", "2", "--yes"); code != 0 || !strings.Contains(stdout, "removed session 2") {
+		t.Errorf("remove: %d %s", code, stdout)
+	}
+
+	bad := filepath.Join(dir, "bad.json")
+	os.WriteFile(bad, []byte(`{"format":"tauvox-qa/9"}`), 0o644)
+	corrupt := filepath.Join(dir, "corrupt.db")
+	os.WriteFile(corrupt, []byte(strings.Repeat("not sqlite at all ", 200)), 0o644)
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"history", "add", "--db", db, bad}, `format "tauvox-qa/9"`},
+		{[]string{"history", "add", "--db", corrupt, qas[0]}, "corrupt.db"},
+		{[]string{"history", "list", "--db", filepath.Join(dir, "none.db")}, "none.db"},
+		{[]string{"history", "chart", "--db", db}, "--db and --out are required"},
+		{[]string{"history", "frobnicate"}, `unknown history subcommand "frobnicate"`},
+	} {
+		code, _, stderr := tauvox(t, c.args...)
+		if code != 2 || !strings.Contains(stderr, c.want) || strings.Count(strings.TrimSpace(stderr), "\n") > 0 {
+			t.Errorf("%v: %d %q, want …%s", c.args, code, stderr, c.want)
+		}
+	}
+	if b, _ := os.ReadFile(corrupt); !strings.HasPrefix(string(b), "not sqlite") {
+		t.Error("corrupt database changed")
+	}
+}
