@@ -26,7 +26,7 @@ lint:
 # make bench: the engine and per-voxel benchmarks on two workers; results
 # and method in docs/benchmarks.md.
 bench:
-	$(GO) test -run '^$$' -bench . -benchtime $(BENCHTIME) -benchmem ./fit/ ./io/nifti/
+	$(GO) test -run '^$$' -bench . -benchtime $(BENCHTIME) -benchmem ./fit/ ./io/nifti/ ./io/dicom/
 
 # make demo: simulate the invented demo phantom, fit T2 and T1, print the
 # per-vial results.
@@ -37,6 +37,7 @@ FUZZTIME ?= 30s
 fuzz:
 	$(GO) test -run '^$$' -fuzz '^FuzzDecode$$' -fuzztime $(FUZZTIME) ./io/nifti/
 	$(GO) test -run '^$$' -fuzz '^FuzzRead$$' -fuzztime $(FUZZTIME) ./io/sidecar/
+	$(GO) test -run '^$$' -fuzz '^FuzzReadHeader$$' -fuzztime $(FUZZTIME) ./io/dicom/
 
 clean:
 	rm -rf bin out
