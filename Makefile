@@ -4,7 +4,7 @@ BIN     := bin/tauvox
 PKGS    := ./...
 BENCHTIME ?= 2s
 
-.PHONY: all build test lint vet bench demo fuzz clean
+.PHONY: all build test lint vet bench bench-peers bench-memory demo fuzz clean
 
 all: build
 
@@ -28,16 +28,45 @@ lint:
 bench:
 	$(GO) test -run '^$$' -bench . -benchtime $(BENCHTIME) -benchmem ./fit/ ./io/nifti/ ./io/dicom/
 
+# make bench-peers: tauvox against a scipy curve_fit voxel loop and a numpy
+# log-linear script on the same generated files (needs Debian python3-numpy,
+# python3-scipy, python3-nibabel); results in docs/benchmarks.md.
+bench-peers: build
+	/usr/bin/python3 testdata/gen/peers_bench.py --tauvox $(BIN)
+
+# make bench-memory: peak RSS of tauvox fit on a 256x256x40x16 series and on
+# a generated 512x512x280x32 float32 series (9.4 GB; needs about 12 GB free
+# in MEMDIR, removed afterwards). Slow: run it once.
+MEMDIR ?= /tmp
+bench-memory: build
+	/usr/bin/python3 testdata/gen/memory_bench.py --tauvox $(BIN) --dir $(MEMDIR)
+
 # make demo: simulate the invented demo phantom, fit T2 and T1, print the
 # per-vial results.
 demo: build
 	$(BIN) demo --out out/demo --force
 
+# make fuzz: every parser's fuzz target in turn for FUZZTIME each (CI: 10s;
+# the 10-minute runs and their execution counts are in docs/robustness.md).
+# FUZZPARALLEL workers per target (default: one per CPU).
 FUZZTIME ?= 30s
+FUZZPARALLEL ?= 0
+FUZZ_TARGETS := \
+	./io/nifti/:FuzzDecode \
+	./io/nifti/:FuzzDecodeGzip \
+	./io/sidecar/:FuzzRead \
+	./io/dicom/:FuzzReadHeader \
+	./io/dicom/:FuzzSeries \
+	./roi/:FuzzParseList \
+	./roi/phantom/:FuzzParse \
+	./roi/history/:FuzzParseQA
 fuzz:
-	$(GO) test -run '^$$' -fuzz '^FuzzDecode$$' -fuzztime $(FUZZTIME) ./io/nifti/
-	$(GO) test -run '^$$' -fuzz '^FuzzRead$$' -fuzztime $(FUZZTIME) ./io/sidecar/
-	$(GO) test -run '^$$' -fuzz '^FuzzReadHeader$$' -fuzztime $(FUZZTIME) ./io/dicom/
+	@set -e; for t in $(FUZZ_TARGETS); do \
+		pkg=$${t%%:*}; fn=$${t##*:}; \
+		echo "fuzz $$fn ($$pkg) for $(FUZZTIME)"; \
+		par=""; if [ "$(FUZZPARALLEL)" != "0" ]; then par="-parallel $(FUZZPARALLEL)"; fi; \
+		$(GO) test -run '^$$' -fuzz "^$$fn\$$" -fuzztime $(FUZZTIME) $$par $$pkg; \
+	done
 
 clean:
 	rm -rf bin out

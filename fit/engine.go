@@ -59,6 +59,16 @@ const maxSubsetFitters = 32
 // cannot be fitted is never an error. The maps do not depend on
 // opt.Workers.
 func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, error) {
+	return RunTo(ctx, nil, im, m, opt)
+}
+
+// RunTo is Run writing into dst, whose slices are reused when long enough
+// (nil dst allocates, as Run does). It returns dst. Fitting a series slab
+// by slab (ranges of slices, see SlabPlan) with RunTo and the threshold of
+// the whole series (PeakHistogram) gives the same values, bit for bit, as
+// one Run over the whole series: a voxel's fit depends only on its own
+// samples, the threshold and its mask and B1 entries.
+func RunTo(ctx context.Context, dst *Maps, im *volume.Image, m Model, opt *Options) (*Maps, error) {
 	if opt == nil {
 		opt = &Options{}
 	}
@@ -91,16 +101,8 @@ func Run(ctx context.Context, im *volume.Image, m Model, opt *Options) (*Maps, e
 	if thr <= 0 && opt.Mask == nil && !opt.NoThreshold {
 		thr = AutoThreshold(im)
 	}
-	outs := m.Outputs()
-	maps := &Maps{Outputs: outs, Threshold: thr}
-	maps.Values = make([][]float32, len(outs))
-	maps.SE = make([][]float32, len(outs))
-	for k := range outs {
-		maps.Values[k] = make([]float32, nv)
-		maps.SE[k] = make([]float32, nv)
-	}
-	maps.R2 = make([]float32, nv)
-	maps.Status = make([]uint8, nv)
+	maps := dst.reset(m.Outputs(), nv)
+	maps.Threshold = thr
 
 	var next, done atomic.Int64
 	var progMu sync.Mutex
@@ -287,4 +289,221 @@ func (wk *worker) store(v int, maps *Maps) {
 	maps.R2[v] = float32(res.R2)
 	maps.Status[v] = uint8(res.Status)
 	wk.counts[res.Status]++
+}
+
+// reset sizes m (allocated when nil) for nv voxels and outs, reusing its
+// slices when they are long enough, and clears the counts.
+func (m *Maps) reset(outs []Param, nv int) *Maps {
+	if m == nil {
+		m = &Maps{}
+	}
+	grow := func(s []float32) []float32 {
+		if cap(s) < nv {
+			return make([]float32, nv)
+		}
+		return s[:nv]
+	}
+	m.Outputs = outs
+	if len(m.Values) != len(outs) {
+		m.Values = make([][]float32, len(outs))
+		m.SE = make([][]float32, len(outs))
+	}
+	for k := range outs {
+		m.Values[k] = grow(m.Values[k])
+		m.SE[k] = grow(m.SE[k])
+	}
+	m.R2 = grow(m.R2)
+	if cap(m.Status) < nv {
+		m.Status = make([]uint8, nv)
+	}
+	m.Status = m.Status[:nv]
+	m.Counts = [NumStatus]int{}
+	m.Threshold = 0
+	return m
+}
+
+// SlabPlan divides the slices of a series into slabs whose samples and
+// maps fit a memory budget. Slabs[i] is the first slice of slab i;
+// Slabs[len−1] is Nz.
+type SlabPlan struct {
+	Slabs []int
+	// Slices is the number of slices per slab (the last may hold fewer).
+	Slices int
+}
+
+// SlabBytesPerSlice returns the memory one slice costs while it is fitted:
+// its nt float32 samples, the float32 value and standard-error maps of
+// nout outputs, R², the status byte, the status as float32 for writing and
+// the per-voxel peak of the threshold pass (4·nt + 8·nout + 13 bytes per
+// voxel). The workers' own buffers are bounded and not counted.
+func SlabBytesPerSlice(nx, ny, nt, nout int) int64 {
+	return int64(nx) * int64(ny) * int64(4*nt+8*nout+13)
+}
+
+// PlanSlabs returns the slabs of nz slices of perSlice bytes each within
+// budget bytes (at least one slice per slab, however small the budget).
+func PlanSlabs(nz int, perSlice, budget int64) SlabPlan {
+	k := 1
+	if perSlice > 0 && budget > perSlice {
+		k = int(min(budget/perSlice, int64(nz)))
+	}
+	// Even slabs: the same number of slabs with sizes as equal as possible.
+	n := (nz + k - 1) / k
+	k = (nz + n - 1) / n
+	p := SlabPlan{Slices: k}
+	for z := 0; z < nz; z += k {
+		p.Slabs = append(p.Slabs, z)
+	}
+	p.Slabs = append(p.Slabs, nz)
+	return p
+}
+
+// PeakHistogram computes AutoThreshold of a series seen in parts: the
+// largest finite sample of every voxel is found part by part (Peaks),
+// then binned once the largest over the series (the top of the histogram)
+// is known. The result equals AutoThreshold of the whole series exactly.
+// The zero value is ready for Peaks.
+type PeakHistogram struct {
+	top   float64
+	h     [otsuBins]float64
+	total float64
+}
+
+// otsuBins is the histogram size of the automatic threshold.
+const otsuBins = 256
+
+// Peaks writes into dst (allocated when nil or short; returned) the
+// largest finite sample of each voxel of im, −Inf when it has none, as
+// AutoThreshold computes them, and raises the histogram's top to the
+// largest peak.
+func (p *PeakHistogram) Peaks(dst []float32, im *volume.Image) []float32 {
+	nv, nt := im.Voxels(), im.Volumes()
+	if cap(dst) < nv {
+		dst = make([]float32, nv)
+	}
+	dst = dst[:nv]
+	for v := range dst {
+		dst[v] = float32(math.Inf(-1))
+	}
+	for t := 0; t < nt; t++ {
+		vol := im.Data[t*nv : (t+1)*nv]
+		for v, s := range vol {
+			if s > dst[v] && !math.IsInf(float64(s), 0) {
+				dst[v] = s
+			}
+		}
+	}
+	for _, s := range dst {
+		if float64(s) > p.top {
+			p.top = float64(s)
+		}
+	}
+	return dst
+}
+
+// Top returns the largest peak seen so far (0 when none is positive).
+func (p *PeakHistogram) Top() float64 { return p.top }
+
+// Add bins peaks found by Peaks; call it for every part after all parts
+// have passed through Peaks.
+func (p *PeakHistogram) Add(peaks []float32) {
+	if !(p.top > 0) {
+		return
+	}
+	for _, s := range peaks {
+		v := float64(s)
+		if !(v > 0) {
+			v = 0
+		}
+		b := int(v / p.top * (otsuBins - 1))
+		if b >= otsuBins {
+			b = otsuBins - 1
+		}
+		p.h[b]++
+		p.total++
+	}
+}
+
+// Threshold returns the automatic threshold: half of Otsu's threshold of
+// the binned peaks, 0 when no sample is positive (as AutoThreshold).
+func (p *PeakHistogram) Threshold() float64 {
+	if !(p.top > 0) {
+		return 0
+	}
+	return otsuHist(&p.h, p.total, p.top) / 2
+}
+
+// otsuHist is the threshold search of otsu on a histogram already made.
+func otsuHist(h *[otsuBins]float64, total, top float64) float64 {
+	const bins = otsuBins
+	var sumAll float64
+	for i, c := range h {
+		sumAll += float64(i) * c
+	}
+	var wB, sumB, best float64
+	bestI, bestJ := 0, 0
+	for i := 0; i < bins; i++ {
+		wB += h[i]
+		if wB == 0 {
+			continue
+		}
+		wF := total - wB
+		if wF == 0 {
+			break
+		}
+		sumB += float64(i) * h[i]
+		mB := sumB / wB
+		mF := (sumAll - sumB) / wF
+		between := wB * wF * (mB - mF) * (mB - mF)
+		switch {
+		case between > best*(1+1e-12):
+			best = between
+			bestI, bestJ = i, i
+		case between >= best*(1-1e-12):
+			bestJ = i
+		}
+	}
+	return (float64(bestI+bestJ)/2 + 1) / (bins - 1) * top
+}
+
+// Background accumulates BackgroundSigma over a series seen in parts of
+// whole voxels, in voxel order; the result equals BackgroundSigma of the
+// whole series exactly (the sum runs in the same order). The zero value is
+// ready.
+type Background struct {
+	sum float64
+	n   int
+}
+
+// Add adds the air samples of im: every finite, positive sample of the
+// voxels whose largest sample is below thr.
+func (b *Background) Add(im *volume.Image, thr float64) {
+	nv, nt := im.Voxels(), im.Volumes()
+	for v := 0; v < nv; v++ {
+		peak := math.Inf(-1)
+		for t := 0; t < nt; t++ {
+			if s := float64(im.Data[t*nv+v]); s > peak && !math.IsInf(s, 0) {
+				peak = s
+			}
+		}
+		if !(peak < thr) {
+			continue
+		}
+		for t := 0; t < nt; t++ {
+			s := float64(im.Data[t*nv+v])
+			if s > 0 && !math.IsInf(s, 0) {
+				b.sum += s
+				b.n++
+			}
+		}
+	}
+}
+
+// Sigma returns the estimate and false when fewer than 100 samples
+// qualified, as BackgroundSigma.
+func (b *Background) Sigma() (float64, bool) {
+	if b.n < 100 {
+		return 0, false
+	}
+	return b.sum / float64(b.n) / math.Sqrt(math.Pi/2), true
 }

@@ -15,77 +15,28 @@ import (
 // inversion time near the null, a small flip angle) still masks correctly.
 // It returns 0 (no masking) when the image holds no positive finite sample.
 func AutoThreshold(im *volume.Image) float64 {
-	nv, nt := im.Voxels(), im.Volumes()
-	peak := make([]float64, nv)
-	top := 0.0
-	for v := 0; v < nv; v++ {
-		p := math.Inf(-1)
-		for t := 0; t < nt; t++ {
-			s := float64(im.Data[t*nv+v])
-			if s > p && !math.IsInf(s, 0) {
-				p = s
-			}
-		}
-		peak[v] = p
-		if p > top {
-			top = p
-		}
-	}
-	if !(top > 0) {
-		return 0
-	}
-	return otsu(peak, top) / 2
+	var p PeakHistogram
+	p.Add(p.Peaks(nil, im))
+	return p.Threshold()
 }
 
-// otsu returns Otsu's threshold of the positive values of x on a 256-bin
-// histogram over [0, top]: the upper edge of the last background bin,
-// taken at the middle of the range of bins that maximise the
-// between-class variance.
-func otsu(x []float64, top float64) float64 {
-	const bins = 256
-	var h [bins]float64
-	var total float64
-	for _, v := range x {
-		if !(v > 0) {
-			v = 0
-		}
-		b := int(v / top * (bins - 1))
-		if b >= bins {
-			b = bins - 1
-		}
-		h[b]++
-		total++
-	}
-	var sumAll float64
-	for i, c := range h {
-		sumAll += float64(i) * c
-	}
-	var wB, sumB, best float64
-	bestI, bestJ := 0, 0
-	for i := 0; i < bins; i++ {
-		wB += h[i]
-		if wB == 0 {
-			continue
-		}
-		wF := total - wB
-		if wF == 0 {
-			break
-		}
-		sumB += float64(i) * h[i]
-		mB := sumB / wB
-		mF := (sumAll - sumB) / wF
-		between := wB * wF * (mB - mF) * (mB - mF)
-		switch {
-		case between > best*(1+1e-12):
-			best = between
-			bestI, bestJ = i, i
-		case between >= best*(1-1e-12):
-			bestJ = i // on the plateau of an empty gap between the classes
+// OtsuThreshold returns Otsu's threshold (Otsu 1979) of values on a
+// 256-bin histogram over [0, largest finite value], non-positive values in
+// the lowest bin, taken at the middle of the range of bins that maximise the
+// between-class variance (with a clean gap between two classes every bin in
+// the gap maximises it equally). It returns 0 when no value is positive.
+func OtsuThreshold(values []float32) float64 {
+	var p PeakHistogram
+	for _, s := range values {
+		if f := float64(s); f > p.top && !math.IsInf(f, 0) {
+			p.top = f
 		}
 	}
-	// Middle of the maximising plateau: with a clean gap between air and
-	// object every bin in the gap maximises the criterion equally.
-	return (float64(bestI+bestJ)/2 + 1) / (bins - 1) * top
+	if !(p.top > 0) {
+		return 0
+	}
+	p.Add(values)
+	return otsuHist(&p.h, p.total, p.top)
 }
 
 // BackgroundSigma estimates the noise SD σ of the complex channels from
@@ -98,29 +49,7 @@ func otsu(x []float64, top float64) float64 {
 // Rayleigh distributed and this estimate is biased (Constantinides et al.
 // 1997).
 func BackgroundSigma(im *volume.Image, thr float64) (float64, bool) {
-	nv, nt := im.Voxels(), im.Volumes()
-	var sum float64
-	n := 0
-	for v := 0; v < nv; v++ {
-		peak := math.Inf(-1)
-		for t := 0; t < nt; t++ {
-			if s := float64(im.Data[t*nv+v]); s > peak && !math.IsInf(s, 0) {
-				peak = s
-			}
-		}
-		if !(peak < thr) {
-			continue
-		}
-		for t := 0; t < nt; t++ {
-			s := float64(im.Data[t*nv+v])
-			if s > 0 && !math.IsInf(s, 0) {
-				sum += s
-				n++
-			}
-		}
-	}
-	if n < 100 {
-		return 0, false
-	}
-	return sum / float64(n) / math.Sqrt(math.Pi/2), true
+	var b Background
+	b.Add(im, thr)
+	return b.Sigma()
 }

@@ -90,7 +90,10 @@ verdict table and the drift table.`, e)
 		if err := mkdirAll(qaDir); err != nil {
 			return err
 		}
-		b, _ := json.MarshalIndent(qa, "", "  ")
+		b, err := json.MarshalIndent(qa, "", "  ")
+		if err != nil {
+			return fmt.Errorf("%s: qa.json: %v", qaDir, err)
+		}
 		b = append(b, '\n')
 		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.json"), b); err != nil {
 			return err

@@ -1,14 +1,20 @@
 package main
 
 import (
+	"bufio"
 	"context"
+	"encoding/binary"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"os"
+	"path/filepath"
 	"runtime"
+	"runtime/debug"
 	"runtime/pprof"
 	"sort"
+	"strconv"
 	"strings"
 	"time"
 
@@ -17,6 +23,7 @@ import (
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/io/preview"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/io/volume"
@@ -77,6 +84,9 @@ type fitArgs struct {
 	threshold, sigma, minT, maxT, t1, refocus, window                         float64
 	skip, workers                                                             int
 	te, ti, tr, fa                                                            listFlag
+	memory                                                                    byteFlag
+	noPreview                                                                 bool
+	previewRange                                                              string
 }
 
 func runFit(ctx context.Context, args []string, e *env) error {
@@ -109,7 +119,11 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&a.epgBasis, "epg-basis", false, "t2-spectrum: EPG basis functions with a fitted refocusing angle")
 	fs.BoolVar(&a.gonum, "gonum", false, "use gonum's optimiser for nonlinear fits (slow cross-check)")
 	fs.BoolVar(&a.quiet, "quiet", false, "no progress bar or summary")
+	fs.BoolVar(&a.noPreview, "no-preview", false, "do not write the PNG previews of the maps")
+	fs.StringVar(&a.previewRange, "range", "", "preview display window LO,HI in the map's unit (default 1st–99th percentile)")
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
+	a.memory = byteFlag(defaultMemory)
+	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
 		if errors.Is(err, errHelp) && a.model != "" {
@@ -136,6 +150,11 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	case a.sigma < 0 || math.IsNaN(a.sigma):
 		return fmt.Errorf("--sigma must be positive")
 	}
+	if a.previewRange != "" {
+		if _, err := preview.ParseWindow(a.previewRange); err != nil {
+			return fmt.Errorf("--range: %v", err)
+		}
+	}
 	a.series = pos[0]
 	if a.cpuprofile != "" {
 		f, err := os.Create(a.cpuprofile)
@@ -151,7 +170,41 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	return fitSeries(ctx, &a, e)
 }
 
+// inMemoryNIfTI makes fitSeries load NIfTI series whole, as DICOM series
+// are (tests compare the two paths).
+var inMemoryNIfTI = false
+
+// previews writes the PNG previews into the stage unless --no-preview.
+func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Param) error {
+	if a.noPreview {
+		return nil
+	}
+	var win preview.Window
+	if a.previewRange != "" {
+		w, err := preview.ParseWindow(a.previewRange)
+		if err != nil {
+			return fmt.Errorf("--range: %v", err)
+		}
+		win = w
+	}
+	return fitPreviews(ctx, st.Path(""), outs, win)
+}
+
 func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
+	if err := checkOutput(a.out, a.series, a.maskFile, a.b1File); err != nil {
+		return err
+	}
+	if a.memory <= 0 {
+		a.memory = defaultMemory
+	}
+	if st, err := os.Stat(a.series); err == nil && !st.IsDir() && series.IsNIfTI(a.series) && !inMemoryNIfTI {
+		return fitStream(ctx, a, e)
+	}
+	return fitInMemory(ctx, a, e)
+}
+
+// fitInMemory loads the whole series (DICOM) and fits it in one go.
+func fitInMemory(ctx context.Context, a *fitArgs, e *env) error {
 	t0 := time.Now()
 	im, inputs, err := series.Load(a.series, &series.Overrides{TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list(), Series: a.seriesID})
 	if err != nil {
@@ -261,6 +314,9 @@ func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 	if _, err := mapset.Write(st, maps, im, info); err != nil {
 		return err
 	}
+	if err := a.previews(ctx, st, model.Outputs()); err != nil {
+		return err
+	}
 	if err := st.Commit(); err != nil {
 		return err
 	}
@@ -348,4 +404,580 @@ func readB1(path string, im *volume.Image) ([]float32, error) {
 		out[i] = v * scale
 	}
 	return out, nil
+}
+
+// defaultMemory is the default slab budget of --memory: 1 GiB.
+const defaultMemory = 1 << 30
+
+// byteFlag is a size in bytes, given as a number with an optional K, M, G
+// or T suffix (powers of 1024; "GiB", "GB" and "G" alike).
+type byteFlag int64
+
+func (b *byteFlag) String() string { return strconv.FormatInt(int64(*b), 10) }
+func (b *byteFlag) Set(s string) error {
+	t := strings.ToUpper(strings.TrimSpace(s))
+	t = strings.TrimSuffix(strings.TrimSuffix(t, "B"), "I")
+	mult := int64(1)
+	if n := len(t); n > 0 {
+		switch t[n-1] {
+		case 'K':
+			mult = 1 << 10
+		case 'M':
+			mult = 1 << 20
+		case 'G':
+			mult = 1 << 30
+		case 'T':
+			mult = 1 << 40
+		}
+		if mult > 1 {
+			t = t[:n-1]
+		}
+	}
+	v, err := strconv.ParseFloat(strings.TrimSpace(t), 64)
+	if err != nil || !(v > 0) || v*float64(mult) > 1<<50 {
+		return fmt.Errorf("%q is not a size such as 512M or 2G", s)
+	}
+	*b = byteFlag(v * float64(mult))
+	return nil
+}
+
+// slabSource is a NIfTI series opened for reading by slabs, with its
+// protocol.
+type slabSource struct {
+	r      *nifti.SlabReader
+	vols   []int // volumes fitted (after --skip-echoes), in file order
+	acq    []volume.Acquisition
+	src    volume.Source
+	inputs []series.Input
+}
+
+// openSlabSource opens a NIfTI series: the header, the sidecar beside it
+// and the command-line lists, as series.Load does, without the samples.
+func openSlabSource(a *fitArgs, tmpDir string) (*slabSource, error) {
+	if a.seriesID != "" {
+		return nil, fmt.Errorf("%s: --series applies to DICOM folders, not to a NIfTI file", a.series)
+	}
+	r, err := nifti.OpenSlabs(a.series, &nifti.SlabOptions{TempDir: tmpDir})
+	if err != nil {
+		return nil, err
+	}
+	s := &slabSource{r: r, src: r.Source(), inputs: []series.Input{{Path: a.series, Role: "series"}}}
+	if s.src.Description == "" {
+		s.src.Description = filepath.Base(a.series)
+	}
+	nt := r.Dims()[3]
+	s.acq = make([]volume.Acquisition, nt)
+	for i := range s.acq {
+		s.acq[i] = volume.Unknown()
+	}
+	fail := func(err error) (*slabSource, error) {
+		r.Close()
+		return nil, err
+	}
+	if sc, ok := sidecar.ForImage(a.series); ok {
+		side, err := sidecar.Read(sc)
+		if err != nil {
+			return fail(err)
+		}
+		if s.acq, err = side.Acquisitions(nt); err != nil {
+			return fail(err)
+		}
+		side.ApplySource(&s.src)
+		s.inputs = append(s.inputs, series.Input{Path: sc, Role: "sidecar"})
+	}
+	if err := applyLists(s.acq, a, a.series); err != nil {
+		return fail(err)
+	}
+	if nt < 2 {
+		return fail(fmt.Errorf("%s: holds %d volume; a relaxation fit needs a 4-D series", a.series, nt))
+	}
+	s.vols = make([]int, nt)
+	for i := range s.vols {
+		s.vols[i] = i
+	}
+	if a.skip != 0 {
+		if s.vols, s.acq, err = skipVolumes(s.acq, a.skip); err != nil {
+			return fail(fmt.Errorf("%s: --skip-echoes: %v", a.series, err))
+		}
+	}
+	return s, nil
+}
+
+// applyLists applies --te/--ti/--tr/--fa as series.Load does: one value
+// for every volume or one per volume.
+func applyLists(acq []volume.Acquisition, a *fitArgs, path string) error {
+	nt := len(acq)
+	set := func(flag string, vals []float64, put func(a *volume.Acquisition, v float64)) error {
+		if vals == nil {
+			return nil
+		}
+		if len(vals) != 1 && len(vals) != nt {
+			return fmt.Errorf("%s: --%s lists %d values but the image has %d volumes", path, flag, len(vals), nt)
+		}
+		for t := range acq {
+			v := vals[0]
+			if len(vals) == nt {
+				v = vals[t]
+			}
+			put(&acq[t], v)
+		}
+		return nil
+	}
+	return errors.Join(
+		set("te", a.te.list(), func(a *volume.Acquisition, v float64) { a.EchoTime = v }),
+		set("ti", a.ti.list(), func(a *volume.Acquisition, v float64) { a.InversionTime = v }),
+		set("tr", a.tr.list(), func(a *volume.Acquisition, v float64) { a.RepetitionTime = v }),
+		set("fa", a.fa.list(), func(a *volume.Acquisition, v float64) { a.FlipAngle = v }),
+	)
+}
+
+// skipVolumes leaves out the n volumes of shortest echo time, as
+// series.SkipEchoes does, returning the volumes kept and their protocol.
+func skipVolumes(acq []volume.Acquisition, n int) ([]int, []volume.Acquisition, error) {
+	nt := len(acq)
+	if n < 0 || n >= nt {
+		return nil, nil, fmt.Errorf("cannot skip %d of %d echoes", n, nt)
+	}
+	order := make([]int, nt)
+	for i := range order {
+		order[i] = i
+		if math.IsNaN(acq[i].EchoTime) {
+			return nil, nil, fmt.Errorf("cannot skip echoes: echo time of volume %d is unknown", i+1)
+		}
+	}
+	sort.SliceStable(order, func(x, y int) bool { return acq[order[x]].EchoTime < acq[order[y]].EchoTime })
+	drop := map[int]bool{}
+	for _, t := range order[:n] {
+		drop[t] = true
+	}
+	var vols []int
+	var kept []volume.Acquisition
+	for t := range acq {
+		if !drop[t] {
+			vols = append(vols, t)
+			kept = append(kept, acq[t])
+		}
+	}
+	return vols, kept, nil
+}
+
+// auxSlabs reads a 3-D map on the series grid (mask or B1) slab by slab.
+type auxSlabs struct {
+	r     *nifti.SlabReader
+	buf   []float32
+	scale float32 // applied to every value read (B1 in percent: 0.01)
+}
+
+// survey reads the map once, slab by slab, and counts its positive finite
+// values and those at most 10: enough to tell whether the median of the
+// positive values is above 10 (a B1 map in percent), as readB1 decides on
+// the whole map, without holding it.
+func (x *auxSlabs) survey(plan fit.SlabPlan, plane int) (pos, small int, err error) {
+	for i := 0; i+1 < len(plan.Slabs); i++ {
+		b, err := x.read(plan.Slabs[i], plan.Slabs[i+1], plane)
+		if err != nil {
+			return 0, 0, err
+		}
+		for _, v := range b {
+			if v > 0 && !math.IsInf(float64(v), 0) {
+				pos++
+				if v <= 10 {
+					small++
+				}
+			}
+		}
+	}
+	return pos, small, nil
+}
+
+func openAux(path string, dims [4]int, affine volume.Affine, what, tmpDir string) (*auxSlabs, error) {
+	r, err := nifti.OpenSlabs(path, &nifti.SlabOptions{TempDir: tmpDir})
+	if err != nil {
+		return nil, err
+	}
+	stub := &volume.Image{Dims: r.Dims(), Affine: r.Affine()}
+	ref := &volume.Image{Dims: dims, Affine: affine}
+	if err := sameGrid(path, stub, ref, what); err != nil {
+		r.Close()
+		return nil, err
+	}
+	return &auxSlabs{r: r}, nil
+}
+
+func (x *auxSlabs) read(z0, z1, plane int) ([]float32, error) {
+	n := (z1 - z0) * plane
+	if cap(x.buf) < n {
+		x.buf = make([]float32, n)
+	}
+	x.buf = x.buf[:n]
+	if err := x.r.ReadSlab(x.buf, z0, z1, nil); err != nil {
+		return nil, err
+	}
+	if x.scale != 0 && x.scale != 1 {
+		for i, v := range x.buf {
+			x.buf[i] = v * x.scale
+		}
+	}
+	return x.buf, nil
+}
+
+// fitStream fits a NIfTI series slab by slab within the --memory budget:
+// a first pass over the slabs finds the automatic threshold (and the noise
+// level for --noise rician without --sigma) when the series holds more
+// than one slab; the second reads, fits and appends each slab to the maps.
+// The maps are bit-identical to fitting the whole series at once.
+func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
+	t0 := time.Now()
+	spec := fit.Spec{Model: a.model, Method: a.method, Offset: a.offset, Efficiency: a.efficiency, MinT: a.minT, MaxT: a.maxT, Gonum: a.gonum}
+	if a.sigma > 0 && a.noise != "rician" {
+		return fmt.Errorf("--sigma needs --noise rician")
+	}
+	if a.b1File != "" && a.model != "t1-vfa" {
+		return fmt.Errorf("--b1 applies to t1-vfa only")
+	}
+	if a.noise == "rician" {
+		spec.Sigma = a.sigma
+		if spec.Sigma == 0 {
+			spec.Sigma = 1 // placeholder for the checks below; estimated later
+		}
+	}
+	model, err := fit.New(spec)
+	if err != nil {
+		return err
+	}
+	st, err := mapset.NewStage(a.out, a.force)
+	if err != nil {
+		return err
+	}
+	defer st.Abort()
+	tmpDir := st.Path("")
+	src, err := openSlabSource(a, tmpDir)
+	if err != nil {
+		return err
+	}
+	defer src.r.Close()
+	if _, err := model.NewFitter(src.acq); err != nil {
+		hint := ""
+		if errors.Is(err, fit.ErrProtocol) {
+			hint = "; the sidecar (" + series.SidecarName(a.series) + ") or --te/--ti/--tr/--fa give the parameters"
+		}
+		return fmt.Errorf("%s: model %s: %v%s", a.series, model.Name(), err, hint)
+	}
+	dims := src.r.Dims()
+	affine := src.r.Affine()
+	nx, ny, nz := dims[0], dims[1], dims[2]
+	plane := nx * ny
+	nvol := len(src.vols)
+	inputs := src.inputs
+	var mask, b1 *auxSlabs
+	if a.maskFile != "" {
+		if mask, err = openAux(a.maskFile, dims, affine, "mask", tmpDir); err != nil {
+			return err
+		}
+		defer mask.r.Close()
+		inputs = append(inputs, series.Input{Path: a.maskFile, Role: "mask"})
+	}
+	if a.b1File != "" {
+		if b1, err = openAux(a.b1File, dims, affine, "B1 map", tmpDir); err != nil {
+			return err
+		}
+		defer b1.r.Close()
+		inputs = append(inputs, series.Input{Path: a.b1File, Role: "b1"})
+	}
+
+	per := fit.SlabBytesPerSlice(nx, ny, nvol, len(model.Outputs()))
+	if mask != nil {
+		per += int64(plane) * 5
+	}
+	if b1 != nil {
+		per += int64(plane) * 8
+	}
+	plan := fit.PlanSlabs(nz, per, int64(a.memory))
+	// The slab buffers are allocated once and reused; a soft limit on the
+	// heap keeps the collector from letting the little garbage of each
+	// slab (worker buffers, compressor state) double the heap before it
+	// runs (the default GOGC=100 target is twice the live heap).
+	if lim := int64(a.memory) + int64(a.memory)/4 + 256<<20; lim > 0 {
+		defer debug.SetMemoryLimit(debug.SetMemoryLimit(lim))
+	}
+	nslab := len(plan.Slabs) - 1
+	if mask != nil {
+		pos, _, err := mask.survey(plan, plane)
+		if err != nil {
+			return err
+		}
+		if pos == 0 {
+			return fmt.Errorf("%s: mask selects no voxel", a.maskFile)
+		}
+	}
+	if b1 != nil {
+		pos, small, err := b1.survey(plan, plane)
+		if err != nil {
+			return err
+		}
+		if pos == 0 {
+			return fmt.Errorf("%s: B1 map holds no positive value", a.b1File)
+		}
+		// sorted positive values p: p[pos/2] > 10 exactly when at most
+		// pos/2 of them are ≤ 10.
+		if small <= pos/2 {
+			b1.scale = 0.01
+		}
+	}
+	buf := make([]float32, plan.Slices*plane*nvol)
+	slab := func(i int) (*volume.Image, error) {
+		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
+		n := (z1 - z0) * plane
+		im := &volume.Image{Dims: [4]int{nx, ny, z1 - z0, nvol}, Data: buf[:n*nvol], Affine: affine, Acq: src.acq, Source: src.src}
+		return im, src.r.ReadSlab(im.Data, z0, z1, src.vols)
+	}
+	tLoad := time.Since(t0)
+
+	// Pass 1: threshold and noise level over the whole series.
+	t1 := time.Now()
+	auto := a.threshold <= 0 && a.maskFile == "" && !a.noMask
+	needSigma := a.noise == "rician" && a.sigma == 0
+	thr := a.threshold
+	var first *volume.Image // the one slab, when the series is a single slab
+	if nslab == 1 {
+		if first, err = slab(0); err != nil {
+			return err
+		}
+		if auto {
+			thr = fit.AutoThreshold(first)
+		}
+	} else if auto {
+		if thr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
+			return err
+		}
+	}
+	if needSigma {
+		sthr := a.threshold
+		if sthr <= 0 {
+			sthr = thr
+			if !auto {
+				// As the in-memory path: the air is judged by the automatic
+				// threshold even when a mask or --no-mask decides the fit.
+				if nslab == 1 {
+					sthr = fit.AutoThreshold(first)
+				} else if sthr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
+					return err
+				}
+			}
+		}
+		var bg fit.Background
+		for i := 0; i < nslab; i++ {
+			im := first
+			if im == nil {
+				if im, err = slab(i); err != nil {
+					return err
+				}
+			}
+			bg.Add(im, sthr)
+		}
+		s, ok := bg.Sigma()
+		if !ok {
+			return fmt.Errorf("%s: too little air to estimate the noise; give --sigma", a.series)
+		}
+		spec.Sigma = s
+		if model, err = fit.New(spec); err != nil {
+			return err
+		}
+	}
+	tSurvey := time.Since(t1)
+
+	// Pass 2: fit and write slab by slab.
+	settings := map[string]any{
+		"model": model.Name(), "method": model.Method(), "offset": a.offset, "noise": a.noise,
+		"skip_echoes": a.skip, "workers": workersOf(a.workers), "threshold": a.threshold, "no_mask": a.noMask,
+		"mask": a.maskFile, "b1": a.b1File, "efficiency": a.efficiency, "min_ms": a.minT, "max_ms": a.maxT,
+		"solver":       map[bool]string{false: "dedicated", true: "gonum"}[a.gonum],
+		"memory_bytes": int64(a.memory), "slabs": nslab, "slices_per_slab": plan.Slices,
+	}
+	if spec.Sigma > 0 {
+		settings["sigma"] = spec.Sigma
+	}
+	timings := map[string]float64{}
+	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: version(), Settings: settings,
+		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings}
+	w, err := mapset.NewWriter(st, model.Outputs(), [3]int{nx, ny, nz}, affine, info)
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if err != nil {
+			w.Abort()
+		}
+	}()
+	var bar *progressbar.ProgressBar
+	opt := &fit.Options{Workers: a.workers, Threshold: thr, NoThreshold: thr <= 0}
+	offset := 0
+	if e.terminal && !a.quiet {
+		bar = progressbar.NewOptions(plane*nz, progressbar.OptionSetWriter(e.stderr),
+			progressbar.OptionSetDescription("fitting "+model.Name()), progressbar.OptionShowCount(),
+			progressbar.OptionThrottle(100*time.Millisecond), progressbar.OptionClearOnFinish())
+		opt.Progress = func(done int) { bar.Set(offset + done) }
+	}
+	var maps *fit.Maps
+	var tRead, tFit, tWrite time.Duration
+	var counts [fit.NumStatus]int
+	var maskBuf []bool
+	for i := 0; i < nslab; i++ {
+		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
+		tr := time.Now()
+		im := first
+		if im == nil {
+			if im, err = slab(i); err != nil {
+				return err
+			}
+		}
+		opt.Mask, opt.B1 = nil, nil
+		if mask != nil {
+			m, err := mask.read(z0, z1, plane)
+			if err != nil {
+				return err
+			}
+			if cap(maskBuf) < len(m) {
+				maskBuf = make([]bool, len(m))
+			}
+			maskBuf = maskBuf[:len(m)]
+			for v, x := range m {
+				maskBuf[v] = x > 0
+			}
+			opt.Mask = maskBuf
+		}
+		if b1 != nil {
+			if opt.B1, err = b1.read(z0, z1, plane); err != nil {
+				return err
+			}
+		}
+		tRead += time.Since(tr)
+		tf := time.Now()
+		if maps, err = fit.RunTo(ctx, maps, im, model, opt); err != nil {
+			if bar != nil {
+				bar.Finish()
+			}
+			return err
+		}
+		tFit += time.Since(tf)
+		offset += im.Voxels()
+		for s, c := range maps.Counts {
+			counts[s] += c
+		}
+		tw := time.Now()
+		maps.Threshold = thr
+		if err = w.Append(maps); err != nil {
+			return err
+		}
+		tWrite += time.Since(tw)
+		first = nil
+	}
+	if bar != nil {
+		bar.Finish()
+	}
+	// Temporary uncompressed copies live in the stage: remove them before
+	// the folder is committed.
+	for _, r := range []*nifti.SlabReader{src.r, auxReader(mask), auxReader(b1)} {
+		if r != nil {
+			if err = r.Close(); err != nil {
+				return err
+			}
+		}
+	}
+	tc := time.Now()
+	timings["load"] = tLoad.Seconds()
+	timings["survey"] = tSurvey.Seconds()
+	timings["read"] = tRead.Seconds()
+	timings["fit"] = tFit.Seconds()
+	timings["write"] = tWrite.Seconds()
+	if _, err = w.Close(); err != nil {
+		return err
+	}
+	if err = a.previews(ctx, st, model.Outputs()); err != nil {
+		return err
+	}
+	if err = st.Commit(); err != nil {
+		return err
+	}
+	if !a.quiet {
+		nv := plane * nz
+		fmt.Fprintf(e.stdout, "wrote %s: %s/%s on %d voxels in %.2f s (%.0f voxels/s, %d workers, %d slab%s); write %.2f s\n",
+			a.out, model.Name(), model.Method(), nv, tFit.Seconds(), float64(nv)/tFit.Seconds(), workersOf(a.workers),
+			nslab, map[bool]string{true: "", false: "s"}[nslab == 1], (tWrite + time.Since(tc)).Seconds())
+		fmt.Fprintln(e.stdout, "  status: "+statusLine(counts))
+	}
+	return nil
+}
+
+func workersOf(n int) int {
+	if n == 0 {
+		return runtime.NumCPU()
+	}
+	return n
+}
+
+func auxReader(x *auxSlabs) *nifti.SlabReader {
+	if x == nil {
+		return nil
+	}
+	return x.r
+}
+
+// streamThreshold finds the automatic threshold over every slab: the
+// per-voxel peaks are spilled to a temporary file (4 bytes a voxel) so
+// memory does not grow with the series, then binned once the top is known.
+func streamThreshold(ctx context.Context, nslab int, slab func(int) (*volume.Image, error), tmpDir string) (float64, error) {
+	f, err := os.CreateTemp(tmpDir, ".peaks-*.raw")
+	if err != nil {
+		return 0, err
+	}
+	defer func() {
+		f.Close()
+		os.Remove(f.Name())
+	}()
+	var ph fit.PeakHistogram
+	var peaks []float32
+	bw := bufio.NewWriterSize(f, 1<<20)
+	total := 0
+	var raw [4 << 10]byte
+	for i := 0; i < nslab; i++ {
+		if ctx.Err() != nil {
+			return 0, ctx.Err()
+		}
+		im, err := slab(i)
+		if err != nil {
+			return 0, err
+		}
+		peaks = ph.Peaks(peaks, im)
+		for lo := 0; lo < len(peaks); lo += len(raw) / 4 {
+			part := peaks[lo:min(lo+len(raw)/4, len(peaks))]
+			for i, v := range part {
+				binary.LittleEndian.PutUint32(raw[4*i:], math.Float32bits(v))
+			}
+			if _, err := bw.Write(raw[:4*len(part)]); err != nil {
+				return 0, fmt.Errorf("%s: %w", f.Name(), err)
+			}
+		}
+		total += len(peaks)
+	}
+	if err := bw.Flush(); err != nil {
+		return 0, fmt.Errorf("%s: %w", f.Name(), err)
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return 0, err
+	}
+	br := bufio.NewReaderSize(f, 1<<20)
+	part := make([]float32, len(raw)/4)
+	for done := 0; done < total; {
+		n := min(len(part), total-done)
+		if _, err := io.ReadFull(br, raw[:4*n]); err != nil {
+			return 0, fmt.Errorf("%s: %w", f.Name(), err)
+		}
+		for i := range part[:n] {
+			part[i] = math.Float32frombits(binary.LittleEndian.Uint32(raw[4*i:]))
+		}
+		ph.Add(part[:n])
+		done += n
+	}
+	return ph.Threshold(), nil
 }

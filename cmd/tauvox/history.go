@@ -13,6 +13,7 @@ import (
 	"strings"
 	"text/tabwriter"
 
+	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/roi/history"
 )
@@ -140,14 +141,23 @@ func historyList(ctx context.Context, args []string, e *env) error {
 
 func historyExport(ctx context.Context, args []string, e *env) error {
 	var db, scanner, out string
-	var asCSV bool
+	var asCSV, force bool
 	fs := newFlags("history export", "--db FILE --csv [--out FILE] [--scanner S]", "Writes one CSV row per session × vial × quantity (times in ms, deviation in percent).", e)
 	fs.StringVar(&db, "db", "", "history database file")
 	fs.StringVar(&scanner, "scanner", "", "only this scanner")
 	fs.BoolVar(&asCSV, "csv", true, "CSV output (the only format)")
-	fs.StringVar(&out, "out", "", "output file (default: standard output)")
+	fs.StringVar(&out, "out", "", "output file (default: standard output; refused if it exists, see --force)")
+	fs.BoolVar(&force, "force", false, "replace an existing output file")
 	if err := parse(fs, args, nil); err != nil {
 		return err
+	}
+	if out != "" {
+		if err := checkOutput(out, db); err != nil {
+			return err
+		}
+		if _, err := os.Stat(out); err == nil && !force {
+			return fmt.Errorf("%s: %w", out, mapset.ErrExists)
+		}
 	}
 	s, err := openDB(db, true)
 	if err != nil {

@@ -93,6 +93,9 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	if a.db == "" || a.out == "" {
 		return errors.New("--db and --out are required")
 	}
+	if err := checkOutput(a.out, a.db); err != nil {
+		return err
+	}
 	ss, err := analyseHistory(ctx, &a)
 	if err != nil {
 		return err

@@ -29,6 +29,14 @@ import (
 
 func main() {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	// The first signal cancels ctx: the command stops its workers, removes
+	// its temporary files and exits 130. Then the default action is
+	// restored, so a second Ctrl-C ends at once a command that does not
+	// watch ctx (its hidden temporary folder is then left behind).
+	go func() {
+		<-ctx.Done()
+		stop()
+	}()
 	code := run(ctx, os.Args[1:], os.Stdout, os.Stderr)
 	stop()
 	os.Exit(code)
@@ -53,12 +61,17 @@ func commands() []command {
 	return []command{
 		{"scan", "list the series under folders (DICOM, NIfTI) with a suggested model", runScan},
 		{"fit", "fit a model to a series and write maps", runFit},
+		{"batch", "fit every relaxometry series of a BIDS dataset into a derivative dataset", runBatch},
+		{"validate", "Monte Carlo accuracy and precision of a model and protocol against the CRLB", runValidate},
 		{"simulate", "write a synthetic series of the demo phantom with known truth", runSimulate},
 		{"roi", "statistics of maps inside regions (spheres or a label image)", runROI},
 		{"phantom", "measure phantom vials against their reference and give a QA verdict", runPhantom},
 		{"history", "record QA sessions in SQLite; control charts and drift per year", runHistory},
+		{"export", "write maps as DICOM Parametric Map series for a PACS", runExport},
+		{"preview", "draw PNG montages of maps with a colour bar and units", runPreview},
 		{"demo", "run simulate and fit on built-in data and print per-vial results", runDemo},
 		{"version", "print the version", runVersion},
+		{"completion", "print a shell completion script (bash or zsh)", runCompletion},
 		{"help", "show help for a command", nil},
 	}
 }
@@ -85,6 +98,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	name := args[0]
 	if name == "-h" || name == "--help" || name == "help" {
 		if len(args) > 1 && name == "help" {
+			if helpTopic(args[1], stdout) {
+				return 0
+			}
 			return run(ctx, []string{args[1], "--help"}, stdout, stderr)
 		}
 		usage(stdout)
@@ -129,10 +145,11 @@ func usage(w io.Writer) {
 	fmt.Fprintln(w, "Usage: tauvox COMMAND [arguments]")
 	fmt.Fprintln(w)
 	for _, c := range commands() {
-		fmt.Fprintf(w, "  %-9s %s\n", c.name, c.summary)
+		fmt.Fprintf(w, "  %-10s %s\n", c.name, c.summary)
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, "Run 'tauvox COMMAND --help' for the options of a command.")
+	fmt.Fprintln(w, helpTopicsLine())
 	fmt.Fprintln(w, "Exit codes: 0 success, 1 problems found, 2 bad usage or input, 130 interrupted.")
 }
 

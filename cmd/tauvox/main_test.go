@@ -97,7 +97,7 @@ func TestFitEndToEnd(t *testing.T) {
 		if n < 100 || math.Abs(rel) > c.tol {
 			t.Errorf("%s %v: mean relative error %+.4f over %d voxels (tolerance %g)", c.model, c.args, rel, n, c.tol)
 		}
-		for _, f := range []string{c.q + "map_sd.nii.gz", "fitquality.nii.gz", "status.nii.gz", "provenance.json", c.q + "map.json"} {
+		for _, f := range []string{c.q + "map_sd.nii.gz", "fitquality.nii.gz", "status.nii.gz", "provenance.json", c.q + "map.json", c.q + "map.png"} {
 			if _, err := os.Stat(filepath.Join(out, f)); err != nil {
 				t.Errorf("%s: %v", f, err)
 			}

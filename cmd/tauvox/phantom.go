@@ -106,6 +106,9 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if !fieldSet {
 		a.field = math.NaN()
 	}
+	if err := checkOutput(a.out, append([]string{a.def}, pos...)...); err != nil {
+		return err
+	}
 	qa, res, inputs, def, err := assessPhantom(&a, pos)
 	if err != nil {
 		return err
@@ -115,7 +118,10 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 		return err
 	}
 	defer st.Abort()
-	b, _ := json.MarshalIndent(qa, "", "  ")
+	b, err := json.MarshalIndent(qa, "", "  ")
+	if err != nil {
+		return fmt.Errorf("%s: qa.json: %v", a.out, err)
+	}
 	if err := series.WriteFileAtomic(st.Path("qa.json"), append(b, '\n')); err != nil {
 		return err
 	}
@@ -281,6 +287,7 @@ func phantomInputs(p string) ([]phantom.Input, *mapset.Provenance, error) {
 		}
 		if pr := folder.Provenance; pr != nil {
 			in.Ref.Model, in.Ref.Method = pr.Model, pr.Method
+			in.Ref.Description = pr.Series
 			for _, pp := range pr.Protocol {
 				in.Ref.Protocol = append(in.Ref.Protocol, phantom.Protocol{TE: pp.TE, TI: pp.TI, TR: pp.TR, FA: pp.FA})
 			}

@@ -76,6 +76,9 @@ differs). One CSV row per region × map, with a unit column.`, e)
 	case erode < 0:
 		return errors.New("--erode must not be negative")
 	}
+	if err := checkOutput(out, append([]string{rois}, pos...)...); err != nil {
+		return err
+	}
 	if _, err := os.Stat(out); err == nil && !force {
 		return fmt.Errorf("%s: %w", out, mapset.ErrExists)
 	}

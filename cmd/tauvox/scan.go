@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"strings"
 	"text/tabwriter"
+	"unicode"
 
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
@@ -36,6 +37,9 @@ type scanEntry struct {
 	Scanner     string    `json:"scanner,omitempty"`
 	Acquired    string    `json:"acquired,omitempty"`
 	Field       *float64  `json:"field_T,omitempty"`
+	// Identifiers (patient name, ID, birth date, accession number) are
+	// filled only with --keep-identifiers.
+	Identifiers *dicom.Identifiers `json:"identifiers,omitempty"`
 }
 
 type scanResult struct {
@@ -48,7 +52,7 @@ type scanResult struct {
 }
 
 func runScan(_ context.Context, args []string, e *env) error {
-	var asJSON, localizers, derived bool
+	var asJSON, localizers, derived, keepIDs bool
 	fs := newFlags("scan", "PATH... [--json]",
 		`Finds every series under the paths — DICOM files recognised by content in
 folders searched recursively, and NIfTI files with their BIDS sidecars — and
@@ -59,6 +63,7 @@ reason; the scan goes on with the rest.`, e)
 	fs.BoolVar(&asJSON, "json", false, "machine-readable output")
 	fs.BoolVar(&localizers, "localizers", false, "include localizer images")
 	fs.BoolVar(&derived, "derived", false, "include derived images")
+	fs.BoolVar(&keepIDs, "keep-identifiers", false, "show the patient name, ID, birth date and accession number of DICOM series (left out by default)")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
 		return err
@@ -71,7 +76,7 @@ reason; the scan goes on with the rest.`, e)
 			return err
 		}
 	}
-	cat, err := dicom.Scan(pos, &dicom.ScanOptions{Localizers: localizers, Derived: derived})
+	cat, err := dicom.Scan(pos, &dicom.ScanOptions{Localizers: localizers, Derived: derived, KeepIdentifiers: keepIDs})
 	if err != nil {
 		return err
 	}
@@ -79,7 +84,7 @@ reason; the scan goes on with the rest.`, e)
 	for _, s := range cat.Series {
 		en := scanEntry{ID: s.ID, Format: "dicom", Description: s.Description, Varying: s.Varying, Values: s.Values,
 			Matrix: [2]int{s.Columns, s.Rows}, Slices: s.Slices, Volumes: s.Volumes, Model: s.Model, Problem: s.Problem,
-			Notes: s.Notes, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt}
+			Notes: s.Notes, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt, Identifiers: s.Identifiers}
 		if f := s.Source.FieldStrength; f > 0 {
 			en.Field = &f
 		}
@@ -103,16 +108,33 @@ reason; the scan goes on with the rest.`, e)
 		if s.Problem != "" {
 			model = "(cannot load: " + oneLine(s.Problem) + ")"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(oneLine(s.Description), 40), s.Varying, valueList(s.Values),
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(printable(oneLine(s.Description)), 40), s.Varying, valueList(s.Values),
 			s.Matrix[0], s.Matrix[1], s.Slices, s.Volumes, model)
 	}
 	tw.Flush()
 	fmt.Fprintf(e.stdout, "%d series; %d DICOM files, %d other files skipped, %d unreadable, %d localizer/derived left out\n",
 		len(res.Series), res.Files, res.Skipped, res.Unreadable, res.Ignored)
+	for _, s := range res.Series {
+		if id := s.Identifiers; id != nil {
+			fmt.Fprintf(e.stdout, "  identifiers of %s: name %q, ID %q, birth date %q, accession %q\n", s.ID,
+				id.PatientName, id.PatientID, id.PatientBirthDate, id.AccessionNumber)
+		}
+	}
 	for _, p := range res.Problems {
-		fmt.Fprintln(e.stdout, "  problem: "+oneLine(p.String()))
+		fmt.Fprintln(e.stdout, "  problem: "+printable(oneLine(p.String())))
 	}
 	return nil
+}
+
+// printable replaces control and format characters (a terminal escape
+// sequence in a series description, say) and invalid UTF-8 with U+FFFD.
+func printable(s string) string {
+	return strings.Map(func(r rune) rune {
+		if unicode.IsControl(r) || unicode.Is(unicode.Cf, r) {
+			return unicode.ReplacementChar
+		}
+		return r
+	}, strings.ToValidUTF8(s, "\uFFFD"))
 }
 
 func clip(s string, n int) string {

@@ -118,6 +118,7 @@ type simArgs struct {
 	tilt                 float64
 	drift                driftFlag
 	scanner, date, clock string
+	description          string
 	kind, out            string
 	force                bool
 	field, temp, sigma   float64
@@ -154,6 +155,7 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	fs.BoolVar(&a.enhanced, "enhanced", false, "with --format dicom: one Enhanced MR multi-frame file")
 	fs.Float64Var(&a.tilt, "tilt", 0, "tilt the slices about the scanner x axis by this many degrees (oblique)")
 	fs.StringVar(&a.scanner, "scanner", "TVX-SIM1", "station name written to the sidecar (invented)")
+	fs.StringVar(&a.description, "description", "", "series description (default \"tauvox demo phantom KIND\")")
 	fs.StringVar(&a.date, "date", "", "acquisition date YYYY-MM-DD written to the sidecar")
 	fs.StringVar(&a.clock, "time", "09:00", "acquisition time HH:MM (with --date)")
 	a.drift = driftFlag{}
@@ -274,6 +276,9 @@ func simulateInto(st pather, a *simArgs) ([]string, error) {
 		return nil, err
 	}
 	im.Source.Description = "tauvox demo phantom " + k.name
+	if a.description != "" {
+		im.Source.Description = a.description
+	}
 	if a.scanner != "" {
 		im.Source.Scanner = a.scanner
 	}

@@ -4,10 +4,12 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"math"
 	"os"
+	"sync"
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
@@ -91,92 +93,232 @@ func Checksum(path string) (string, int64, error) {
 }
 
 // Write writes every map of m (on the grid of ref) and provenance.json
-// into the stage. It returns the file names written.
+// into the stage. It returns the file names written. It is NewWriter,
+// one Append and Close.
 func Write(st *Stage, m *fit.Maps, ref *volume.Image, info *Info) ([]string, error) {
-	var names []string
-	grid := func(data []float32) *volume.Image {
-		return &volume.Image{Dims: [4]int{ref.Dims[0], ref.Dims[1], ref.Dims[2], 1}, Data: data, Affine: ref.Affine}
+	w, err := NewWriter(st, m.Outputs, [3]int{ref.Dims[0], ref.Dims[1], ref.Dims[2]}, ref.Affine, info)
+	if err != nil {
+		return nil, err
 	}
-	side := func(stem string, extra map[string]any) error {
-		b, err := json.MarshalIndent(extra, "", "  ")
+	if err := w.Append(m); err != nil {
+		return nil, err
+	}
+	return w.Close()
+}
+
+// Writer writes the maps of a fit slab by slab (ranges of whole slices, in
+// order): every map file is opened at the start with its header, each
+// Append adds one slab to every file (compressed in parallel, one
+// goroutine per file), and Close finishes the files and writes the
+// sidecars and provenance.json. Memory does not grow with the number of
+// slices. A Writer is not safe for concurrent use.
+type Writer struct {
+	st     *Stage
+	info   *Info
+	outs   []fit.Param
+	files  []*nifti.StreamWriter
+	stems  []string
+	metas  []map[string]any
+	counts [fit.NumStatus]int
+	thr    float64
+	status []float32
+	err    error
+	closed bool
+	// sums receives the checksums of the inputs, computed while the maps
+	// are made (reading a large series takes a while).
+	sums chan checksums
+}
+
+type checksums struct {
+	recs []InputRecord
+	err  error
+}
+
+// NewWriter opens every map of a fit with outputs outs on a grid of dims
+// voxels with the given affine.
+func NewWriter(st *Stage, outs []fit.Param, dims [3]int, affine volume.Affine, info *Info) (*Writer, error) {
+	w := &Writer{st: st, info: info, outs: outs, sums: make(chan checksums, 1)}
+	go func(in []series.Input) {
+		var c checksums
+		for _, i := range in {
+			sum, n, err := Checksum(i.Path)
+			if err != nil {
+				c.err = err
+				break
+			}
+			c.recs = append(c.recs, InputRecord{Path: i.Path, Role: i.Role, SHA256: sum, Bytes: n})
+		}
+		w.sums <- c
+	}(append([]series.Input(nil), info.Inputs...))
+	grid := [4]int{dims[0], dims[1], dims[2], 1}
+	open := func(stem string, dt nifti.Datatype, meta map[string]any) error {
+		f, err := nifti.Create(st.Path(stem+".nii.gz"), grid, affine, &nifti.WriteOptions{Datatype: dt, Description: "tauvox " + stem})
 		if err != nil {
 			return err
 		}
-		return series.WriteFileAtomic(st.Path(stem+".json"), append(b, '\n'))
+		w.files = append(w.files, f)
+		w.stems = append(w.stems, stem)
+		w.metas = append(w.metas, meta)
+		return nil
 	}
-	base := func(quantity, unit, desc string) map[string]any {
-		return map[string]any{
-			"Quantity":            quantity,
-			"Units":               unit,
-			"Description":         desc,
-			"Model":               info.Model,
-			"Method":              info.Method,
-			"EstimationAlgorithm": fmt.Sprintf("tauvox %s model, %s method", info.Model, info.Method),
-			"ToolVersion":         info.Version,
-			"Sources":             sources(info.Inputs),
-		}
-	}
-	writeMap := func(stem string, data []float32, dt nifti.Datatype, meta map[string]any) error {
-		if err := nifti.Write(st.Path(stem+".nii.gz"), grid(data), &nifti.WriteOptions{Datatype: dt, Description: "tauvox " + stem}); err != nil {
-			return err
-		}
-		names = append(names, stem+".nii.gz", stem+".json")
-		return side(stem, meta)
-	}
-	for k, p := range m.Outputs {
-		if err := writeMap(p.Map, m.Values[k], nifti.Float32, base(p.Name, p.Unit, p.Desc)); err != nil {
+	for _, p := range outs {
+		if err := open(p.Map, nifti.Float32, w.base(p.Name, p.Unit, p.Desc)); err != nil {
+			w.Abort()
 			return nil, err
 		}
-		meta := base(p.Name+" standard error", p.Unit, "standard error of "+p.Name+" from the Jacobian and the residual variance")
-		if err := writeMap(p.Map+"_sd", m.SE[k], nifti.Float32, meta); err != nil {
+		meta := w.base(p.Name+" standard error", p.Unit, "standard error of "+p.Name+" from the Jacobian and the residual variance")
+		if err := open(p.Map+"_sd", nifti.Float32, meta); err != nil {
+			w.Abort()
 			return nil, err
 		}
 	}
-	if err := writeMap("fitquality", m.R2, nifti.Float32, base("R2", "1", "coefficient of determination of the fit, 1 − RSS/TSS")); err != nil {
+	if err := open("fitquality", nifti.Float32, w.base("R2", "1", "coefficient of determination of the fit, 1 − RSS/TSS")); err != nil {
+		w.Abort()
 		return nil, err
 	}
-	status := make([]float32, len(m.Status))
 	codes := map[string]int{}
-	for v, s := range m.Status {
-		status[v] = float32(s)
-	}
 	for s := 0; s < fit.NumStatus; s++ {
 		codes[fit.Status(s).String()] = s
 	}
-	smeta := base("status", "code", "fit outcome per voxel")
+	smeta := w.base("status", "code", "fit outcome per voxel")
 	smeta["Codes"] = codes
-	if err := writeMap("status", status, nifti.Uint8, smeta); err != nil {
+	if err := open("status", nifti.Uint8, smeta); err != nil {
+		w.Abort()
 		return nil, err
 	}
+	return w, nil
+}
 
+func (w *Writer) base(quantity, unit, desc string) map[string]any {
+	return map[string]any{
+		"Quantity":            quantity,
+		"Units":               unit,
+		"Description":         desc,
+		"Model":               w.info.Model,
+		"Method":              w.info.Method,
+		"EstimationAlgorithm": fmt.Sprintf("tauvox %s model, %s method", w.info.Model, w.info.Method),
+		"ToolVersion":         w.info.Version,
+		"Sources":             sources(w.info.Inputs),
+	}
+}
+
+// Append writes the next slab of maps (whole slices, in order) and adds
+// its status counts. m.Outputs must be the outputs given to NewWriter.
+func (w *Writer) Append(m *fit.Maps) error {
+	if w.err != nil {
+		return w.err
+	}
+	if len(m.Values) != len(w.outs) {
+		w.err = fmt.Errorf("mapset: %d outputs appended, %d opened", len(m.Values), len(w.outs))
+		w.Abort()
+		return w.err
+	}
+	if cap(w.status) < len(m.Status) {
+		w.status = make([]float32, len(m.Status))
+	}
+	w.status = w.status[:len(m.Status)]
+	for v, s := range m.Status {
+		w.status[v] = float32(s)
+	}
+	parts := make([][]float32, 0, len(w.files))
+	for k := range m.Values {
+		parts = append(parts, m.Values[k], m.SE[k])
+	}
+	parts = append(parts, m.R2, w.status)
+	errs := make([]error, len(parts))
+	var wg sync.WaitGroup
+	for i := range parts {
+		wg.Add(1)
+		go func(i int) {
+			defer wg.Done()
+			errs[i] = w.files[i].Append(parts[i])
+		}(i)
+	}
+	wg.Wait()
+	if err := errors.Join(errs...); err != nil {
+		w.err = err
+		w.Abort()
+		return err
+	}
+	for s, c := range m.Counts {
+		w.counts[s] += c
+	}
+	w.thr = m.Threshold
+	return nil
+}
+
+// Close finishes every map, writes the sidecars and provenance.json, and
+// returns the file names written. The timings in the Info are read now,
+// so a caller may add to them up to Close.
+func (w *Writer) Close() ([]string, error) {
+	if w.err != nil {
+		return nil, w.err
+	}
+	if w.closed {
+		return nil, errors.New("mapset: writer already closed")
+	}
+	w.closed = true
+	errs := make([]error, len(w.files))
+	var wg sync.WaitGroup
+	for i, f := range w.files {
+		wg.Add(1)
+		go func(i int, f *nifti.StreamWriter) {
+			defer wg.Done()
+			errs[i] = f.Close()
+		}(i, f)
+	}
+	wg.Wait()
+	if err := errors.Join(errs...); err != nil {
+		w.err = err
+		w.Abort()
+		return nil, err
+	}
+	var names []string
+	for i, stem := range w.stems {
+		b, err := json.MarshalIndent(w.metas[i], "", "  ")
+		if err != nil {
+			return nil, err
+		}
+		if err := series.WriteFileAtomic(w.st.Path(stem+".json"), append(b, '\n')); err != nil {
+			return nil, err
+		}
+		names = append(names, stem+".nii.gz", stem+".json")
+	}
+	info := w.info
 	prov := Provenance{
 		Tool: "tauvox", Version: info.Version, Created: time.Now().UTC().Format(time.RFC3339),
 		Model: info.Model, Method: info.Method, Settings: info.Settings,
 		Field: num(info.Source.FieldStrength), Scanner: info.Source.Scanner, Acquired: info.Source.AcquiredAt,
-		Series: info.Source.Description, Outputs: append([]string(nil), names...), Threshold: m.Threshold,
+		Series: info.Source.Description, Outputs: append([]string(nil), names...), Threshold: w.thr,
 		Status: map[string]int{}, Timings: info.Timings, Caution: Caution,
 	}
-	for _, in := range info.Inputs {
-		sum, n, err := Checksum(in.Path)
-		if err != nil {
-			return nil, err
-		}
-		prov.Inputs = append(prov.Inputs, InputRecord{Path: in.Path, Role: in.Role, SHA256: sum, Bytes: n})
+	sums := <-w.sums
+	if sums.err != nil {
+		return nil, sums.err
 	}
+	prov.Inputs = sums.recs
 	for _, a := range info.Acq {
 		prov.Protocol = append(prov.Protocol, Protocol{TE: num(a.EchoTime), TI: num(a.InversionTime), TR: num(a.RepetitionTime), FA: num(a.FlipAngle)})
 	}
-	for s, c := range m.Counts {
+	for s, c := range w.counts {
 		prov.Status[fit.Status(s).String()] = c
 	}
 	b, err := json.MarshalIndent(prov, "", "  ")
 	if err != nil {
 		return nil, err
 	}
-	if err := series.WriteFileAtomic(st.Path("provenance.json"), append(b, '\n')); err != nil {
+	if err := series.WriteFileAtomic(w.st.Path("provenance.json"), append(b, '\n')); err != nil {
 		return nil, err
 	}
 	return append(names, "provenance.json"), nil
+}
+
+// Abort abandons every map file not yet closed (the stage's own Abort
+// removes the folder).
+func (w *Writer) Abort() {
+	for _, f := range w.files {
+		f.Abort()
+	}
 }
 
 func sources(in []series.Input) []string {

@@ -116,7 +116,7 @@ type rowData struct {
 
 type seriesData struct {
 	Quantity, Map, Slice, Centre, Rotation, Mirrored, Confidence, LocMethod, Residual string
-	Model, FitMethod, Protocol                                                        string
+	Model, FitMethod, Protocol, Description                                           string
 	Inputs                                                                            []inputData
 }
 
@@ -126,8 +126,8 @@ func build(p *Page) (*pageData, error) {
 	qa := p.QA
 	s := qa.Session
 	d := &pageData{
-		Phantom:      orDash(s.Phantom),
-		Scanner:      orDash(s.Scanner),
+		Phantom:      display(s.Phantom, maxDisplay),
+		Scanner:      display(s.Scanner, maxDisplay),
 		When:         strings.TrimSpace(s.Date + " " + s.Time),
 		Field:        num(s.Field, 2, " T"),
 		Temperature:  num(s.Temperature, 1, " °C"),
@@ -278,7 +278,7 @@ func counts(vials []phantom.VialQA) string {
 
 func row(r *phantom.VialQA) rowData {
 	rd := rowData{
-		ID: orDash(r.ID), Quantity: orDash(r.Quantity), N: fmt.Sprint(r.N),
+		ID: display(r.ID, maxDisplay), Quantity: display(r.Quantity, maxDisplay), N: fmt.Sprint(r.N),
 		Mean: num(r.Mean, 1, ""), Median: num(r.Median, 1, ""), SD: num(r.SD, 1, ""),
 		Reference: "–", Deviation: "–", Tolerance: "–",
 		Verdict: verdictClass(r.Verdict), Note: r.Note,
@@ -298,7 +298,7 @@ func row(r *phantom.VialQA) rowData {
 func series(sr *phantom.SeriesRef) seriesData {
 	l := sr.Localisation
 	sd := seriesData{
-		Quantity: orDash(sr.Quantity), Map: orDash(sr.Map), Slice: fmt.Sprint(l.Slice),
+		Quantity: display(sr.Quantity, maxDisplay), Map: orDash(sr.Map), Slice: fmt.Sprint(l.Slice),
 		Centre:     fmt.Sprintf("%s, %s, %s", num(l.Center[0], 1, ""), num(l.Center[1], 1, ""), num(l.Center[2], 1, "")),
 		Rotation:   num(l.Rotation, 1, "°"),
 		Mirrored:   "no",
@@ -308,6 +308,9 @@ func series(sr *phantom.SeriesRef) seriesData {
 		Residual:   num(l.Residual, 2, " mm"),
 		Model:      orDash(sr.Model),
 		Protocol:   protocol(sr.Protocol),
+	}
+	if strings.TrimSpace(sr.Description) != "" {
+		sd.Description = display(sr.Description, maxDisplay)
 	}
 	if l.Mirrored {
 		sd.Mirrored = "yes"

@@ -137,13 +137,8 @@ func oneLine(s string) string { return strings.Join(strings.Fields(s), " ") }
 
 func (s *Store) init(opt *Options) error {
 	ctx := context.Background()
-	if !opt.ReadOnly {
-		// WAL lets readers work beside a writer; set once, persistent.
-		var mode string
-		if err := s.db.QueryRowContext(ctx, "PRAGMA journal_mode=WAL").Scan(&mode); err != nil {
-			return s.wrap(err)
-		}
-	}
+	// Check that the file is ours before changing anything in it: setting
+	// WAL first rewrote another program's SQLite file before refusing it.
 	var v int
 	if err := s.db.QueryRowContext(ctx, "PRAGMA user_version").Scan(&v); err != nil {
 		return s.wrap(err)
@@ -160,6 +155,13 @@ func (s *Store) init(opt *Options) error {
 	}
 	if v > SchemaVersion {
 		return fmt.Errorf("%s: schema version %d is newer than this tauvox (%d); upgrade tauvox", s.path, v, SchemaVersion)
+	}
+	if !opt.ReadOnly {
+		// WAL lets readers work beside a writer; set once, persistent.
+		var mode string
+		if err := s.db.QueryRowContext(ctx, "PRAGMA journal_mode=WAL").Scan(&mode); err != nil {
+			return s.wrap(err)
+		}
 	}
 	target := SchemaVersion
 	if opt.maxVersion > 0 {

@@ -159,7 +159,13 @@ var ErrOutOfRange = errors.New("temperature outside the reference table")
 // set. Outside the table's temperature range it returns ErrOutOfRange
 // unless extrapolate is set, when the nearest two rows are extended
 // linearly. ok is false when the vial has no reference for q at that field.
+// A temperature that is NaN or infinite is an error.
 func (v *Vial) ReferenceAt(q string, field, temp float64, extrapolate bool) (value, uncPct float64, ok bool, err error) {
+	if !finite(temp) {
+		// Found by FuzzParse: a NaN temperature fell through every
+		// comparison and gave a NaN reference with no error.
+		return 0, 0, false, fmt.Errorf("vial %s %s: session temperature %g °C is not a number", v.ID, q, temp)
+	}
 	var rows []Row
 	best := math.Inf(1)
 	for _, r := range v.Reference[q] {

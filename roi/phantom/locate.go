@@ -6,6 +6,7 @@ import (
 	"math"
 	"sort"
 
+	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -298,57 +299,8 @@ func unit(a [3]float64) [3]float64 {
 	return [3]float64{a[0] / l, a[1] / l, a[2] / l}
 }
 
-// otsuVolume returns Otsu's threshold of the finite positive values of
-// the first volume (Otsu 1979).
-func otsuVolume(im *volume.Image) float64 {
-	vals := im.Volume(0)
-	top := 0.0
-	for _, v := range vals {
-		if f := float64(v); f > top && !math.IsInf(f, 0) {
-			top = f
-		}
-	}
-	if !(top > 0) {
-		return 0
-	}
-	const bins = 256
-	var h [bins]float64
-	var n float64
-	for _, v := range vals {
-		f := float64(v)
-		if !(f > 0) || math.IsInf(f, 0) {
-			f = 0
-		}
-		h[min(int(f/top*(bins-1)), bins-1)]++
-		n++
-	}
-	var all float64
-	for i, c := range h {
-		all += float64(i) * c
-	}
-	var wb, sb, best float64
-	lo, hi := 0, 0
-	for i := 0; i < bins; i++ {
-		wb += h[i]
-		if wb == 0 {
-			continue
-		}
-		wf := n - wb
-		if wf == 0 {
-			break
-		}
-		sb += float64(i) * h[i]
-		d := sb/wb - (all-sb)/wf
-		b := wb * wf * d * d
-		switch {
-		case b > best*(1+1e-12):
-			best, lo, hi = b, i, i
-		case b >= best*(1-1e-12):
-			hi = i
-		}
-	}
-	return (float64(lo+hi)/2 + 1) / (bins - 1) * top
-}
+// otsuVolume returns Otsu's threshold of the first volume.
+func otsuVolume(im *volume.Image) float64 { return fit.OtsuThreshold(im.Volume(0)) }
 
 // bestSlice picks the slice with the largest object area.
 func (s *slicer) bestSlice() (int, error) {

@@ -45,8 +45,11 @@ type Session struct {
 
 // SeriesRef describes one measured map and how it was made.
 type SeriesRef struct {
-	Quantity     string       `json:"quantity"` // T1, T2
-	Map          string       `json:"map"`      // path of the map read
+	Quantity string `json:"quantity"` // T1, T2
+	Map      string `json:"map"`      // path of the map read
+	// Description is the description of the fitted series as its
+	// provenance gives it (text from the scanner: escape before showing).
+	Description  string       `json:"description,omitempty"`
 	Model        string       `json:"model,omitempty"`
 	Method       string       `json:"method,omitempty"`
 	Protocol     []Protocol   `json:"protocol,omitempty"`

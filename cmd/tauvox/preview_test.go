@@ -1,0 +1,61 @@
+package main
+
+import (
+	"image/color"
+	"image/png"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/tauvox/tauvox/io/preview"
+)
+
+// TestPreviewCommand: a montage per map; masked voxels black, valid ones
+// in the quantity's table (viridis for T2, check-values §5 handling).
+func TestPreviewCommand(t *testing.T) {
+	series := simulated(t, "t2")
+	maps := filepath.Join(t.TempDir(), "maps")
+	if code, _, stderr := tauvox(t, "fit", series, "--model", "t2", "--out", maps, "--quiet", "--no-preview"); code != 0 {
+		t.Fatal(stderr)
+	}
+	code, stdout, stderr := tauvox(t, "preview", maps, "--range", "0,2000")
+	if code != 0 || !strings.Contains(stdout, "wrote 4 previews") {
+		t.Fatalf("%d %s %s", code, stdout, stderr)
+	}
+	f, err := os.Open(filepath.Join(maps, "T2map.png"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	img, err := png.Decode(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var black, table int
+	inTable := map[color.RGBA]bool{}
+	for _, c := range preview.Viridis.Colors {
+		inTable[c] = true
+	}
+	b := img.Bounds()
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			r, g, bb, _ := img.At(x, y).RGBA()
+			c := color.RGBA{uint8(r >> 8), uint8(g >> 8), uint8(bb >> 8), 255}
+			if c == preview.Black {
+				black++
+			} else if inTable[c] {
+				table++
+			}
+		}
+	}
+	if black == 0 || table == 0 {
+		t.Errorf("black %d, viridis %d pixels", black, table)
+	}
+	if code, _, stderr := tauvox(t, "preview", maps); code != 2 || !strings.Contains(stderr, "exists") {
+		t.Errorf("existing PNG: %d %s", code, stderr)
+	}
+	if code, _, stderr := tauvox(t, "preview", maps, "--range", "9,1", "--force"); code != 2 || !strings.Contains(stderr, "LO must be below HI") {
+		t.Errorf("bad range: %d %s", code, stderr)
+	}
+}

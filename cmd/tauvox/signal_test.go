@@ -1,0 +1,204 @@
+package main
+
+import (
+	"bytes"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"syscall"
+	"testing"
+	"time"
+
+	"github.com/tauvox/tauvox/io/nifti"
+)
+
+// child returns the test binary as a tauvox command (see TestMain).
+func child(t *testing.T, env []string, args ...string) (*exec.Cmd, *bytes.Buffer) {
+	t.Helper()
+	exe, err := os.Executable()
+	if err != nil {
+		t.Fatal(err)
+	}
+	cmd := exec.Command(exe, args...)
+	cmd.Env = append(append(os.Environ(), "TAUVOX_TEST_CHILD=1"), env...)
+	var out bytes.Buffer
+	cmd.Stdout, cmd.Stderr = &out, &out
+	return cmd, &out
+}
+
+// waitFor polls until cond holds or the time runs out.
+func waitFor(t *testing.T, what string, d time.Duration, cond func() bool) {
+	t.Helper()
+	for end := time.Now().Add(d); time.Now().Before(end); time.Sleep(10 * time.Millisecond) {
+		if cond() {
+			return
+		}
+	}
+	t.Fatalf("timed out waiting for %s", what)
+}
+
+// stageOf returns the temporary folders of an output folder's stage.
+func stageOf(out string) []string {
+	m, _ := filepath.Glob(filepath.Join(filepath.Dir(out), "."+filepath.Base(out)+".tmp-*"))
+	return m
+}
+
+// slowFit starts a fit slow enough to be interrupted: the gonum optimiser
+// (about 0.1 ms a voxel) on one worker, 64×64×4 voxels, in slabs of one
+// slice (--memory 1M) so that maps are appended to the stage during the
+// fit, not only at the end.
+func slowFit(t *testing.T, out string) (*exec.Cmd, *bytes.Buffer) {
+	t.Helper()
+	dir := filepath.Join(t.TempDir(), "sim")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t2", "--out", dir, "--matrix", "64", "--slices", "4"); code != 0 {
+		t.Fatal(e)
+	}
+	cmd, buf := child(t, nil, "fit", filepath.Join(dir, "t2.nii.gz"), "--model", "t2", "--gonum", "--workers", "1",
+		"--memory", "1M", "--out", out, "--quiet")
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() {
+		if cmd.ProcessState == nil {
+			cmd.Process.Kill()
+			cmd.Wait()
+		}
+	})
+	return cmd, buf
+}
+
+// TestInterrupt: SIGINT and SIGTERM during a fit stop the workers, remove
+// the temporary folder and exit 130 with one line; no output exists.
+func TestInterrupt(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts a subprocess")
+	}
+	for _, sig := range []syscall.Signal{syscall.SIGINT, syscall.SIGTERM} {
+		out := filepath.Join(t.TempDir(), "maps")
+		cmd, buf := slowFit(t, out)
+		waitFor(t, "the stage", 20*time.Second, func() bool { return len(stageOf(out)) > 0 })
+		time.Sleep(300 * time.Millisecond) // into the fit
+		t0 := time.Now()
+		cmd.Process.Signal(sig)
+		err := cmd.Wait()
+		code := cmd.ProcessState.ExitCode()
+		t.Logf("%v: exit %d after %v: %s", sig, code, time.Since(t0), strings.TrimSpace(buf.String()))
+		if code != 130 {
+			t.Errorf("%v: exit %d (%v), want 130: %s", sig, code, err, buf)
+		}
+		if !strings.Contains(buf.String(), "interrupted; no output was written") {
+			t.Errorf("%v: message %q", sig, buf)
+		}
+		if _, err := os.Stat(out); err == nil {
+			t.Errorf("%v: output folder exists", sig)
+		}
+		if s := stageOf(out); len(s) > 0 {
+			t.Errorf("%v: temporary folder left: %v", sig, s)
+		}
+		if entries, _ := os.ReadDir(filepath.Dir(out)); len(entries) != 0 {
+			t.Errorf("%v: left in the output's parent: %v", sig, entries)
+		}
+	}
+}
+
+// TestKilled: a fit killed with SIGKILL while it appends maps leaves no
+// file that looks complete (no output folder; what was written lies in
+// the hidden temporary folder only), and running it again succeeds.
+func TestKilled(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts a subprocess")
+	}
+	out := filepath.Join(t.TempDir(), "maps")
+	cmd, _ := slowFit(t, out)
+	// Wait until a map in the stage holds data: the kill lands mid-write.
+	waitFor(t, "a map being written", 30*time.Second, func() bool {
+		for _, s := range stageOf(out) {
+			m, _ := filepath.Glob(filepath.Join(s, "*.nii*"))
+			for _, p := range m {
+				if st, err := os.Stat(p); err == nil && st.Size() > 0 {
+					return true
+				}
+			}
+		}
+		return false
+	})
+	cmd.Process.Kill()
+	cmd.Wait()
+	if _, err := os.Stat(out); err == nil {
+		t.Fatal("output folder exists after SIGKILL")
+	}
+	left := stageOf(out)
+	t.Logf("after SIGKILL: %v", left)
+	// Nothing outside the hidden stage: a reader of the parent folder sees
+	// no maps.
+	entries, _ := os.ReadDir(filepath.Dir(out))
+	for _, e := range entries {
+		if !strings.HasPrefix(e.Name(), ".maps.tmp-") {
+			t.Errorf("after SIGKILL: %s in the output's parent", e.Name())
+		}
+	}
+	// The rerun (in-process) succeeds and writes complete maps.
+	series := cmd.Args[2] // [exe fit SERIES ...]
+	code, _, stderr := tauvox(t, "fit", series, "--model", "t2", "--out", out, "--quiet")
+	if code != 0 {
+		t.Fatalf("rerun: exit %d: %s", code, stderr)
+	}
+	m, err := nifti.Read(filepath.Join(out, "T2map.nii.gz"))
+	if err != nil || m.Dims != [4]int{64, 64, 4, 1} {
+		t.Fatalf("rerun map: %v %v", err, m)
+	}
+}
+
+// TestDiskFull: a fit whose output cannot be written gives one clear
+// line, exit 2, and leaves no output and no temporary folder. Two ways to
+// fill the disk: a 64 KiB tmpfs mounted for the test (needs root; skipped
+// otherwise) gives ENOSPC; a file-size limit (RLIMIT_FSIZE, no root
+// needed) gives EFBIG on the first write past it.
+func TestDiskFull(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts a subprocess")
+	}
+	dir := filepath.Join(t.TempDir(), "sim")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t2", "--out", dir, "--matrix", "48", "--slices", "2"); code != 0 {
+		t.Fatal(e)
+	}
+	series := filepath.Join(dir, "t2.nii.gz")
+	check := func(name, out, want string, env []string) {
+		t.Helper()
+		cmd, buf := child(t, env, "fit", series, "--model", "t2", "--out", out, "--quiet")
+		cmd.Run()
+		code := cmd.ProcessState.ExitCode()
+		msg := strings.TrimSpace(buf.String())
+		t.Logf("%s: exit %d: %s", name, code, msg)
+		if code != 2 || !strings.Contains(msg, want) || strings.Contains(msg, "\n") {
+			t.Errorf("%s: exit %d %q, want 2 and one line with %q", name, code, msg, want)
+		}
+		if _, err := os.Stat(out); err == nil {
+			t.Errorf("%s: output folder exists", name)
+		}
+		if s := stageOf(out); len(s) > 0 {
+			t.Errorf("%s: temporary folder left: %v", name, s)
+		}
+	}
+	t.Run("tmpfs", func(t *testing.T) {
+		mnt := t.TempDir()
+		if os.Geteuid() != 0 {
+			t.Skip("mounting a small tmpfs needs root")
+		}
+		if err := syscall.Mount("tmpfs", mnt, "tmpfs", 0, "size=64k"); err != nil {
+			t.Skipf("cannot mount a tmpfs here: %v", err)
+		}
+		defer syscall.Unmount(mnt, 0)
+		out := filepath.Join(mnt, "maps")
+		check("tmpfs 64 KiB", out, "no space left on device", nil)
+		if entries, _ := os.ReadDir(mnt); len(entries) != 0 {
+			t.Errorf("left on the full disk: %v", entries)
+		}
+	})
+	t.Run("rlimit", func(t *testing.T) {
+		out := filepath.Join(t.TempDir(), "maps")
+		check("RLIMIT_FSIZE 8 KiB", out, "file too large", []string{"TAUVOX_TEST_FSIZE=" + strconv.Itoa(8<<10)})
+	})
+}

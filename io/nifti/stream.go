@@ -1,0 +1,507 @@
+package nifti
+
+import (
+	"bufio"
+	"errors"
+	"fmt"
+	"github.com/klauspost/compress/gzip"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// streamLimit is the sample-count limit of the streaming reader: it never
+// holds a whole image, so only the per-slab buffers of its caller bound
+// the memory (1<<60 keeps byte counts far from int64 overflow).
+const streamLimit = 1 << 60
+
+// SlabReader reads a 3-D or 4-D NIfTI image one slab at a time, a slab
+// being a range of slices (third index k) of some or all volumes, without
+// holding the whole image. It reads from an uncompressed file by offset
+// (one positioned read per volume and slab). A gzip-compressed image is
+// read sequentially when the first request is the whole image (no extra
+// file); any other request first decompresses the samples once into a
+// temporary file, removed by Close. A SlabReader is not safe for
+// concurrent use.
+type SlabReader struct {
+	// Header is the header read and checked at open.
+	Header *Header
+
+	name  string // path as given, for errors
+	dims  [4]int
+	n     int64 // samples
+	sc    scaling
+	f     *os.File // source of positioned reads, nil until known
+	off   int64    // byte offset of sample 0 in f
+	files []*os.File
+	tmp   string // temporary file to remove, "" when none
+	dir   string // folder for the temporary file
+
+	// For gzip sources before spilling: the open stream, positioned at
+	// the first sample, and whether it has been consumed.
+	gz       *stream
+	consumed bool
+
+	buf []byte
+}
+
+// SlabOptions holds the settings of OpenSlabs. The zero value (and nil)
+// puts a temporary file in os.TempDir().
+type SlabOptions struct {
+	// TempDir is the folder of the temporary uncompressed copy of a
+	// gzip-compressed image; os.TempDir() if empty.
+	TempDir string
+}
+
+// OpenSlabs opens the NIfTI image at path (.nii, .nii.gz, or either half
+// of a .hdr/.img pair) for reading by slabs. It reads and checks the
+// header and, for an uncompressed file, that the file holds the samples the
+// header declares. Close releases the files and removes any temporary
+// copy.
+func OpenSlabs(path string, o *SlabOptions) (*SlabReader, error) {
+	rd := &Reader{MaxBytes: streamLimit}
+	hdrPath := path
+	if base, gz, ok := cutSuffix(path, ".img"); ok {
+		hdrPath = companion(base, ".hdr", gz)
+	}
+	f, s, err := openStream(hdrPath)
+	if err != nil {
+		return nil, err
+	}
+	r := &SlabReader{name: path, files: []*os.File{f}}
+	if o != nil {
+		r.dir = o.TempDir
+	}
+	h, n, err := rd.header(s, hdrPath)
+	if err != nil {
+		r.Close()
+		return nil, err
+	}
+	r.Header, r.n, r.dims = h, n, h.Dims()
+	r.sc.slope, r.sc.inter, r.sc.on = h.Scaling()
+	src, srcFile := s, f
+	if h.Pair {
+		base, gz, ok := cutSuffix(hdrPath, ".hdr")
+		if !ok {
+			r.Close()
+			return nil, formatErr(hdrPath, "header magic says the samples are in a separate .img file, but the name does not end .hdr", nil)
+		}
+		imgPath := companion(base, ".img", gz)
+		g, d, err := openStream(imgPath)
+		if err != nil {
+			r.Close()
+			return nil, err
+		}
+		r.files = append(r.files, g)
+		src, srcFile = d, g
+	}
+	if err := src.checkLength(h, n); err != nil {
+		r.Close()
+		return nil, err
+	}
+	if src.gz == nil {
+		r.f, r.off = srcFile, h.VoxOffset
+		return r, nil
+	}
+	if err := src.skipTo(h.VoxOffset, DefaultMaxBytes); err != nil {
+		r.Close()
+		return nil, err
+	}
+	r.gz = src
+	return r, nil
+}
+
+// Dims returns the grid size Nx, Ny, Nz, Nt.
+func (r *SlabReader) Dims() [4]int { return r.dims }
+
+// Affine returns the voxel-to-world affine in millimetres (Header.Affine).
+func (r *SlabReader) Affine() volume.Affine { return r.Header.Affine() }
+
+// Source returns the description of the image as Read would give it.
+func (r *SlabReader) Source() volume.Source {
+	return volume.Source{Path: r.name, Format: "nifti", Description: r.Header.Descrip, FieldStrength: math.NaN()}
+}
+
+// Spilled reports whether a temporary uncompressed copy was made.
+func (r *SlabReader) Spilled() bool { return r.tmp != "" }
+
+// ReadSlab fills dst with slices z0…z1−1 of the volumes listed in vols
+// (nil: every volume in order), volume after volume:
+//
+//	dst[i*S + s], S = Nx·Ny·(z1−z0), s the voxel index inside the slab,
+//
+// for the i-th listed volume, converted to float32 with the scaling
+// applied, as Read does. It panics if dst is shorter than that or the
+// ranges are out of the image; a short or corrupt file gives an error.
+func (r *SlabReader) ReadSlab(dst []float32, z0, z1 int, vols []int) error {
+	nx, ny, nz, nt := r.dims[0], r.dims[1], r.dims[2], r.dims[3]
+	if z0 < 0 || z1 > nz || z0 >= z1 {
+		panic(fmt.Sprintf("nifti: slab %d…%d outside %d slices", z0, z1, nz))
+	}
+	all := vols == nil
+	if all {
+		vols = make([]int, nt)
+		for t := range vols {
+			vols[t] = t
+		}
+	}
+	per := nx * ny * (z1 - z0)
+	if len(dst) < per*len(vols) {
+		panic("nifti: slab destination too short")
+	}
+	for _, t := range vols {
+		if t < 0 || t >= nt {
+			panic(fmt.Sprintf("nifti: volume %d outside %d", t, nt))
+		}
+	}
+	if r.f == nil {
+		whole := z0 == 0 && z1 == nz
+		for i, t := range vols {
+			whole = whole && t == i
+		}
+		if whole && !r.consumed {
+			return r.sequential(dst, per, len(vols))
+		}
+		if err := r.spill(); err != nil {
+			return err
+		}
+	}
+	dt := r.Header.Datatype
+	sz := int64(dt.Size())
+	nv := int64(nx * ny * nz)
+	if cap(r.buf) < chunkBytes {
+		r.buf = make([]byte, chunkBytes)
+	}
+	for i, t := range vols {
+		start := r.off + (int64(t)*nv+int64(z0)*int64(nx*ny))*sz
+		out := dst[i*per : (i+1)*per]
+		for pos := 0; pos < per; {
+			k := min(per-pos, chunkBytes/int(sz))
+			b := r.buf[:int64(k)*sz]
+			got, err := r.f.ReadAt(b, start+int64(pos)*sz)
+			if got < len(b) {
+				if err == nil || err == io.EOF {
+					return formatErr(r.name, fmt.Sprintf("file ends inside the samples (volume %d, slice %d)", t+1, z0+1), io.ErrUnexpectedEOF)
+				}
+				return &fileError{r.name, "cannot read", err}
+			}
+			convert(out[pos:pos+k], b, dt, r.Header.ByteOrder, r.sc)
+			pos += k
+		}
+	}
+	return nil
+}
+
+// sequential reads the whole image from the gzip stream into dst.
+func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
+	r.consumed = true
+	s := r.gz
+	dt := r.Header.Datatype
+	sz := int64(dt.Size())
+	need := r.n * sz
+	if cap(r.buf) < chunkBytes {
+		r.buf = make([]byte, chunkBytes)
+	}
+	total := per * nvol
+	var read int64
+	for pos := 0; pos < total; {
+		k := min(total-pos, chunkBytes/int(sz))
+		b := r.buf[:int64(k)*sz]
+		got, err := s.readFull(b)
+		if err != nil {
+			return err
+		}
+		read += int64(got)
+		if got < len(b) {
+			return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, read), io.ErrUnexpectedEOF)
+		}
+		convert(dst[pos:pos+k], b, dt, r.Header.ByteOrder, r.sc)
+		pos += k
+	}
+	return s.finish()
+}
+
+// spill decompresses the samples into a temporary file and reads from it
+// from then on.
+func (r *SlabReader) spill() error {
+	if r.consumed {
+		// The stream was read once already: open it afresh.
+		if err := r.reopen(); err != nil {
+			return err
+		}
+	}
+	r.consumed = true
+	dir := r.dir
+	if dir == "" {
+		dir = os.TempDir()
+	}
+	t, err := os.CreateTemp(dir, ".tauvox-"+sanitize(filepath.Base(r.name), 40)+".*.raw")
+	if err != nil {
+		return &fileError{r.name, "cannot create temporary uncompressed copy", err}
+	}
+	r.tmp = t.Name()
+	r.files = append(r.files, t)
+	need := r.n * int64(r.Header.Datatype.Size())
+	bw := bufio.NewWriterSize(t, 1<<20)
+	got, err := io.CopyN(bw, r.gz.r, need)
+	r.gz.pos += got
+	if err == io.EOF {
+		return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, got), io.ErrUnexpectedEOF)
+	}
+	if err != nil {
+		var pe *os.PathError
+		if errors.As(err, &pe) {
+			return &fileError{r.tmp, "cannot write temporary uncompressed copy", err}
+		}
+		return r.gz.readErr(err)
+	}
+	if err := bw.Flush(); err != nil {
+		return &fileError{r.tmp, "cannot write temporary uncompressed copy", err}
+	}
+	if err := r.gz.finish(); err != nil {
+		return err
+	}
+	r.f, r.off = t, 0
+	return nil
+}
+
+// reopen opens the compressed source again at its first sample.
+func (r *SlabReader) reopen() error {
+	path := r.name
+	if r.Header.Pair {
+		base, gz, _ := cutSuffix(path, ".hdr")
+		if b, g, ok := cutSuffix(path, ".img"); ok {
+			base, gz = b, g
+		}
+		path = companion(base, ".img", gz)
+	}
+	f, s, err := openStream(path)
+	if err != nil {
+		return err
+	}
+	r.files = append(r.files, f)
+	if !r.Header.Pair {
+		if _, _, err := (&Reader{MaxBytes: streamLimit}).header(s, path); err != nil {
+			return err
+		}
+	}
+	if err := s.skipTo(r.Header.VoxOffset, DefaultMaxBytes); err != nil {
+		return err
+	}
+	r.gz = s
+	return nil
+}
+
+// Close closes the files and removes the temporary copy, if any.
+func (r *SlabReader) Close() error {
+	var first error
+	for _, f := range r.files {
+		if err := f.Close(); err != nil && first == nil && !errors.Is(err, os.ErrClosed) {
+			first = err
+		}
+	}
+	r.files = nil
+	if r.tmp != "" {
+		if err := os.Remove(r.tmp); err != nil && first == nil {
+			first = err
+		}
+		r.tmp = ""
+	}
+	return first
+}
+
+// StreamWriter writes a single-file NIfTI image whose samples arrive in
+// parts, in NIfTI order: the header first, then each Append, compressed
+// on the fly for a .nii.gz name. The file is written under a temporary name
+// in the target folder and renamed into place by Close, as Write does; an
+// error or Abort removes it. A StreamWriter is not safe for concurrent use.
+type StreamWriter struct {
+	path, tmp string
+	f         *os.File
+	bw        *bufio.Writer
+	zw        *gzip.Writer
+	w         io.Writer
+	dt        Datatype
+	want, got int64
+	err       error
+	done      bool
+}
+
+// Create starts the image at path with grid dims and the affine; opt is
+// as for Write (nil: the defaults). The samples then come by Append.
+func Create(path string, dims [4]int, affine volume.Affine, opt *WriteOptions) (*StreamWriter, error) {
+	var o WriteOptions
+	if opt != nil {
+		o = *opt
+	}
+	if o.Datatype == 0 {
+		o.Datatype = Float32
+	}
+	if o.Version == 0 {
+		o.Version = 1
+	}
+	if o.Compression == 0 {
+		o.Compression = DefaultCompression
+	}
+	n, err := volume.Count(dims)
+	if err != nil {
+		return nil, errors.New(message(path, "cannot write", err))
+	}
+	stand := &volume.Image{Dims: dims, Affine: affine}
+	gz, err := checkStream(path, stand, &o)
+	if err != nil {
+		return nil, err
+	}
+	hdr := encodeHeader(stand, &o)
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	if err != nil {
+		return nil, &fileError{path, "cannot create temporary file", err}
+	}
+	sw := &StreamWriter{path: path, tmp: f.Name(), f: f, dt: o.Datatype, want: int64(n)}
+	sw.bw = bufio.NewWriterSize(f, 1<<20)
+	sw.w = sw.bw
+	if gz {
+		if sw.zw, err = gzip.NewWriterLevel(sw.bw, o.Compression); err != nil {
+			sw.Abort()
+			return nil, &fileError{path, "cannot write", err}
+		}
+		sw.w = sw.zw
+	}
+	if _, err := sw.w.Write(hdr); err != nil {
+		sw.Abort()
+		return nil, &fileError{path, "cannot write", err}
+	}
+	return sw, nil
+}
+
+// checkStream makes the checks of checkWrite that do not need the
+// samples: the name, the datatype, the version and its dimension limit,
+// the affine, the time step and the gzip level.
+func checkStream(path string, im *volume.Image, o *WriteOptions) (gz bool, err error) {
+	bad := func(reason string) error { return errors.New(message(path, reason, nil)) }
+	lower := strings.ToLower(path)
+	switch {
+	case strings.HasSuffix(lower, ".nii.gz"):
+		gz = true
+	case strings.HasSuffix(lower, ".nii"):
+	default:
+		return false, bad("file name must end .nii or .nii.gz")
+	}
+	if !o.Datatype.writable() {
+		return false, bad(fmt.Sprintf("cannot write datatype %s", o.Datatype))
+	}
+	if o.Version != 1 && o.Version != 2 {
+		return false, bad(fmt.Sprintf("version %d, want 1 or 2", o.Version))
+	}
+	if o.Version == 1 {
+		for _, d := range im.Dims {
+			if d > math.MaxInt16 {
+				return false, bad(fmt.Sprintf("dimension %d exceeds the NIfTI-1 limit of %d; write NIfTI-2", d, math.MaxInt16))
+			}
+		}
+	}
+	if !finiteAffine(&im.Affine) {
+		return false, bad("affine holds NaN or Inf")
+	}
+	if math.IsNaN(o.TimeStep) || math.IsInf(o.TimeStep, 0) || o.TimeStep < 0 {
+		return false, bad(fmt.Sprintf("time step %g ms is not a finite non-negative number", o.TimeStep))
+	}
+	if (o.Compression < gzip.HuffmanOnly || o.Compression > gzip.BestCompression) && gz {
+		return false, bad(fmt.Sprintf("gzip level %d out of range", o.Compression))
+	}
+	return gz, nil
+}
+
+// Append writes the next samples (NIfTI order). Integer datatypes need
+// whole numbers within range, as for Write.
+func (w *StreamWriter) Append(samples []float32) error {
+	if w.err != nil {
+		return w.err
+	}
+	if w.done {
+		return errors.New(message(w.path, "append after close", nil))
+	}
+	if w.got+int64(len(samples)) > w.want {
+		w.err = errors.New(message(w.path, fmt.Sprintf("%d samples appended, the grid holds %d", w.got+int64(len(samples)), w.want), nil))
+		w.Abort()
+		return w.err
+	}
+	if err := writeSamples(w.w, samples, w.dt); err != nil {
+		var se *sampleError
+		if errors.As(err, &se) {
+			se.index += int(w.got)
+			w.err = errors.New(message(w.path, "cannot write", se))
+		} else {
+			w.err = &fileError{w.path, "cannot write", err}
+		}
+		w.Abort()
+		return w.err
+	}
+	w.got += int64(len(samples))
+	return nil
+}
+
+// Close checks that every sample arrived, finishes the stream, syncs and
+// renames the file into place.
+func (w *StreamWriter) Close() error {
+	if w.err != nil {
+		return w.err
+	}
+	if w.done {
+		return nil
+	}
+	if w.got != w.want {
+		w.err = errors.New(message(w.path, fmt.Sprintf("closed after %d of %d samples", w.got, w.want), nil))
+		w.Abort()
+		return w.err
+	}
+	fail := func(op string, err error) error {
+		w.err = &fileError{w.path, op, err}
+		w.Abort()
+		return w.err
+	}
+	if w.zw != nil {
+		if err := w.zw.Close(); err != nil {
+			return fail("cannot write", err)
+		}
+	}
+	if err := w.bw.Flush(); err != nil {
+		return fail("cannot write", err)
+	}
+	if err := w.f.Chmod(0o644); err != nil {
+		return fail("cannot write", err)
+	}
+	if err := w.f.Sync(); err != nil {
+		return fail("cannot write", err)
+	}
+	if err := w.f.Close(); err != nil {
+		return fail("cannot write", err)
+	}
+	w.done = true
+	if err := os.Rename(w.tmp, w.path); err != nil {
+		os.Remove(w.tmp)
+		w.err = &fileError{w.path, "cannot rename temporary file", err}
+		return w.err
+	}
+	syncDir(filepath.Dir(w.path))
+	return nil
+}
+
+// Abort abandons the file: the temporary file is closed and removed and
+// path is left as it was. It is a no-op after Close.
+func (w *StreamWriter) Abort() {
+	if w.done {
+		return
+	}
+	w.done = true
+	w.f.Close()
+	os.Remove(w.tmp)
+}
