@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
@@ -54,6 +55,7 @@ verdict table and the drift table.`, e)
 	rng := rand.New(rand.NewPCG(2026, 12))
 	start := time.Date(2026, 1, 12, 8, 30, 0, 0, time.UTC)
 	var last *phantom.QA
+	index := &report.DemoIndex{Scanner: "HARBOUR-MR2", Phantom: phantom.Demo().Name, History: "history/index.html"}
 	for n := 0; n < sessions; n++ {
 		when := start.AddDate(0, n, rng.IntN(7)-3)
 		years := when.Sub(start).Hours() / 24 / 365.2425
@@ -109,6 +111,14 @@ verdict table and the drift table.`, e)
 		}
 		fmt.Fprintf(e.stdout, "session %2d  %s  %4.1f °C  phantom at (%5.1f, %5.1f) mm, %5.1f°: %s\n", n+1, when.Format("2006-01-02"), temp,
 			qa.Series[0].Localisation.Center[0], qa.Series[0].Localisation.Center[1], qa.Series[0].Localisation.Rotation, qa.Verdict)
+		failed := 0
+		for _, v := range qa.Vials {
+			if v.Verdict == phantom.Fail {
+				failed++
+			}
+		}
+		index.Sessions = append(index.Sessions, report.DemoSession{Date: qa.Session.Date, Time: qa.Session.Time,
+			Temperature: temp, Verdict: qa.Verdict, Failed: failed, Report: dir + "/qa/report.html"})
 		last = qa
 	}
 	db.Close()
@@ -121,6 +131,14 @@ verdict table and the drift table.`, e)
 	if err != nil {
 		return err
 	}
+	for _, s := range ss {
+		if s.Drifting {
+			index.Drifting = append(index.Drifting, s.Vial+" "+s.Quantity)
+		}
+	}
+	if err := report.WriteDemoIndex(st.Path("index.html"), index); err != nil {
+		return err
+	}
 	if err := st.Commit(); err != nil {
 		return err
 	}
@@ -131,6 +149,7 @@ verdict table and the drift table.`, e)
 	if violated {
 		fmt.Fprintln(e.stdout, "rules were violated: see", filepath.Join(out, "history", "index.html"))
 	}
+	fmt.Fprintln(e.stdout, "\nevery report and the charts:", filepath.Join(out, "index.html"))
 	fmt.Fprintln(e.stdout, "\n"+mapset.Caution)
 	return nil
 }

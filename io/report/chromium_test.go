@@ -25,7 +25,12 @@ const chromiumPath = "/usr/bin/chromium"
 //
 // Without Chromium the test is skipped, unless CI is set (CI installs
 // it), where it fails.
-func TestChromiumRenders(t *testing.T) {
+// screenshot opens page in headless Chromium (flags as the machine's
+// probe used them: no sandbox, no GPU, no background networking) and
+// returns the 1200×2000 screenshot. It skips when Chromium is missing,
+// unless CI is set, and fails on any browser-console message.
+func screenshot(t *testing.T, page string) image.Image {
+	t.Helper()
 	if _, err := os.Stat(chromiumPath); err != nil {
 		if os.Getenv("CI") == "" {
 			t.Skipf("%s not installed (apt-get install chromium)", chromiumPath)
@@ -35,18 +40,14 @@ func TestChromiumRenders(t *testing.T) {
 	if testing.Short() {
 		t.Skip("starts a browser")
 	}
-	dir := t.TempDir()
-	page := filepath.Join(dir, "report.html")
-	if err := Write(page, testPage(true)); err != nil {
-		t.Fatal(err)
-	}
-	shot := filepath.Join(dir, "shot.png")
+	work := t.TempDir()
+	shot := filepath.Join(work, "shot.png")
 	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
 	defer cancel()
 	cmd := exec.CommandContext(ctx, chromiumPath,
 		"--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
 		"--disable-background-networking", "--disable-component-update", "--disable-sync",
-		"--user-data-dir="+filepath.Join(dir, "profile"),
+		"--user-data-dir="+filepath.Join(work, "profile"),
 		"--enable-logging=stderr", "--v=0",
 		"--screenshot="+shot, "--window-size=1200,2000",
 		"file://"+page)
@@ -55,7 +56,7 @@ func TestChromiumRenders(t *testing.T) {
 	cmd.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
 	cmd.Cancel = func() error { return syscall.Kill(-cmd.Process.Pid, syscall.SIGKILL) }
 	cmd.WaitDelay = 5 * time.Second
-	cmd.Env = append(os.Environ(), "HOME="+dir)
+	cmd.Env = append(os.Environ(), "HOME="+work)
 	var stderr bytes.Buffer
 	cmd.Stdout, cmd.Stderr = &stderr, &stderr
 	err := cmd.Run()
@@ -82,6 +83,20 @@ func TestChromiumRenders(t *testing.T) {
 	if b := img.Bounds(); b.Dx() != 1200 || b.Dy() != 2000 {
 		t.Errorf("screenshot is %v, want 1200×2000", b)
 	}
+	if p := os.Getenv("TAUVOX_KEEP_SCREENSHOT"); p != "" {
+		b, _ := os.ReadFile(shot)
+		os.WriteFile(p, b, 0o644)
+	}
+	return img
+}
+
+func TestChromiumRenders(t *testing.T) {
+	dir := t.TempDir()
+	page := filepath.Join(dir, "report.html")
+	if err := Write(page, testPage(true)); err != nil {
+		t.Fatal(err)
+	}
+	img := screenshot(t, page)
 	colours, ink := census(img)
 	// The page shows two colour maps and plots: thousands of colours and
 	// a good share of non-white pixels. A blank or broken page has a
@@ -89,9 +104,27 @@ func TestChromiumRenders(t *testing.T) {
 	if colours < 200 || ink < 0.05 {
 		t.Errorf("screenshot looks blank: %d distinct colours, %.1f %% non-white", colours, 100*ink)
 	}
-	if p := os.Getenv("TAUVOX_KEEP_SCREENSHOT"); p != "" {
-		b, _ := os.ReadFile(shot)
-		os.WriteFile(p, b, 0o644)
+}
+
+// TestDemoIndexChromium: the demo's front page, with a hostile scanner
+// name, renders and is not blank.
+func TestDemoIndexChromium(t *testing.T) {
+	dir := t.TempDir()
+	page := filepath.Join(dir, "index.html")
+	d := &DemoIndex{Scanner: "<script>alert(1)</script>", Phantom: "demo", History: "history/index.html", Drifting: []string{"A7 T1"}}
+	for i := 0; i < 12; i++ {
+		d.Sessions = append(d.Sessions, DemoSession{Date: "2026-01-10", Time: "08:30", Temperature: 21, Verdict: "pass", Report: "session/qa/report.html"})
+	}
+	if err := WriteDemoIndex(page, d); err != nil {
+		t.Fatal(err)
+	}
+	b, _ := os.ReadFile(page)
+	if strings.Contains(string(b), "<script>alert") || !strings.Contains(string(b), "&lt;script&gt;") {
+		t.Error("scanner name not escaped")
+	}
+	colours, ink := census(screenshot(t, page))
+	if colours < 20 || ink < 0.01 {
+		t.Errorf("screenshot looks blank: %d distinct colours, %.1f %% non-white", colours, 100*ink)
 	}
 }
 

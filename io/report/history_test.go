@@ -2,20 +2,16 @@ package report
 
 import (
 	"bytes"
-	"context"
 	"encoding/base64"
 	"encoding/csv"
 	"flag"
-	"image/png"
 	"math"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"regexp"
 	"sort"
 	"strconv"
 	"strings"
-	"syscall"
 	"testing"
 	"time"
 
@@ -493,67 +489,13 @@ func TestHistoryErrors(t *testing.T) {
 // Chromium as TestChromiumRenders does: the page must draw and log
 // nothing to the console.
 func TestHistoryChromium(t *testing.T) {
-	if _, err := os.Stat(chromiumPath); err != nil {
-		if os.Getenv("CI") == "" {
-			t.Skipf("%s not installed (apt-get install chromium)", chromiumPath)
-		}
-		t.Fatalf("CI is set but %s is missing: %v", chromiumPath, err)
-	}
-	if testing.Short() {
-		t.Skip("starts a browser")
-	}
 	dir, _ := writeHistoryTest(t, true)
-	page := filepath.Join(dir, HistoryIndex)
-	work := t.TempDir()
-	shot := filepath.Join(work, "shot.png")
-	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
-	defer cancel()
-	cmd := exec.CommandContext(ctx, chromiumPath,
-		"--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-		"--disable-background-networking", "--disable-component-update", "--disable-sync",
-		"--user-data-dir="+filepath.Join(work, "profile"),
-		"--enable-logging=stderr", "--v=0",
-		"--screenshot="+shot, "--window-size=1200,2000",
-		"file://"+page)
-	cmd.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
-	cmd.Cancel = func() error { return syscall.Kill(-cmd.Process.Pid, syscall.SIGKILL) }
-	cmd.WaitDelay = 5 * time.Second
-	cmd.Env = append(os.Environ(), "HOME="+work)
-	var stderr bytes.Buffer
-	cmd.Stdout, cmd.Stderr = &stderr, &stderr
-	err := cmd.Run()
-	if ctx.Err() != nil {
-		t.Fatalf("chromium did not finish within 60 s:\n%s", tail(stderr.String(), 20))
-	}
-	if err != nil {
-		t.Fatalf("chromium: %v\n%s", err, tail(stderr.String(), 20))
-	}
-	for _, line := range strings.Split(stderr.String(), "\n") {
-		if strings.Contains(line, ":CONSOLE") || strings.Contains(line, "Uncaught") || strings.Contains(line, "tauvox-injected") {
-			t.Errorf("browser console: %s", line)
-		}
-	}
-	f, err := os.Open(shot)
-	if err != nil {
-		t.Fatalf("no screenshot: %v\n%s", err, tail(stderr.String(), 20))
-	}
-	defer f.Close()
-	img, err := png.Decode(f)
-	if err != nil {
-		t.Fatalf("screenshot: %v", err)
-	}
-	if b := img.Bounds(); b.Dx() != 1200 || b.Dy() != 2000 {
-		t.Errorf("screenshot is %v, want 1200×2000", b)
-	}
+	img := screenshot(t, filepath.Join(dir, HistoryIndex))
 	// The table, the notes and at least one chart fill the first 2000
 	// pixels: hundreds of colours (antialiased text and lines) and some
 	// ink; a blank or broken page has a handful of colours.
 	colours, ink := census(img)
 	if colours < 100 || ink < 0.03 {
 		t.Errorf("screenshot looks blank: %d distinct colours, %.1f %% non-white", colours, 100*ink)
-	}
-	if p := os.Getenv("TAUVOX_KEEP_SCREENSHOT"); p != "" {
-		b, _ := os.ReadFile(shot)
-		os.WriteFile(p, b, 0o644)
 	}
 }
