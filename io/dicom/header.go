@@ -114,7 +114,7 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	fi.seriesUID = str(top, tag.SeriesInstanceUID)
 	fi.studyUID = str(top, tag.StudyInstanceUID)
 	fi.frameOfRef = str(top, tag.FrameOfReferenceUID)
-	fi.description = str(top, tag.SeriesDescription)
+	fi.description = text(top, tag.SeriesDescription)
 	if v, ok := integer(top, tag.SeriesNumber); ok {
 		fi.seriesNumber, fi.hasNumber = v, true
 	}
@@ -125,9 +125,9 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 		fi.seqName = str(top, tag.PulseSequenceName)
 	}
 	fi.echoPulse = str(top, tag.EchoPulseSequence)
-	fi.manufacturer = str(top, tag.Manufacturer)
-	fi.model = str(top, tag.ManufacturerModelName)
-	fi.station = str(top, tag.StationName)
+	fi.manufacturer = text(top, tag.Manufacturer)
+	fi.model = text(top, tag.ManufacturerModelName)
+	fi.station = text(top, tag.StationName)
 	fi.field = num(top, tag.MagneticFieldStrength)
 	fi.acquired = dateTime(top)
 	if keepIDs {

@@ -1,7 +1,6 @@
 package dicom
 
 import (
-	"bytes"
 	"fmt"
 	"math/rand"
 	"os"
@@ -9,6 +8,8 @@ import (
 	"sort"
 	"strings"
 	"testing"
+	"unicode"
+	"unicode/utf8"
 
 	"github.com/tauvox/tauvox/io/volume"
 )
@@ -109,8 +110,13 @@ func FuzzSeries(f *testing.F) {
 			if err := im.Validate(); err != nil {
 				t.Fatal(err)
 			}
-			if bytes.ContainsAny([]byte(im.Source.Description+im.Source.Scanner), "\x00") {
-				t.Fatalf("NUL in source strings %+v", im.Source)
+			for _, r := range im.Source.Description + im.Source.Scanner {
+				if unicode.IsControl(r) {
+					t.Fatalf("control character %U in source strings %+v", r, im.Source)
+				}
+			}
+			if utf8.RuneCountInString(im.Source.Description) > maxText+1 {
+				t.Fatalf("description of %d characters", utf8.RuneCountInString(im.Source.Description))
 			}
 		}
 	})

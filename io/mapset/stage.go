@@ -38,6 +38,12 @@ func NewStage(dir string, force bool) (*Stage, error) {
 	if err != nil {
 		return nil, err
 	}
+	// MkdirTemp makes the folder 0700; the finished output is as readable
+	// as any other folder the user makes.
+	if err := os.Chmod(tmp, 0o755); err != nil {
+		os.RemoveAll(tmp)
+		return nil, err
+	}
 	return &Stage{target: dir, tmp: tmp, force: force}, nil
 }
 

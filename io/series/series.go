@@ -298,7 +298,10 @@ func WriteFileAtomic(path string, b []byte) error {
 		return err
 	}
 	tmp := f.Name()
-	_, err = f.Write(b)
+	err = f.Chmod(0o644) // CreateTemp makes 0600
+	if err == nil {
+		_, err = f.Write(b)
+	}
 	if err == nil {
 		err = f.Sync()
 	}
