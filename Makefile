@@ -51,6 +51,10 @@ demo: build
 # FUZZPARALLEL workers per target (default: one per CPU).
 FUZZTIME ?= 30s
 FUZZPARALLEL ?= 0
+# FUZZMINIMIZE bounds the time spent minimising each new input: the slow
+# targets (they write files or a database) otherwise overrun a short
+# FUZZTIME while minimising and go test reports "context deadline exceeded".
+FUZZMINIMIZE ?= 1s
 FUZZ_TARGETS := \
 	./io/nifti/:FuzzDecode \
 	./io/nifti/:FuzzDecodeGzip \
@@ -65,7 +69,7 @@ fuzz:
 		pkg=$${t%%:*}; fn=$${t##*:}; \
 		echo "fuzz $$fn ($$pkg) for $(FUZZTIME)"; \
 		par=""; if [ "$(FUZZPARALLEL)" != "0" ]; then par="-parallel $(FUZZPARALLEL)"; fi; \
-		$(GO) test -run '^$$' -fuzz "^$$fn\$$" -fuzztime $(FUZZTIME) $$par $$pkg; \
+		$(GO) test -run '^$$' -fuzz "^$$fn\$$" -fuzztime $(FUZZTIME) -fuzzminimizetime $(FUZZMINIMIZE) $$par $$pkg; \
 	done
 
 clean:
