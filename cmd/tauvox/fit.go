@@ -85,7 +85,7 @@ type fitArgs struct {
 	skip, workers                                                             int
 	te, ti, tr, fa                                                            listFlag
 	memory                                                                    byteFlag
-	noPreview                                                                 bool
+	noPreview, keepIDs                                                        bool
 	previewRange                                                              string
 }
 
@@ -119,6 +119,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&a.epgBasis, "epg-basis", false, "t2-spectrum: EPG basis functions with a fitted refocusing angle")
 	fs.BoolVar(&a.gonum, "gonum", false, "use gonum's optimiser for nonlinear fits (slow cross-check)")
 	fs.BoolVar(&a.quiet, "quiet", false, "no progress bar or summary")
+	fs.BoolVar(&a.keepIDs, "keep-identifiers", false, "copy the patient name, ID, birth date and accession number of a DICOM series into provenance.json (left out by default)")
 	fs.BoolVar(&a.noPreview, "no-preview", false, "do not write the PNG previews of the maps")
 	fs.StringVar(&a.previewRange, "range", "", "preview display window LO,HI in the map's unit (default 1st–99th percentile)")
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
@@ -206,7 +207,7 @@ func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 // fitInMemory loads the whole series (DICOM) and fits it in one go.
 func fitInMemory(ctx context.Context, a *fitArgs, e *env) error {
 	t0 := time.Now()
-	im, inputs, err := series.Load(a.series, &series.Overrides{TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list(), Series: a.seriesID})
+	im, inputs, err := series.Load(a.series, &series.Overrides{TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list(), Series: a.seriesID, KeepIdentifiers: a.keepIDs})
 	if err != nil {
 		return err
 	}
@@ -931,9 +932,14 @@ func streamThreshold(ctx context.Context, nslab int, slab func(int) (*volume.Ima
 	if err != nil {
 		return 0, err
 	}
+	// Unlinked at once where the system allows it (Unix), so that not even
+	// a killed run leaves it behind; elsewhere removed on return.
+	unlinked := os.Remove(f.Name()) == nil
 	defer func() {
 		f.Close()
-		os.Remove(f.Name())
+		if !unlinked {
+			os.Remove(f.Name())
+		}
 	}()
 	var ph fit.PeakHistogram
 	var peaks []float32

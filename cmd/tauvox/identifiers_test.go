@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"encoding/json"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -77,4 +78,66 @@ func TestNoIdentifiers(t *testing.T) {
 	if n < 15 {
 		t.Errorf("only %d files written", n)
 	}
+}
+
+// TestKeepIdentifiersFit: with --keep-identifiers, fit copies the four
+// patient identifiers into provenance.json (and nowhere else among the
+// maps); a phantom QA made from those maps still holds none of them,
+// since phantom sessions are named by scanner and date.
+func TestKeepIdentifiersFit(t *testing.T) {
+	mix := filepath.Join("..", "..", "testdata", "dicom", "mix")
+	root := t.TempDir()
+	p := func(s string) string { return filepath.Join(root, s) }
+	steps := [][]string{
+		{"fit", mix, "--series", "3-cd6369", "--model", "t2", "--out", p("maps"), "--quiet", "--keep-identifiers"},
+		{"simulate", "--kind", "t2", "--format", "dicom", "--out", p("sim"), "--matrix", "48", "--slices", "2", "--date", "2026-05-01"},
+		{"fit", p("sim/t2"), "--model", "t2", "--out", p("simmaps"), "--quiet", "--keep-identifiers"},
+		{"phantom", p("simmaps"), "--def", "demo", "--temperature", "20", "--out", p("qa")},
+	}
+	for _, s := range steps {
+		if code, _, e := tauvox(t, s...); code > 1 {
+			t.Fatalf("%v: exit %d: %s", s, code, e)
+		}
+	}
+	var prov struct {
+		Patient *struct {
+			Name      string `json:"name"`
+			ID        string `json:"id"`
+			BirthDate string `json:"birth_date"`
+			Accession string `json:"accession_number"`
+		} `json:"patient"`
+	}
+	b, err := os.ReadFile(p("maps/provenance.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, &prov); err != nil {
+		t.Fatal(err)
+	}
+	if prov.Patient == nil {
+		t.Fatalf("provenance.json has no patient block:\n%s", b)
+	}
+	got := []string{prov.Patient.Name, prov.Patient.ID, prov.Patient.BirthDate, prov.Patient.Accession}
+	for i, want := range patientIDs {
+		if got[i] != want {
+			t.Errorf("patient field %d = %q, want %q", i, got[i], want)
+		}
+	}
+	sim, _ := os.ReadFile(p("simmaps/provenance.json"))
+	if !bytes.Contains(sim, []byte("TAUVOX^DEMO")) {
+		t.Errorf("simulated series' provenance lacks its phantom name:\n%s", sim)
+	}
+	filepath.WalkDir(root, func(path string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() || filepath.Base(path) == "provenance.json" ||
+			strings.HasPrefix(path, p("sim")+string(filepath.Separator)) {
+			return nil
+		}
+		b, _ := os.ReadFile(path)
+		for _, id := range append(patientIDs, "TAUVOX^DEMO") {
+			if bytes.Contains(b, []byte(id)) {
+				t.Errorf("%s holds %q", path, id)
+			}
+		}
+		return nil
+	})
 }

@@ -329,7 +329,7 @@ func TestRobustnessCatalogue(t *testing.T) {
 	}{
 		// NIfTI (io/nifti)
 		{"nifti", "samples cut short", fitNII(short), []string{short, "header declares 32768 bytes of samples but the file holds 16208"}},
-		{"nifti", "dimension product overflows memory", fitNII(huge), []string{huge, "32767x32767x32767x32767 grid", "above the limit"}},
+		{"nifti", "dimension product overflows memory", fitNII(huge), []string{huge, "32767x32767x32767x32767 grid", "too large to address"}},
 		{"nifti", "negative dimension", fitNII(negdim), []string{negdim, "dim[1] is -3, want at least 1"}},
 		{"nifti", "unknown datatype", fitNII(dtype), []string{dtype, "datatype 9999 is not a NIfTI datatype code"}},
 		{"nifti", "vox_offset beyond the file", fitNII(voxoff), []string{voxoff, "vox_offset 1000000000 is beyond the end of the file"}},

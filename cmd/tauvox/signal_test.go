@@ -149,6 +149,17 @@ func TestKilled(t *testing.T) {
 	if err != nil || m.Dims != [4]int{64, 64, 4, 1} {
 		t.Fatalf("rerun map: %v %v", err, m)
 	}
+	// The killed run's temporary folder, whose owner lock died with it,
+	// is swept by the rerun; the owner file does not reach the output.
+	if len(left) == 0 {
+		t.Error("SIGKILL left no temporary folder: the kill did not land mid-write")
+	}
+	if s := stageOf(out); len(s) > 0 {
+		t.Errorf("after the rerun: abandoned temporary folder kept: %v", s)
+	}
+	if _, err := os.Stat(filepath.Join(out, ".tauvox-owner")); err == nil {
+		t.Error("owner file left in the output")
+	}
 }
 
 // TestDiskFull: a fit whose output cannot be written gives one clear
@@ -172,8 +183,8 @@ func TestDiskFull(t *testing.T) {
 		code := cmd.ProcessState.ExitCode()
 		msg := strings.TrimSpace(buf.String())
 		t.Logf("%s: exit %d: %s", name, code, msg)
-		if code != 2 || !strings.Contains(msg, want) || strings.Contains(msg, "\n") {
-			t.Errorf("%s: exit %d %q, want 2 and one line with %q", name, code, msg, want)
+		if code != 2 || strings.Count(msg, want) != 1 || strings.Contains(msg, "\n") {
+			t.Errorf("%s: exit %d %q, want 2 and one line saying %q once", name, code, msg, want)
 		}
 		if _, err := os.Stat(out); err == nil {
 			t.Errorf("%s: output folder exists", name)

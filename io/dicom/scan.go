@@ -382,6 +382,9 @@ func (s *Series) summarise() {
 	if f0.field > 0 {
 		s.Source.FieldStrength = f0.field
 	}
+	if id := f0.ids; id != nil {
+		s.Source.Patient = &volume.Patient{Name: id.PatientName, ID: id.PatientID, BirthDate: id.PatientBirthDate, Accession: id.AccessionNumber}
+	}
 	if s.Source.Scanner == "" {
 		s.Source.Scanner = strings.TrimSpace(f0.manufacturer + " " + f0.model)
 	}

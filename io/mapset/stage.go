@@ -16,7 +16,12 @@ type Stage struct {
 	tmp    string
 	force  bool
 	done   bool
+	owner  *os.File // locked owner file inside tmp; nil where locks are unavailable
 }
+
+// ownerFile is the file inside a temporary folder whose lock marks the
+// folder as being written by a living process.
+const ownerFile = ".tauvox-owner"
 
 // NewStage prepares to write the folder dir: it refuses an existing dir
 // unless force is set, and creates an empty temporary folder beside it.
@@ -34,6 +39,7 @@ func NewStage(dir string, force bool) (*Stage, error) {
 	if err := os.MkdirAll(parent, 0o755); err != nil {
 		return nil, err
 	}
+	sweep(parent, filepath.Base(dir))
 	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
 	if err != nil {
 		return nil, err
@@ -44,7 +50,34 @@ func NewStage(dir string, force bool) (*Stage, error) {
 		os.RemoveAll(tmp)
 		return nil, err
 	}
-	return &Stage{target: dir, tmp: tmp, force: force}, nil
+	owner, err := lockStage(tmp)
+	if err != nil {
+		os.RemoveAll(tmp)
+		return nil, err
+	}
+	return &Stage{target: dir, tmp: tmp, force: force, owner: owner}, nil
+}
+
+// sweep removes the temporary folders of earlier runs for the same output
+// that were abandoned (their process was killed before it could clean
+// up): hidden folders named .NAME.tmp-* whose owner file nobody holds.
+// Folders of runs still writing, and anything not made by a Stage, stay.
+func sweep(parent, name string) {
+	old, _ := filepath.Glob(filepath.Join(parent, "."+name+".tmp-*"))
+	for _, d := range old {
+		if st, err := os.Lstat(d); err == nil && st.IsDir() && abandoned(d) {
+			os.RemoveAll(d)
+		}
+	}
+}
+
+// release drops the owner file of a finished stage now at dir.
+func (s *Stage) release(dir string) {
+	if s.owner != nil {
+		s.owner.Close()
+		os.Remove(filepath.Join(dir, ownerFile))
+		s.owner = nil
+	}
 }
 
 // Path returns the path of name inside the temporary folder.
@@ -63,25 +96,31 @@ func (s *Stage) Commit() error {
 	if _, err := os.Stat(s.target); err == nil {
 		old, err := os.MkdirTemp(filepath.Dir(s.target), "."+filepath.Base(s.target)+".old-")
 		if err != nil {
+			s.release(s.tmp)
 			os.RemoveAll(s.tmp)
 			return err
 		}
 		os.Remove(old)
 		if err := os.Rename(s.target, old); err != nil {
+			s.release(s.tmp)
 			os.RemoveAll(s.tmp)
 			return err
 		}
 		if err := os.Rename(s.tmp, s.target); err != nil {
 			os.Rename(old, s.target)
+			s.release(s.tmp)
 			os.RemoveAll(s.tmp)
 			return err
 		}
+		s.release(s.target)
 		return os.RemoveAll(old)
 	}
 	if err := os.Rename(s.tmp, s.target); err != nil {
+		s.release(s.tmp)
 		os.RemoveAll(s.tmp)
 		return err
 	}
+	s.release(s.target)
 	return nil
 }
 
@@ -89,6 +128,7 @@ func (s *Stage) Commit() error {
 func (s *Stage) Abort() {
 	if !s.done {
 		s.done = true
+		s.release(s.tmp)
 		os.RemoveAll(s.tmp)
 	}
 }

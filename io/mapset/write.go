@@ -44,6 +44,7 @@ type Provenance struct {
 	Scanner   string             `json:"scanner,omitempty"`
 	Acquired  string             `json:"acquired,omitempty"`
 	Series    string             `json:"series_description,omitempty"`
+	Patient   *volume.Patient    `json:"patient,omitempty"`
 	Outputs   []string           `json:"outputs"`
 	Threshold float64            `json:"mask_threshold"`
 	Status    map[string]int     `json:"status_counts"`
@@ -235,7 +236,7 @@ func (w *Writer) Append(m *fit.Maps) error {
 		}(i)
 	}
 	wg.Wait()
-	if err := errors.Join(errs...); err != nil {
+	if err := first(errs); err != nil {
 		w.err = err
 		w.Abort()
 		return err
@@ -268,7 +269,7 @@ func (w *Writer) Close() ([]string, error) {
 		}(i, f)
 	}
 	wg.Wait()
-	if err := errors.Join(errs...); err != nil {
+	if err := first(errs); err != nil {
 		w.err = err
 		w.Abort()
 		return nil, err
@@ -289,7 +290,7 @@ func (w *Writer) Close() ([]string, error) {
 		Tool: "tauvox", Version: info.Version, Created: time.Now().UTC().Format(time.RFC3339),
 		Model: info.Model, Method: info.Method, Settings: info.Settings,
 		Field: num(info.Source.FieldStrength), Scanner: info.Source.Scanner, Acquired: info.Source.AcquiredAt,
-		Series: info.Source.Description, Outputs: append([]string(nil), names...), Threshold: w.thr,
+		Series: info.Source.Description, Patient: info.Source.Patient, Outputs: append([]string(nil), names...), Threshold: w.thr,
 		Status: map[string]int{}, Timings: info.Timings, Caution: Caution,
 	}
 	sums := <-w.sums
@@ -327,4 +328,15 @@ func sources(in []series.Input) []string {
 		s = append(s, i.Path)
 	}
 	return s
+}
+
+// first returns the first error of errs: when the disk fills, every map
+// fails the same way and one line says it.
+func first(errs []error) error {
+	for _, err := range errs {
+		if err != nil {
+			return err
+		}
+	}
+	return nil
 }

@@ -165,7 +165,7 @@ func TestTooLarge(t *testing.T) {
 	data := edit(1, dims1(3, 128, 128, 64))
 	rd := &Reader{MaxBytes: 1 << 20}
 	_, _, err := rd.Decode(bytes.NewReader(data), "huge.nii", int64(len(data)))
-	want := "huge.nii: nifti: 128x128x64 grid of 1048576 samples needs 4194304 bytes as float32, above the limit of 1048576 bytes (Reader.MaxBytes): nifti: image larger than the memory limit"
+	want := "huge.nii: nifti: 128x128x64 grid of 1048576 samples needs 4.0 MiB in memory (float32), above the limit of 1.0 MiB"
 	if err == nil || err.Error() != want {
 		t.Fatalf("error\n got %v\nwant %s", err, want)
 	}

@@ -64,7 +64,7 @@ func message(path, reason string, err error) string {
 	b.WriteString(oneLine(path))
 	b.WriteString(": nifti: ")
 	b.WriteString(oneLine(reason))
-	if err != nil {
+	if err != nil && err != ErrTooLarge { // the reason already says it
 		b.WriteString(": ")
 		b.WriteString(oneLine(err.Error()))
 	}

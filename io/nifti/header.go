@@ -422,8 +422,11 @@ func (h *Header) check(path string, maxBytes int64) (int64, error) {
 	}
 	// The samples become float32 in memory; the stored bytes are at most
 	// twice that (float64), checked against the file size by the caller.
+	if n > maxBytes/4 && maxBytes >= streamLimit {
+		return 0, unsupportedErr(path, fmt.Sprintf("%s grid of %d samples (%s as float32) is too large to address", dimString(h), n, sizeText(n*4)), ErrTooLarge)
+	}
 	if n > maxBytes/4 {
-		return 0, unsupportedErr(path, fmt.Sprintf("%s grid of %d samples needs %d bytes as float32, above the limit of %d bytes (Reader.MaxBytes)", dimString(h), n, n*4, maxBytes), ErrTooLarge)
+		return 0, unsupportedErr(path, fmt.Sprintf("%s grid of %d samples needs %s in memory (float32), above the limit of %s", dimString(h), n, sizeText(n*4), sizeText(maxBytes)), ErrTooLarge)
 	}
 	if int64(int(n)) != n {
 		return 0, unsupportedErr(path, fmt.Sprintf("%d samples do not fit in memory on this platform", n), ErrTooLarge)
@@ -444,4 +447,18 @@ func dimString(h *Header) string {
 		s += fmt.Sprint(h.Dim[i])
 	}
 	return s
+}
+
+// sizeText writes a byte count for a message: 2.0 GiB, 640 MiB, 12 KiB.
+func sizeText(n int64) string {
+	const unit = 1024
+	if n < unit {
+		return fmt.Sprintf("%d bytes", n)
+	}
+	v, i := float64(n), -1
+	for v >= unit && i < 5 {
+		v /= unit
+		i++
+	}
+	return fmt.Sprintf("%.1f %ciB", v, "KMGTPE"[i])
 }

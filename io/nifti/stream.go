@@ -31,15 +31,16 @@ type SlabReader struct {
 	// Header is the header read and checked at open.
 	Header *Header
 
-	name  string // path as given, for errors
-	dims  [4]int
-	n     int64 // samples
-	sc    scaling
-	f     *os.File // source of positioned reads, nil until known
-	off   int64    // byte offset of sample 0 in f
-	files []*os.File
-	tmp   string // temporary file to remove, "" when none
-	dir   string // folder for the temporary file
+	name    string // path as given, for errors
+	dims    [4]int
+	n       int64 // samples
+	sc      scaling
+	f       *os.File // source of positioned reads, nil until known
+	off     int64    // byte offset of sample 0 in f
+	files   []*os.File
+	tmp     string // temporary file to remove, "" when none (or already unlinked)
+	spilled bool   // a temporary uncompressed copy was made
+	dir     string // folder for the temporary file
 
 	// For gzip sources before spilling: the open stream, positioned at
 	// the first sample, and whether it has been consumed.
@@ -127,7 +128,7 @@ func (r *SlabReader) Source() volume.Source {
 }
 
 // Spilled reports whether a temporary uncompressed copy was made.
-func (r *SlabReader) Spilled() bool { return r.tmp != "" }
+func (r *SlabReader) Spilled() bool { return r.spilled }
 
 // ReadSlab fills dst with slices z0…z1−1 of the volumes listed in vols
 // (nil: every volume in order), volume after volume:
@@ -243,8 +244,14 @@ func (r *SlabReader) spill() error {
 	if err != nil {
 		return &fileError{r.name, "cannot create temporary uncompressed copy", err}
 	}
-	r.tmp = t.Name()
+	r.tmp, r.spilled = t.Name(), true
 	r.files = append(r.files, t)
+	// Unlinked at once where the system allows it (Unix): the open file
+	// still reads and writes, and its space returns when it is closed,
+	// even when the process is killed. Elsewhere Close removes it.
+	if os.Remove(r.tmp) == nil {
+		r.tmp = ""
+	}
 	need := r.n * int64(r.Header.Datatype.Size())
 	bw := bufio.NewWriterSize(t, 1<<20)
 	got, err := io.CopyN(bw, r.gz.r, need)
@@ -255,12 +262,12 @@ func (r *SlabReader) spill() error {
 	if err != nil {
 		var pe *os.PathError
 		if errors.As(err, &pe) {
-			return &fileError{r.tmp, "cannot write temporary uncompressed copy", err}
+			return &fileError{t.Name(), "cannot write temporary uncompressed copy", err}
 		}
 		return r.gz.readErr(err)
 	}
 	if err := bw.Flush(); err != nil {
-		return &fileError{r.tmp, "cannot write temporary uncompressed copy", err}
+		return &fileError{t.Name(), "cannot write temporary uncompressed copy", err}
 	}
 	if err := r.gz.finish(); err != nil {
 		return err

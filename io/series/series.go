@@ -24,6 +24,9 @@ import (
 type Overrides struct {
 	TE, TI, TR, FA []float64
 	Series         string
+	// KeepIdentifiers keeps the patient identifiers of a DICOM series in
+	// Image.Source.Patient (left out by default).
+	KeepIdentifiers bool
 }
 
 // Input describes one file read to make a series.
@@ -104,7 +107,11 @@ func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
 
 // loadDICOM scans a DICOM folder or file and loads one series.
 func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
-	cat, err := dicom.Scan([]string{path}, nil)
+	var opt dicom.ScanOptions
+	if o != nil {
+		opt.KeepIdentifiers = o.KeepIdentifiers
+	}
+	cat, err := dicom.Scan([]string{path}, &opt)
 	if err != nil {
 		return nil, nil, err
 	}

@@ -30,6 +30,18 @@ type Source struct {
 	FieldStrength float64 // main field in tesla; NaN or 0 when unknown
 	Scanner       string  // station / scanner name, when known
 	AcquiredAt    string  // acquisition date-time, RFC 3339 when known
+	// Patient holds the patient identifiers of the source. It is nil
+	// unless the user asked for them to be kept (--keep-identifiers);
+	// every writer leaves them out when it is nil.
+	Patient *Patient
+}
+
+// Patient holds the patient identifiers of a DICOM source.
+type Patient struct {
+	Name      string `json:"name,omitempty"`
+	ID        string `json:"id,omitempty"`
+	BirthDate string `json:"birth_date,omitempty"`
+	Accession string `json:"accession_number,omitempty"`
 }
 
 // Image is a 3-D or 4-D grid of float32 samples with its geometry and
