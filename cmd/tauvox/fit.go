@@ -171,12 +171,22 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	return fitSeries(ctx, &a, e)
 }
 
+// wholeMaps returns the parameter maps of a fit of a whole grid by stem,
+// sharing maps' samples.
+func wholeMaps(maps *fit.Maps, dims [4]int, affine volume.Affine) map[string]*volume.Image {
+	out := map[string]*volume.Image{}
+	for k, p := range maps.Outputs {
+		out[p.Map] = &volume.Image{Dims: [4]int{dims[0], dims[1], dims[2], 1}, Data: maps.Values[k], Affine: affine}
+	}
+	return out
+}
+
 // inMemoryNIfTI makes fitSeries load NIfTI series whole, as DICOM series
 // are (tests compare the two paths).
 var inMemoryNIfTI = false
 
 // previews writes the PNG previews into the stage unless --no-preview.
-func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Param) error {
+func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Param, inMemory map[string]*volume.Image) error {
 	if a.noPreview {
 		return nil
 	}
@@ -188,7 +198,7 @@ func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Par
 		}
 		win = w
 	}
-	return fitPreviews(ctx, st.Path(""), outs, win)
+	return fitPreviews(ctx, st.Path(""), outs, win, inMemory)
 }
 
 func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
@@ -315,7 +325,7 @@ func fitInMemory(ctx context.Context, a *fitArgs, e *env) error {
 	if _, err := mapset.Write(st, maps, im, info); err != nil {
 		return err
 	}
-	if err := a.previews(ctx, st, model.Outputs()); err != nil {
+	if err := a.previews(ctx, st, model.Outputs(), wholeMaps(maps, im.Dims, im.Affine)); err != nil {
 		return err
 	}
 	if err := st.Commit(); err != nil {
@@ -894,7 +904,11 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 	if _, err = w.Close(); err != nil {
 		return err
 	}
-	if err = a.previews(ctx, st, model.Outputs()); err != nil {
+	var whole map[string]*volume.Image
+	if nslab == 1 {
+		whole = wholeMaps(maps, [4]int{nx, ny, nz, 1}, affine)
+	}
+	if err = a.previews(ctx, st, model.Outputs(), whole); err != nil {
 		return err
 	}
 	if err = st.Commit(); err != nil {

@@ -5,12 +5,15 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
+	"sync"
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/preview"
+	"github.com/tauvox/tauvox/io/volume"
 )
 
 const previewSummary = `Writes a PNG montage of every slice of each map of a fit output folder (or
@@ -94,48 +97,87 @@ func runPreview(ctx context.Context, args []string, e *env) error {
 
 // writePreviews draws a PNG montage of each map stem of folder into out.
 func writePreviews(ctx context.Context, folder *mapset.Folder, stems []string, out string, win preview.Window) error {
-	for _, s := range stems {
-		if ctx.Err() != nil {
-			return ctx.Err()
-		}
-		im, err := nifti.Read(folder.Maps[s])
+	jobs := make([]previewJob, len(stems))
+	for i, s := range stems {
+		jobs[i] = previewJob{stem: s, path: folder.Maps[s]}
+	}
+	return drawPreviews(ctx, jobs, out, win)
+}
+
+// previewJob is one map to draw: its stem and file, and its samples when
+// the fit still holds them (nil: read from the file).
+type previewJob struct {
+	stem, path string
+	im         *volume.Image
+}
+
+// drawPreviews draws the jobs' montages into out, as many at once as
+// there are CPUs. It returns the first error (in job order).
+func drawPreviews(ctx context.Context, jobs []previewJob, out string, win preview.Window) error {
+	errs := make([]error, len(jobs))
+	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	var wg sync.WaitGroup
+	for i, j := range jobs {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func() {
+			defer func() { <-sem; wg.Done() }()
+			if ctx.Err() != nil {
+				errs[i] = ctx.Err()
+				return
+			}
+			errs[i] = drawPreview(j, out, win)
+		}()
+	}
+	wg.Wait()
+	for _, err := range errs {
 		if err != nil {
-			return err
-		}
-		if im.Dims[3] != 1 {
-			return fmt.Errorf("%s: has %d volumes; a preview draws 3-D maps", folder.Maps[s], im.Dims[3])
-		}
-		q, unit := mapQuantity(folder.Maps[s], s)
-		if strings.HasSuffix(s, "fitquality") {
-			q, unit = "fraction", "R²" // R² of the fit, not the rate R2
-		}
-		if unit == "arbitrary" {
-			unit = "a.u."
-		}
-		img, err := preview.Montage(im, &preview.Options{Quantity: q, Unit: unit, Window: win, Title: s})
-		if err != nil {
-			return fmt.Errorf("%s: %v", folder.Maps[s], err)
-		}
-		if err := preview.WritePNG(filepath.Join(out, s+".png"), img); err != nil {
 			return err
 		}
 	}
 	return nil
 }
 
+func drawPreview(j previewJob, out string, win preview.Window) error {
+	im := j.im
+	if im == nil {
+		var err error
+		if im, err = nifti.Read(j.path); err != nil {
+			return err
+		}
+	}
+	if im.Dims[3] != 1 {
+		return fmt.Errorf("%s: has %d volumes; a preview draws 3-D maps", j.path, im.Dims[3])
+	}
+	q, unit := mapQuantity(j.path, j.stem)
+	if strings.HasSuffix(j.stem, "fitquality") {
+		q, unit = "fraction", "R²" // R² of the fit, not the rate R2
+	}
+	if unit == "arbitrary" {
+		unit = "a.u."
+	}
+	img, err := preview.Montage(im, &preview.Options{Quantity: q, Unit: unit, Window: win, Title: j.stem})
+	if err != nil {
+		return fmt.Errorf("%s: %v", j.path, err)
+	}
+	return preview.WritePNG(filepath.Join(out, j.stem+".png"), img)
+}
+
 // fitPreviews writes the previews of a fit's parameter maps into the
 // staged output folder dir (before it is committed): one PNG per model
-// output, not the standard errors, fit quality or status.
-func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.Window) error {
+// output, not the standard errors, fit quality or status. inMemory, when
+// not nil, holds the whole maps of the fit by stem (a fit of one slab), so
+// that they are not read back from the files.
+func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.Window, inMemory map[string]*volume.Image) error {
 	folder, err := mapset.Open(dir)
 	if err != nil {
 		return err
 	}
-	var stems []string
+	var jobs []previewJob
 	for _, p := range outs {
-		if _, ok := folder.Maps[p.Map]; ok {
-			stems = append(stems, p.Map)
+		if path, ok := folder.Maps[p.Map]; ok {
+			jobs = append(jobs, previewJob{stem: p.Map, path: path, im: inMemory[p.Map]})
 		}
 	}
-	return writePreviews(ctx, folder, stems, dir, win)
+	return drawPreviews(ctx, jobs, dir, win)
 }

@@ -1,6 +1,8 @@
 package main
 
 import (
+	"bytes"
+	"encoding/json"
 	"image/color"
 	"image/png"
 	"os"
@@ -57,5 +59,44 @@ func TestPreviewCommand(t *testing.T) {
 	}
 	if code, _, stderr := tauvox(t, "preview", maps, "--range", "9,1", "--force"); code != 2 || !strings.Contains(stderr, "LO must be below HI") {
 		t.Errorf("bad range: %d %s", code, stderr)
+	}
+}
+
+// TestFitPreviewsFromMemory: the previews a one-slab fit draws from the
+// maps it holds equal, byte for byte, those drawn from the written files
+// by a fit in many slabs (--memory) and by tauvox preview.
+func TestFitPreviewsFromMemory(t *testing.T) {
+	series := simulated(t, "t2")
+	root := t.TempDir()
+	one, many := filepath.Join(root, "one"), filepath.Join(root, "many")
+	if code, _, stderr := tauvox(t, "fit", series, "--model", "t2", "--out", one, "--quiet"); code != 0 {
+		t.Fatal(stderr)
+	}
+	if code, _, stderr := tauvox(t, "fit", series, "--model", "t2", "--out", many, "--quiet", "--memory", "64K"); code != 0 {
+		t.Fatal(stderr)
+	}
+	again := filepath.Join(root, "again")
+	if code, _, stderr := tauvox(t, "preview", one, "--out", again, "--maps", "T2map,M0map"); code != 0 {
+		t.Fatal(stderr)
+	}
+	var slabs struct {
+		Settings struct {
+			Slabs int `json:"slabs"`
+		} `json:"settings"`
+	}
+	b, _ := os.ReadFile(filepath.Join(many, "provenance.json"))
+	if json.Unmarshal(b, &slabs); slabs.Settings.Slabs < 2 {
+		t.Fatalf("--memory 64K fitted %d slabs, want several", slabs.Settings.Slabs)
+	}
+	for _, stem := range []string{"T2map", "M0map"} {
+		a, err := os.ReadFile(filepath.Join(one, stem+".png"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, other := range []string{many, again} {
+			if b, err := os.ReadFile(filepath.Join(other, stem+".png")); err != nil || !bytes.Equal(a, b) {
+				t.Errorf("%s: %s differs from the one-slab fit's (%v)", stem, other, err)
+			}
+		}
 	}
 }

@@ -5,6 +5,7 @@ import (
 	"image"
 	"image/color"
 	"math"
+	"math/bits"
 	"sort"
 	"strconv"
 	"strings"
@@ -59,12 +60,23 @@ func Slice(dst *image.RGBA, values []float32, nx, ny int, cm ColorMap, lo, hi fl
 	}
 	b := dst.Bounds()
 	w, h := b.Dx(), b.Dy()
+	prevJ, prevOff := -1, 0
 	for y := 0; y < h; y++ {
 		j := ny - 1 - y*ny/h
-		row := values[nx*j : nx*j+nx]
 		off := dst.PixOffset(b.Min.X, b.Min.Y+y)
+		if j == prevJ { // a zoomed slice repeats the row above
+			copy(dst.Pix[off:off+4*w], dst.Pix[prevOff:prevOff+4*w])
+			continue
+		}
+		prevJ, prevOff = j, off
+		row := values[nx*j : nx*j+nx]
+		prevI := -1
+		var c color.RGBA
 		for x := 0; x < w; x++ {
-			c := ColorOf(cm, float64(row[x*nx/w]), lo, hi, invalid)
+			if i := x * nx / w; i != prevI {
+				prevI = i
+				c = ColorOf(cm, float64(row[i]), lo, hi, invalid)
+			}
 			p := dst.Pix[off : off+4 : off+4]
 			p[0], p[1], p[2], p[3] = c.R, c.G, c.B, c.A
 			off += 4
@@ -79,7 +91,8 @@ func Slice(dst *image.RGBA, values []float32, nx, ny int, cm ColorMap, lo, hi fl
 // default of numpy.percentile). Non-finite values are ignored. When no
 // value is finite it returns 0, 1; when the percentiles are equal it
 // widens the window by 5 % of the value on each side (or to 0..1 for 0).
-// It allocates a sorted copy of the finite values.
+// It allocates a copy of the finite values, partially ordered by
+// selection (linear time; a full sort took most of a montage's time).
 func AutoRange(values []float32) (lo, hi float64) {
 	s := make([]float64, 0, len(values))
 	for _, v := range values {
@@ -90,7 +103,6 @@ func AutoRange(values []float32) (lo, hi float64) {
 	if len(s) == 0 {
 		return 0, 1
 	}
-	sort.Float64s(s)
 	lo, hi = percentile(s, 0.01), percentile(s, 0.99)
 	if hi <= lo {
 		if lo == 0 {
@@ -102,15 +114,72 @@ func AutoRange(values []float32) (lo, hi float64) {
 	return lo, hi
 }
 
-// percentile returns the p-quantile (0 ≤ p ≤ 1) of sorted s by linear
-// interpolation (Hyndman–Fan definition 7).
+// percentile returns the p-quantile (0 ≤ p ≤ 1) of s by linear
+// interpolation between the order statistics k and k+1, h = p·(n−1)
+// (Hyndman–Fan definition 7). It reorders s: the order statistics are
+// found by selection, so that calls for increasing p reuse the order the
+// earlier calls left.
 func percentile(s []float64, p float64) float64 {
 	h := p * float64(len(s)-1)
 	k := int(math.Floor(h))
 	if k >= len(s)-1 {
+		selectKth(s, len(s)-1)
 		return s[len(s)-1]
 	}
-	return s[k] + (h-float64(k))*(s[k+1]-s[k])
+	selectKth(s, k)
+	next := s[k+1]
+	for _, v := range s[k+2:] {
+		next = min(next, v)
+	}
+	return s[k] + (h-float64(k))*(next-s[k])
+}
+
+// selectKth reorders s (no NaN) so that s[k] is its k-th smallest value
+// (from 0), every value before it ≤ s[k] and every value after it ≥ s[k]:
+// Hoare's quickselect with a median-of-three pivot, falling back to a
+// sort of the remaining range after 2·log2(n) rounds.
+func selectKth(s []float64, k int) {
+	lo, hi := 0, len(s)-1
+	for depth := 2 * bits.Len(uint(len(s))); hi > lo; depth-- {
+		if depth == 0 {
+			sort.Float64s(s[lo : hi+1])
+			return
+		}
+		mid := lo + (hi-lo)/2
+		if s[mid] < s[lo] {
+			s[mid], s[lo] = s[lo], s[mid]
+		}
+		if s[hi] < s[lo] {
+			s[hi], s[lo] = s[lo], s[hi]
+		}
+		if s[hi] < s[mid] {
+			s[hi], s[mid] = s[mid], s[hi]
+		}
+		pivot := s[mid]
+		i, j := lo, hi
+		for i <= j {
+			for s[i] < pivot {
+				i++
+			}
+			for s[j] > pivot {
+				j--
+			}
+			if i <= j {
+				s[i], s[j] = s[j], s[i]
+				i++
+				j--
+			}
+		}
+		// Now s[lo..j] ≤ pivot ≤ s[i..hi], and s[j+1..i-1] = pivot.
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return
+		}
+	}
 }
 
 // Window is an explicit display window. The zero value asks for AutoRange.

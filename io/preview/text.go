@@ -37,10 +37,11 @@ func TextWidth(s string) int { return font.MeasureString(face, s).Ceil() }
 const TextHeight = 13
 
 // DrawLabel draws s on a filled box of colour bg (padding 2 px) with its
-// top-left corner at (x, y).
+// top-left corner at (x, y). A translucent bg is blended over what lies
+// beneath (draw.Over), so an opaque image stays opaque.
 func DrawLabel(dst draw.Image, x, y int, s string, fg, bg color.Color) {
 	r := image.Rect(x, y, x+TextWidth(s)+2*textPad, y+lineH+2*textPad)
-	draw.Draw(dst, r, image.NewUniform(bg), image.Point{}, draw.Src)
+	draw.Draw(dst, r, image.NewUniform(bg), image.Point{}, draw.Over)
 	DrawText(dst, x+textPad, y+textPad, s, fg)
 }
 

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"image"
 	"image/png"
+	"io"
 	"os"
 	"path/filepath"
 )
@@ -29,11 +30,7 @@ func WritePNG(path string, img image.Image) (err error) {
 			os.Remove(tmp)
 		}
 	}()
-	w := bufio.NewWriter(f)
-	if err = png.Encode(w, img); err != nil {
-		return fmt.Errorf("%s: encoding PNG: %w", path, err)
-	}
-	if err = w.Flush(); err != nil {
+	if err = encode(f, img); err != nil {
 		return fmt.Errorf("%s: %w", path, err)
 	}
 	if err = f.Chmod(0o644); err != nil {
@@ -46,4 +43,17 @@ func WritePNG(path string, img image.Image) (err error) {
 		return fmt.Errorf("%s: %w", path, err)
 	}
 	return nil
+}
+
+// encode writes an opaque RGBA image with encodePNG and any other with
+// image/png (which turns premultiplied alpha into PNG's straight alpha).
+func encode(w io.Writer, img image.Image) error {
+	if rgba, ok := img.(*image.RGBA); ok && rgba.Opaque() {
+		return encodePNG(w, rgba)
+	}
+	bw := bufio.NewWriter(w)
+	if err := png.Encode(bw, img); err != nil {
+		return fmt.Errorf("encoding PNG: %w", err)
+	}
+	return bw.Flush()
 }

@@ -1,0 +1,173 @@
+package preview
+
+import (
+	"bytes"
+	"image"
+	"image/color"
+	"image/png"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"testing"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// TestEncodePNG: images written by encode decode with the standard
+// library's image/png (an independent decoder) to the same pixels, for
+// opaque images (encodePNG, RGB) and images with transparency (left to
+// image/png), sizes of one
+// pixel to several IDAT chunks, sub-images with an offset, and random as
+// well as repetitive content.
+func TestEncodePNG(t *testing.T) {
+	r := rand.New(rand.NewPCG(1, 2))
+	cases := []struct {
+		name   string
+		w, h   int
+		opaque bool
+		random bool
+	}{
+		{"1x1 opaque", 1, 1, true, false},
+		{"1x1 alpha", 1, 1, false, false},
+		{"random opaque 300x200", 300, 200, true, true},
+		{"random alpha 257x3", 257, 3, false, true},
+		{"stripes opaque 64x64", 64, 64, true, false},
+	}
+	for _, c := range cases {
+		img := image.NewRGBA(image.Rect(0, 0, c.w, c.h))
+		for y := 0; y < c.h; y++ {
+			for x := 0; x < c.w; x++ {
+				p := color.RGBA{uint8(x * 7), uint8(255 - y*3), uint8(x ^ y), 255}
+				if c.random {
+					p = color.RGBA{uint8(r.IntN(256)), uint8(r.IntN(256)), uint8(r.IntN(256)), 255}
+				}
+				if !c.opaque {
+					p.A = uint8(r.IntN(256))
+					p.R, p.G, p.B = min(p.R, p.A), min(p.G, p.A), min(p.B, p.A) // premultiplied
+				}
+				img.SetRGBA(x, y, p)
+			}
+		}
+		check := func(name string, src *image.RGBA) {
+			var buf bytes.Buffer
+			if err := encode(&buf, src); err != nil {
+				t.Fatalf("%s: %v", name, err)
+			}
+			got, err := png.Decode(&buf)
+			if err != nil {
+				t.Fatalf("%s: image/png cannot decode: %v", name, err)
+			}
+			b := src.Bounds()
+			if got.Bounds().Dx() != b.Dx() || got.Bounds().Dy() != b.Dy() {
+				t.Fatalf("%s: size %v, want %v", name, got.Bounds(), b)
+			}
+			for y := 0; y < b.Dy(); y++ {
+				for x := 0; x < b.Dx(); x++ {
+					want := src.RGBAAt(b.Min.X+x, b.Min.Y+y)
+					g := color.RGBAModel.Convert(got.At(x, y)).(color.RGBA)
+					if !c.opaque { // premultiplied ↔ straight alpha rounds by one step
+						if d := func(a, b uint8) bool { return a > b+1 || b > a+1 }; !d(g.R, want.R) && !d(g.G, want.G) && !d(g.B, want.B) && g.A == want.A {
+							continue
+						}
+					}
+					if g != want {
+						t.Fatalf("%s: pixel (%d,%d) = %v, want %v", name, x, y, g, want)
+					}
+				}
+			}
+		}
+		check(c.name, img)
+		if c.w > 2 && c.h > 2 {
+			check(c.name+" sub-image", img.SubImage(image.Rect(1, 1, c.w-1, c.h)).(*image.RGBA))
+		}
+	}
+}
+
+// benchMap is a 128×128×24 T2 map like the peer benchmark's: a disc of
+// values 20–300 ms in air (NaN).
+func benchMap() *volume.Image {
+	im := &volume.Image{Dims: [4]int{128, 128, 24, 1}, Affine: volume.Identity()}
+	im.Data = make([]float32, 128*128*24)
+	for k := 0; k < 24; k++ {
+		for j := 0; j < 128; j++ {
+			for i := 0; i < 128; i++ {
+				v := float32(math.NaN())
+				if dx, dy := float64(i-64), float64(j-64); dx*dx+dy*dy < 55*55 {
+					v = float32(20 + 280*float64(i)/127 + float64(k))
+				}
+				im.Data[(k*128+j)*128+i] = v
+			}
+		}
+	}
+	return im
+}
+
+// BenchmarkMontage draws the montage of a 128×128×24 map (1412×1337
+// pixels) and encodes it, with tauvox's encoder and with image/png.
+func BenchmarkMontage(b *testing.B) {
+	im := benchMap()
+	b.Run("draw", func(b *testing.B) {
+		for b.Loop() {
+			if _, err := Montage(im, &Options{Quantity: "T2", Title: "T2map"}); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	img, _ := Montage(im, &Options{Quantity: "T2", Title: "T2map"})
+	b.Run("encode", func(b *testing.B) {
+		var buf bytes.Buffer
+		for b.Loop() {
+			buf.Reset()
+			encodePNG(&buf, img)
+		}
+		b.ReportMetric(float64(buf.Len()), "bytes")
+	})
+	b.Run("encode-image-png", func(b *testing.B) {
+		var buf bytes.Buffer
+		for b.Loop() {
+			buf.Reset()
+			png.Encode(&buf, img)
+		}
+		b.ReportMetric(float64(buf.Len()), "bytes")
+	})
+}
+
+// TestPercentileSelect: the selection-based percentile equals the
+// Hyndman–Fan definition 7 (numpy.percentile's default) computed on a
+// sorted copy, for random data with many ties, sorted and reversed input,
+// and sizes 1 to 1000.
+func TestPercentileSelect(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	for n := 1; n <= 1000; n += 1 + n/7 {
+		for kind := 0; kind < 4; kind++ {
+			s := make([]float64, n)
+			for i := range s {
+				switch kind {
+				case 0:
+					s[i] = r.NormFloat64()
+				case 1:
+					s[i] = float64(r.IntN(5)) // ties
+				case 2:
+					s[i] = float64(i)
+				case 3:
+					s[i] = float64(n - i)
+				}
+			}
+			sorted := append([]float64(nil), s...)
+			slices.Sort(sorted)
+			ref := func(p float64) float64 {
+				h := p * float64(n-1)
+				k := int(math.Floor(h))
+				if k >= n-1 {
+					return sorted[n-1]
+				}
+				return sorted[k] + (h-float64(k))*(sorted[k+1]-sorted[k])
+			}
+			for _, p := range []float64{0, 0.01, 0.5, 0.99, 1} {
+				if got, want := percentile(s, p), ref(p); got != want {
+					t.Fatalf("n %d kind %d p %v: %v, want %v", n, kind, p, got, want)
+				}
+			}
+		}
+	}
+}
