@@ -381,24 +381,42 @@ func (p *PeakHistogram) Peaks(dst []float32, im *volume.Image) []float32 {
 	if cap(dst) < nv {
 		dst = make([]float32, nv)
 	}
-	dst = dst[:nv]
-	for v := range dst {
-		dst[v] = float32(math.Inf(-1))
-	}
+	dst = ResetPeaks(dst[:nv])
 	for t := 0; t < nt; t++ {
-		vol := im.Data[t*nv : (t+1)*nv]
-		for v, s := range vol {
-			if s > dst[v] && !math.IsInf(float64(s), 0) {
-				dst[v] = s
-			}
+		MaxInto(dst, im.Data[t*nv:(t+1)*nv])
+	}
+	p.Raise(dst)
+	return dst
+}
+
+// ResetPeaks sets every peak to −Inf (no sample yet) and returns peaks.
+func ResetPeaks(peaks []float32) []float32 {
+	for v := range peaks {
+		peaks[v] = float32(math.Inf(-1))
+	}
+	return peaks
+}
+
+// MaxInto raises each peak to the same voxel's sample of vol when that is
+// larger and finite: the step Peaks takes for each volume, for a caller
+// that receives the volumes one at a time. Start from ResetPeaks and
+// finish with Raise.
+func MaxInto(peaks, vol []float32) {
+	vol = vol[:len(peaks)]
+	for v, s := range vol {
+		if s > peaks[v] && !math.IsInf(float64(s), 0) {
+			peaks[v] = s
 		}
 	}
-	for _, s := range dst {
+}
+
+// Raise raises the histogram's top to the largest of peaks.
+func (p *PeakHistogram) Raise(peaks []float32) {
+	for _, s := range peaks {
 		if float64(s) > p.top {
 			p.top = float64(s)
 		}
 	}
-	return dst
 }
 
 // Top returns the largest peak seen so far (0 when none is positive).

@@ -186,24 +186,34 @@ func wholeMaps(maps *fit.Maps, dims [4]int, affine volume.Affine) map[string]*vo
 var inMemoryNIfTI = false
 
 // previews writes the PNG previews into the stage unless --no-preview.
-func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Param, inMemory map[string]*volume.Image) error {
+// It starts them and returns the function that waits for them: with the
+// maps in memory (inMemory not nil) they are drawn while the caller
+// writes the map files; otherwise the caller must start them after.
+func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Param, inMemory map[string]*volume.Image) (wait func() error) {
 	if a.noPreview {
-		return nil
+		return func() error { return nil }
 	}
 	var win preview.Window
 	if a.previewRange != "" {
 		w, err := preview.ParseWindow(a.previewRange)
 		if err != nil {
-			return fmt.Errorf("--range: %v", err)
+			return func() error { return fmt.Errorf("--range: %v", err) }
 		}
 		win = w
 	}
-	return fitPreviews(ctx, st.Path(""), outs, win, inMemory)
+	done := make(chan error, 1)
+	go func() { done <- fitPreviews(ctx, st.Path(""), outs, win, inMemory) }()
+	return func() error { return <-done }
 }
 
 func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 	if err := checkOutput(a.out, a.series, a.maskFile, a.b1File); err != nil {
 		return err
+	}
+	if a.previewRange != "" {
+		if _, err := preview.ParseWindow(a.previewRange); err != nil {
+			return fmt.Errorf("--range: %v", err)
+		}
 	}
 	if a.memory <= 0 {
 		a.memory = defaultMemory
@@ -322,10 +332,12 @@ func fitInMemory(ctx context.Context, a *fitArgs, e *env) error {
 	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: version(), Settings: settings,
 		Inputs: inputs, Source: im.Source, Acq: im.Acq,
 		Timings: map[string]float64{"load": tLoad.Seconds(), "fit": tFit.Seconds()}}
+	drawn := a.previews(ctx, st, model.Outputs(), wholeMaps(maps, im.Dims, im.Affine))
 	if _, err := mapset.Write(st, maps, im, info); err != nil {
+		drawn()
 		return err
 	}
-	if err := a.previews(ctx, st, model.Outputs(), wholeMaps(maps, im.Dims, im.Affine)); err != nil {
+	if err := drawn(); err != nil {
 		return err
 	}
 	if err := st.Commit(); err != nil {
@@ -735,6 +747,7 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 			b1.scale = 0.01
 		}
 	}
+	sums := mapset.StartChecksums(inputs) // while the series is read
 	buf := make([]float32, plan.Slices*plane*nvol)
 	slab := func(i int) (*volume.Image, error) {
 		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
@@ -751,11 +764,23 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 	thr := a.threshold
 	var first *volume.Image // the one slab, when the series is a single slab
 	if nslab == 1 {
-		if first, err = slab(0); err != nil {
+		// The peaks of the automatic threshold are taken volume by volume
+		// while the rest of the series is still being read.
+		var peaks []float32
+		if auto {
+			peaks = fit.ResetPeaks(make([]float32, plane*nz))
+			src.r.VolumeDone = func(_ int, vol []float32) { fit.MaxInto(peaks, vol) }
+		}
+		first, err = slab(0)
+		src.r.VolumeDone = nil
+		if err != nil {
 			return err
 		}
 		if auto {
-			thr = fit.AutoThreshold(first)
+			var ph fit.PeakHistogram
+			ph.Raise(peaks)
+			ph.Add(peaks)
+			thr = ph.Threshold()
 		}
 	} else if auto {
 		if thr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
@@ -810,7 +835,7 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 	}
 	timings := map[string]float64{}
 	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: version(), Settings: settings,
-		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings}
+		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings, Sums: sums}
 	w, err := mapset.NewWriter(st, model.Outputs(), [3]int{nx, ny, nz}, affine, info)
 	if err != nil {
 		return err
@@ -830,6 +855,12 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 		opt.Progress = func(done int) { bar.Set(offset + done) }
 	}
 	var maps *fit.Maps
+	var drawn func() error // waits for the previews, once started
+	defer func() {
+		if drawn != nil && err != nil {
+			drawn() // no goroutine writes into the stage once it is removed
+		}
+	}()
 	var tRead, tFit, tWrite time.Duration
 	var counts [fit.NumStatus]int
 	var maskBuf []bool
@@ -871,6 +902,11 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 			return err
 		}
 		tFit += time.Since(tf)
+		if nslab == 1 {
+			// The previews are drawn from the maps in memory while the map
+			// files are compressed and written.
+			drawn = a.previews(ctx, st, model.Outputs(), wholeMaps(maps, [4]int{nx, ny, nz, 1}, affine))
+		}
 		offset += im.Voxels()
 		for s, c := range maps.Counts {
 			counts[s] += c
@@ -904,11 +940,12 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 	if _, err = w.Close(); err != nil {
 		return err
 	}
-	var whole map[string]*volume.Image
-	if nslab == 1 {
-		whole = wholeMaps(maps, [4]int{nx, ny, nz, 1}, affine)
+	if drawn == nil { // several slabs: drawn from the finished files
+		drawn = a.previews(ctx, st, model.Outputs(), nil)
 	}
-	if err = a.previews(ctx, st, model.Outputs(), whole); err != nil {
+	err = drawn()
+	drawn = nil
+	if err != nil {
 		return err
 	}
 	if err = st.Commit(); err != nil {

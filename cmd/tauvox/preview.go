@@ -105,10 +105,13 @@ func writePreviews(ctx context.Context, folder *mapset.Folder, stems []string, o
 }
 
 // previewJob is one map to draw: its stem and file, and its samples when
-// the fit still holds them (nil: read from the file).
+// the fit still holds them (nil: read from the file). quantity and unit,
+// when quantity is set, are those of the map's sidecar (the fit's
+// parameter), which then need not exist yet.
 type previewJob struct {
-	stem, path string
-	im         *volume.Image
+	stem, path     string
+	quantity, unit string
+	im             *volume.Image
 }
 
 // drawPreviews draws the jobs' montages into out, as many at once as
@@ -149,7 +152,12 @@ func drawPreview(j previewJob, out string, win preview.Window) error {
 	if im.Dims[3] != 1 {
 		return fmt.Errorf("%s: has %d volumes; a preview draws 3-D maps", j.path, im.Dims[3])
 	}
-	q, unit := mapQuantity(j.path, j.stem)
+	q, unit := j.quantity, j.unit
+	if q == "" {
+		q, unit = mapQuantity(j.path, j.stem)
+	} else if unit == "" {
+		unit = preview.DefaultUnit(q)
+	}
 	if strings.HasSuffix(j.stem, "fitquality") {
 		q, unit = "fraction", "R²" // R² of the fit, not the rate R2
 	}
@@ -164,19 +172,28 @@ func drawPreview(j previewJob, out string, win preview.Window) error {
 }
 
 // fitPreviews writes the previews of a fit's parameter maps into the
-// staged output folder dir (before it is committed): one PNG per model
-// output, not the standard errors, fit quality or status. inMemory, when
-// not nil, holds the whole maps of the fit by stem (a fit of one slab), so
-// that they are not read back from the files.
+// staged output folder dir: one PNG per model output, not the standard
+// errors, fit quality or status. With inMemory (the whole maps of the fit
+// by stem, for a fit of one slab) it draws them from memory and may run
+// while the map files are still being written; otherwise it reads the
+// files, which must be complete.
 func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.Window, inMemory map[string]*volume.Image) error {
+	var jobs []previewJob
+	if inMemory != nil {
+		for _, p := range outs {
+			if im := inMemory[p.Map]; im != nil {
+				jobs = append(jobs, previewJob{stem: p.Map, path: filepath.Join(dir, p.Map+".nii.gz"), quantity: p.Name, unit: p.Unit, im: im})
+			}
+		}
+		return drawPreviews(ctx, jobs, dir, win)
+	}
 	folder, err := mapset.Open(dir)
 	if err != nil {
 		return err
 	}
-	var jobs []previewJob
 	for _, p := range outs {
 		if path, ok := folder.Maps[p.Map]; ok {
-			jobs = append(jobs, previewJob{stem: p.Map, path: path, im: inMemory[p.Map]})
+			jobs = append(jobs, previewJob{stem: p.Map, path: path})
 		}
 	}
 	return drawPreviews(ctx, jobs, dir, win)

@@ -28,6 +28,9 @@ type Info struct {
 	Source   volume.Source  // series description
 	Acq      []volume.Acquisition
 	Timings  map[string]float64 // seconds per stage
+	// Sums, when not nil, are the checksums of Inputs already under way
+	// (StartChecksums); otherwise NewWriter starts them.
+	Sums Sums
 }
 
 // Provenance is the content of provenance.json.
@@ -127,7 +130,7 @@ type Writer struct {
 	closed bool
 	// sums receives the checksums of the inputs, computed while the maps
 	// are made (reading a large series takes a while).
-	sums chan checksums
+	sums Sums
 }
 
 type checksums struct {
@@ -135,10 +138,16 @@ type checksums struct {
 	err  error
 }
 
-// NewWriter opens every map of a fit with outputs outs on a grid of dims
-// voxels with the given affine.
-func NewWriter(st *Stage, outs []fit.Param, dims [3]int, affine volume.Affine, info *Info) (*Writer, error) {
-	w := &Writer{st: st, info: info, outs: outs, sums: make(chan checksums, 1)}
+// Sums delivers the checksums of a fit's inputs, computed in the
+// background (StartChecksums).
+type Sums = chan checksums
+
+// StartChecksums starts computing the SHA-256 of every input in the
+// background, for Info.Sums: a caller that starts it before reading a
+// large series lets it run while a CPU is otherwise idle (inflating a
+// .nii.gz is sequential).
+func StartChecksums(inputs []series.Input) Sums {
+	ch := make(chan checksums, 1)
 	go func(in []series.Input) {
 		var c checksums
 		for _, i := range in {
@@ -149,8 +158,18 @@ func NewWriter(st *Stage, outs []fit.Param, dims [3]int, affine volume.Affine, i
 			}
 			c.recs = append(c.recs, InputRecord{Path: i.Path, Role: i.Role, SHA256: sum, Bytes: n})
 		}
-		w.sums <- c
-	}(append([]series.Input(nil), info.Inputs...))
+		ch <- c
+	}(append([]series.Input(nil), inputs...))
+	return ch
+}
+
+// NewWriter opens every map of a fit with outputs outs on a grid of dims
+// voxels with the given affine.
+func NewWriter(st *Stage, outs []fit.Param, dims [3]int, affine volume.Affine, info *Info) (*Writer, error) {
+	w := &Writer{st: st, info: info, outs: outs, sums: info.Sums}
+	if w.sums == nil {
+		w.sums = StartChecksums(info.Inputs)
+	}
 	grid := [4]int{dims[0], dims[1], dims[2], 1}
 	open := func(stem string, dt nifti.Datatype, meta map[string]any) error {
 		f, err := nifti.Create(st.Path(stem+".nii.gz"), grid, affine, &nifti.WriteOptions{Datatype: dt, Description: "tauvox " + stem})

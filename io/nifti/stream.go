@@ -48,6 +48,14 @@ type SlabReader struct {
 	consumed bool
 
 	buf []byte
+
+	// VolumeDone, when not nil, is called by ReadSlab with each listed
+	// volume's part of the slab (i its place in the list, vol its samples
+	// in dst) as soon as that part is complete, in order. For a gzip
+	// image read whole it runs while the rest is still being inflated, so
+	// work on the samples (the per-voxel peaks of the automatic
+	// threshold) overlaps the decompression.
+	VolumeDone func(i int, vol []float32)
 }
 
 // SlabOptions holds the settings of OpenSlabs. The zero value (and nil)
@@ -193,6 +201,9 @@ func (r *SlabReader) ReadSlab(dst []float32, z0, z1 int, vols []int) error {
 			convert(out[pos:pos+k], b, dt, r.Header.ByteOrder, r.sc)
 			pos += k
 		}
+		if r.VolumeDone != nil {
+			r.VolumeDone(i, out)
+		}
 	}
 	return nil
 }
@@ -204,27 +215,79 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	dt := r.Header.Datatype
 	sz := int64(dt.Size())
 	need := r.n * sz
-	if cap(r.buf) < chunkBytes {
-		r.buf = make([]byte, chunkBytes)
-	}
 	total := per * nvol
-	var read int64
-	for pos := 0; pos < total; {
-		k := min(total-pos, chunkBytes/int(sz))
-		b := r.buf[:int64(k)*sz]
-		got, err := s.readFull(b)
-		if err != nil {
-			return err
+	// One goroutine inflates into a ring of buffers while this one
+	// converts them (and runs VolumeDone): the decompression, inherently
+	// sequential, is the only work left on its path.
+	const ring = 4
+	type part struct {
+		b   []byte
+		got int
+		err error
+	}
+	free := make(chan []byte, ring)
+	full := make(chan part, ring)
+	stop := make(chan struct{})
+	for range ring {
+		free <- make([]byte, seqChunkBytes)
+	}
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		defer close(full)
+		for pos := 0; pos < total; {
+			var b []byte
+			select {
+			case b = <-free:
+			case <-stop:
+				return
+			}
+			k := min(total-pos, seqChunkBytes/int(sz))
+			got, err := s.readFull(b[:int64(k)*sz])
+			select {
+			case full <- part{b[:int64(k)*sz], got, err}:
+			case <-stop:
+				return
+			}
+			if err != nil || got < k*int(sz) {
+				return
+			}
+			pos += k
 		}
-		read += int64(got)
-		if got < len(b) {
+	}()
+	// On return the producer is stopped and waited for, so that nothing
+	// touches the stream after this call.
+	defer func() {
+		close(stop)
+		<-done
+	}()
+	var read int64
+	pos, vol := 0, 0
+	for p := range full {
+		if p.err != nil {
+			return p.err
+		}
+		read += int64(p.got)
+		if p.got < len(p.b) {
 			return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, read), io.ErrUnexpectedEOF)
 		}
-		convert(dst[pos:pos+k], b, dt, r.Header.ByteOrder, r.sc)
+		k := p.got / int(sz)
+		convert(dst[pos:pos+k], p.b, dt, r.Header.ByteOrder, r.sc)
 		pos += k
+		free <- p.b[:cap(p.b)]
+		for r.VolumeDone != nil && vol < nvol && pos >= (vol+1)*per {
+			r.VolumeDone(vol, dst[vol*per:(vol+1)*per])
+			vol++
+		}
+	}
+	if pos < total { // the producer stopped early without an error: cannot happen
+		return formatErr(r.name, "samples missing", io.ErrUnexpectedEOF)
 	}
 	return s.finish()
 }
+
+// seqChunkBytes is the size of the buffers of a sequential read.
+const seqChunkBytes = 1 << 20
 
 // spill decompresses the samples into a temporary file and reads from it
 // from then on.
