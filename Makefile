@@ -58,6 +58,7 @@ FUZZMINIMIZE ?= 1s
 FUZZ_TARGETS := \
 	./io/nifti/:FuzzDecode \
 	./io/nifti/:FuzzDecodeGzip \
+	./io/gzsplit/:FuzzDecode \
 	./io/sidecar/:FuzzRead \
 	./io/dicom/:FuzzReadHeader \
 	./io/dicom/:FuzzSeries \

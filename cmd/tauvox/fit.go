@@ -771,8 +771,11 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 			peaks = fit.ResetPeaks(make([]float32, plane*nz))
 			src.r.VolumeDone = func(_ int, vol []float32) { fit.MaxInto(peaks, vol) }
 		}
+		// A .nii.gz read whole may decode its second half on another CPU,
+		// within what the slab plan leaves of the memory budget.
+		src.r.SplitMemory = max(int64(a.memory)-per*int64(nz), 0)
 		first, err = slab(0)
-		src.r.VolumeDone = nil
+		src.r.VolumeDone, src.r.SplitMemory = nil, 0
 		if err != nil {
 			return err
 		}

@@ -5,10 +5,12 @@ import (
 	"encoding/binary"
 	"fmt"
 	"github.com/klauspost/compress/gzip"
+	"hash/crc32"
 	"io"
 	"math"
 	"os"
 	"strings"
+	"sync/atomic"
 
 	"github.com/tauvox/tauvox/io/volume"
 )
@@ -199,6 +201,10 @@ type stream struct {
 	gz   *gzip.Reader // nil when not compressed
 	size int64        // bytes in the (uncompressed) source, -1 if unknown
 	pos  int64        // bytes consumed
+	// crc tracks the CRC-32 of the decompressed bytes read so far (gzip
+	// only), for checking a speculatively decoded end (split.go).
+	crc *crcReader
+	raw *countReader // the file under it, when opened by openStream
 	// named reports a name ending .gz whose content is not gzip, for a
 	// clearer error when the header then fails.
 	namedGz bool
@@ -218,12 +224,27 @@ func openStream(path string) (*os.File, *stream, error) {
 		f.Close()
 		return nil, nil, formatErr(path, "is a directory, not a NIfTI file", nil)
 	}
-	s, err := newStream(f, path, fi.Size())
+	cr := &countReader{r: f}
+	s, err := newStream(cr, path, fi.Size())
 	if err != nil {
 		f.Close()
 		return nil, nil, err
 	}
+	s.raw = cr
 	return f, s, nil
+}
+
+// countReader counts the bytes read from the file (the compressed
+// position of a gzip stream, plus read-ahead). Read by one goroutine.
+type countReader struct {
+	r io.Reader
+	n atomic.Int64
+}
+
+func (c *countReader) Read(p []byte) (int, error) {
+	n, err := c.r.Read(p)
+	c.n.Add(int64(n))
+	return n, err
 }
 
 func newStream(r io.Reader, name string, size int64) (*stream, error) {
@@ -242,7 +263,8 @@ func newStream(r io.Reader, name string, size int64) (*stream, error) {
 			return nil, formatErr(name, "bad gzip stream", err)
 		}
 		z.Multistream(true)
-		s.r, s.gz, s.size = z, z, -1
+		s.crc = &crcReader{r: z, on: true}
+		s.r, s.gz, s.size = s.crc, z, -1
 		return s, nil
 	}
 	s.namedGz = strings.HasSuffix(strings.ToLower(name), ".gz")
@@ -511,4 +533,20 @@ func swapBytes(b []byte, sz int) {
 			binary.LittleEndian.PutUint64(b[i:], binary.BigEndian.Uint64(b[i:]))
 		}
 	}
+}
+
+// crcReader passes reads through, adding them to a CRC-32 (IEEE, as in
+// the gzip trailer, RFC 1952) while on.
+type crcReader struct {
+	r   io.Reader
+	sum uint32
+	on  bool
+}
+
+func (c *crcReader) Read(p []byte) (int, error) {
+	n, err := c.r.Read(p)
+	if c.on {
+		c.sum = crc32.Update(c.sum, crc32.IEEETable, p[:n])
+	}
+	return n, err
 }

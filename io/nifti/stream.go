@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"github.com/klauspost/compress/gzip"
+	"hash/crc32"
 	"io"
 	"math"
 	"os"
@@ -45,6 +46,8 @@ type SlabReader struct {
 	// For gzip sources before spilling: the open stream, positioned at
 	// the first sample, and whether it has been consumed.
 	gz       *stream
+	gzFile   *os.File // the compressed file, for the split read (split.go)
+	split    bool     // the last whole read used a split (for tests)
 	consumed bool
 
 	buf []byte
@@ -56,6 +59,12 @@ type SlabReader struct {
 	// work on the samples (the per-voxel peaks of the automatic
 	// threshold) overlaps the decompression.
 	VolumeDone func(i int, vol []float32)
+
+	// SplitMemory, when positive, lets a whole-image read of a gzip file
+	// decode the second half of the compressed data on another goroutine
+	// while the first is decoded in order (split.go), using up to about
+	// this many bytes more than the image. 0 decodes in order only.
+	SplitMemory int64
 }
 
 // SlabOptions holds the settings of OpenSlabs. The zero value (and nil)
@@ -120,7 +129,7 @@ func OpenSlabs(path string, o *SlabOptions) (*SlabReader, error) {
 		r.Close()
 		return nil, err
 	}
-	r.gz = src
+	r.gz, r.gzFile = src, srcFile
 	return r, nil
 }
 
@@ -215,14 +224,20 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	dt := r.Header.Datatype
 	sz := int64(dt.Size())
 	need := r.n * sz
-	total := per * nvol
+	base := s.pos // stream offset of the first sample byte
+	end := base + need
+	sp := r.startSplit(base, need, dst)
+	defer sp.close()
+	if sp != nil {
+		s.crc.on = false // the consumer below adds the samples to the CRC
+	}
 	// One goroutine inflates into a ring of buffers while this one
 	// converts them (and runs VolumeDone): the decompression, inherently
-	// sequential, is the only work left on its path.
+	// sequential, is the only work left on its path. With a split it stops
+	// where the speculatively decoded end begins.
 	const ring = 4
 	type part struct {
 		b   []byte
-		got int
 		err error
 	}
 	free := make(chan []byte, ring)
@@ -235,24 +250,30 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	go func() {
 		defer close(done)
 		defer close(full)
-		for pos := 0; pos < total; {
+		for pos := base; ; {
+			n := min(int64(seqChunkBytes), sp.limitFor(pos, end)-pos)
+			if n <= 0 {
+				return
+			}
 			var b []byte
 			select {
 			case b = <-free:
 			case <-stop:
 				return
 			}
-			k := min(total-pos, seqChunkBytes/int(sz))
-			got, err := s.readFull(b[:int64(k)*sz])
+			got, err := s.readFull(b[:n])
+			if err == nil && int64(got) < n {
+				err = formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, pos+int64(got)-base), io.ErrUnexpectedEOF)
+			}
 			select {
-			case full <- part{b[:int64(k)*sz], got, err}:
+			case full <- part{b[:got], err}:
 			case <-stop:
 				return
 			}
-			if err != nil || got < k*int(sz) {
+			if err != nil {
 				return
 			}
-			pos += k
+			pos += n
 		}
 	}()
 	// On return the producer is stopped and waited for, so that nothing
@@ -261,33 +282,117 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 		close(stop)
 		<-done
 	}()
-	var read int64
-	pos, vol := 0, 0
+	c := converter{r: r, dst: dst, per: per, nvol: nvol, sz: int(sz), base: base}
+	crc := uint32(0)
+	if sp != nil {
+		crc = s.crc.sum
+	}
+	var win []byte // the last 32 KiB read, for the split's window
 	for p := range full {
 		if p.err != nil {
 			return p.err
 		}
-		read += int64(p.got)
-		if p.got < len(p.b) {
-			return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, read), io.ErrUnexpectedEOF)
+		if sp != nil {
+			crc = crc32.Update(crc, crc32.IEEETable, p.b)
+			win = keepWindow(win, p.b)
 		}
-		k := p.got / int(sz)
-		convert(dst[pos:pos+k], p.b, dt, r.Header.ByteOrder, r.sc)
-		pos += k
+		c.add(p.b)
 		free <- p.b[:cap(p.b)]
-		for r.VolumeDone != nil && vol < nvol && pos >= (vol+1)*per {
-			r.VolumeDone(vol, dst[vol*per:(vol+1)*per])
-			vol++
+	}
+	if t := sp.accepted(); t != nil {
+		ok, err := r.finishSplit(&c, t, crc, win, end)
+		if ok || err != nil {
+			return err
+		}
+		// The speculative end failed its check: read it in order.
+		s.crc.on = true
+		for c.pos < need {
+			n := min(int64(seqChunkBytes), need-c.pos)
+			b := make([]byte, n)
+			got, err := s.readFull(b)
+			if err != nil {
+				return err
+			}
+			if int64(got) < n {
+				return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, c.pos+int64(got)), io.ErrUnexpectedEOF)
+			}
+			c.add(b)
 		}
 	}
-	if pos < total { // the producer stopped early without an error: cannot happen
+	if c.pos < need { // the producer stopped early without an error: cannot happen
 		return formatErr(r.name, "samples missing", io.ErrUnexpectedEOF)
 	}
 	return s.finish()
 }
 
-// seqChunkBytes is the size of the buffers of a sequential read.
-const seqChunkBytes = 1 << 20
+// converter turns the sample bytes of a sequential read into float32,
+// in order, whatever the byte counts of the parts (a sample may straddle
+// two), and reports finished volumes.
+type converter struct {
+	r         *SlabReader
+	dst       []float32
+	per, nvol int
+	sz        int
+	base      int64 // stream offset of the first sample byte
+	pos       int64 // sample bytes taken
+	carry     [8]byte
+	nc        int
+	vol       int // volumes reported
+}
+
+func (c *converter) add(b []byte) {
+	r := c.r
+	c.pos += int64(len(b))
+	at := int((c.pos - int64(len(b))) / int64(c.sz)) // sample index of the next whole sample
+	if c.nc > 0 {
+		k := copy(c.carry[c.nc:c.sz], b)
+		c.nc += k
+		b = b[k:]
+		if c.nc < c.sz {
+			return
+		}
+		convert(c.dst[at:at+1], c.carry[:c.sz], r.Header.Datatype, r.Header.ByteOrder, r.sc)
+		at++
+		c.nc = 0
+	}
+	k := len(b) / c.sz
+	convert(c.dst[at:at+k], b[:k*c.sz], r.Header.Datatype, r.Header.ByteOrder, r.sc)
+	c.nc = copy(c.carry[:], b[k*c.sz:])
+	c.report()
+}
+
+// skip takes n sample bytes already converted in place (whole samples,
+// none pending) and reports the volumes they finish.
+func (c *converter) skip(n int64) {
+	c.pos += n
+	c.report()
+}
+
+func (c *converter) report() {
+	r := c.r
+	done := int(c.pos / int64(c.sz))
+	for r.VolumeDone != nil && c.vol < c.nvol && done >= (c.vol+1)*c.per {
+		r.VolumeDone(c.vol, c.dst[c.vol*c.per:(c.vol+1)*c.per])
+		c.vol++
+	}
+}
+
+// keepWindow returns the last 32 KiB of win followed by b.
+func keepWindow(win, b []byte) []byte {
+	const w = 1 << 15
+	if len(b) >= w {
+		return append(win[:0], b[len(b)-w:]...)
+	}
+	win = append(win, b...)
+	if len(win) > w {
+		win = append(win[:0], win[len(win)-w:]...)
+	}
+	return win
+}
+
+// seqChunkBytes is the size of the buffers of a sequential read (a
+// variable for the tests of the split, which use small files).
+var seqChunkBytes = 1 << 20
 
 // spill decompresses the samples into a temporary file and reads from it
 // from then on.

@@ -1,0 +1,402 @@
+// Package gzsplit decodes the end of a gzip member in parallel with its
+// beginning. Deflate (RFC 1951) is sequential by design: each block may
+// copy from the 32 KiB of output before it. gzsplit finds a block that
+// starts somewhere in the middle of the compressed data by its header
+// (Tail), decodes from there on with the 32 KiB before it unknown,
+// writing a placeholder (a marker naming the window position) wherever
+// the data copy from that unknown window, and fills the markers in once
+// the beginning of the member has been decoded by an ordinary decoder
+// (Resolve). The caller checks the whole output against the member's
+// CRC-32 (RFC 1952), so a wrong guess is detected and costs only time.
+//
+// The method is that of the two-stage parallel decompressors described by
+// Kerbiriou & Chikhi (2019, "Parallel decompression of gzip-compressed
+// files and random access to DNA sequences", IEEE IPDPSW) and Knespel &
+// Brunst (2023, "Rapidgzip", HPDC); the code is our own.
+package gzsplit
+
+import (
+	"encoding/binary"
+	"errors"
+)
+
+// errCorrupt reports data that is not a valid deflate stream from the
+// chosen start.
+var errCorrupt = errors.New("gzsplit: invalid deflate data")
+
+const (
+	windowSize = 1 << 15 // deflate's largest distance
+	primary    = 10      // bits of the first-level Huffman table
+	maxBits    = 15
+	// A table entry holds the symbol in its upper bits and the code
+	// length in its low 4 bits; length 0 marks a code longer than the
+	// primary table, decoded by the slow path.
+)
+
+// huffman is a canonical Huffman code (RFC 1951 §3.2.2) with a lookup
+// table for codes up to primary bits and counts for the rest.
+type huffman struct {
+	table  [1 << primary]uint16
+	count  [maxBits + 1]uint16
+	symbol [288]uint16 // symbols ordered by code
+	long   bool        // some code is longer than primary bits
+}
+
+// Completeness rules of build.
+const (
+	complete = iota // the code must be complete
+	single          // or a single code of one bit (zlib's rule for lengths and distances)
+	any             // or anything not over-subscribed (the fixed distance code)
+)
+
+// build makes the code of the given lengths (0 = unused symbol). It
+// refuses over-subscribed codes and incomplete ones beyond what rule
+// allows.
+func (h *huffman) build(lengths []uint8, rule int) error {
+	h.count = [maxBits + 1]uint16{}
+	for _, l := range lengths {
+		h.count[l]++
+	}
+	h.count[0] = 0
+	left := 1
+	for l := 1; l <= maxBits; l++ {
+		left <<= 1
+		left -= int(h.count[l])
+		if left < 0 {
+			return errCorrupt // over-subscribed
+		}
+	}
+	if left > 0 && rule != any && !(rule == single && h.count[1] == 1 && left == 1<<maxBits-1<<(maxBits-1)) {
+		return errCorrupt
+	}
+	var offs [maxBits + 2]uint16
+	for l := 1; l <= maxBits; l++ {
+		offs[l+1] = offs[l] + h.count[l]
+	}
+	for s, l := range lengths {
+		if l != 0 {
+			h.symbol[offs[l]] = uint16(s)
+			offs[l]++
+		}
+	}
+	// Fill the table: walk the codes in canonical order.
+	h.table = [1 << primary]uint16{}
+	h.long = false
+	code, idx := 0, 0
+	for l := 1; l <= maxBits; l++ {
+		for k := 0; k < int(h.count[l]); k++ {
+			if l <= primary {
+				rev := reverse(code, l)
+				e := h.symbol[idx]<<4 | uint16(l)
+				for j := rev; j < 1<<primary; j += 1 << l {
+					h.table[j] = e
+				}
+			} else {
+				h.long = true
+			}
+			code++
+			idx++
+		}
+		code <<= 1
+	}
+	return nil
+}
+
+func reverse(code, n int) int {
+	r := 0
+	for i := 0; i < n; i++ {
+		r = r<<1 | code&1
+		code >>= 1
+	}
+	return r
+}
+
+// bits reads deflate's LSB-first bit stream from memory.
+type bits struct {
+	data []byte
+	pos  int    // next byte to load
+	buf  uint64 // loaded bits, next bit lowest
+	n    uint   // bits in buf
+}
+
+func (b *bits) refill() {
+	if b.pos+8 <= len(b.data) {
+		b.buf |= binary.LittleEndian.Uint64(b.data[b.pos:]) << b.n
+		adv := (63 - b.n) >> 3
+		b.pos += int(adv)
+		b.n |= 56
+		return
+	}
+	for b.n <= 56 && b.pos < len(b.data) {
+		b.buf |= uint64(b.data[b.pos]) << b.n
+		b.pos++
+		b.n += 8
+	}
+}
+
+// need makes sure k ≤ 56 bits are loaded, or reports the end of data.
+func (b *bits) need(k uint) bool {
+	if b.n < k {
+		b.refill()
+	}
+	return b.n >= k
+}
+
+func (b *bits) take(k uint) uint64 {
+	v := b.buf & (1<<k - 1)
+	b.buf >>= k
+	b.n -= k
+	return v
+}
+
+// bitPos returns the position of the next unread bit from the start of
+// data.
+func (b *bits) bitPos() int64 { return int64(b.pos)*8 - int64(b.n) }
+
+// decode reads one symbol of h. Needs at least 15 bits loaded (or the end).
+func (b *bits) decode(h *huffman) (int, error) {
+	e := h.table[b.buf&(1<<primary-1)]
+	if l := uint(e & 15); l != 0 {
+		if l > b.n {
+			return 0, errCorrupt
+		}
+		b.buf >>= l
+		b.n -= l
+		return int(e >> 4), nil
+	}
+	// Slow path (codes longer than primary bits, or an unused pattern):
+	// canonical decoding one bit at a time (as in zlib's puff.c).
+	code, first, index := 0, 0, 0
+	for l := 1; l <= maxBits; l++ {
+		if b.n == 0 {
+			return 0, errCorrupt
+		}
+		code |= int(b.buf & 1)
+		b.buf >>= 1
+		b.n--
+		count := int(h.count[l])
+		if code-count < first {
+			return int(h.symbol[index+(code-first)]), nil
+		}
+		index += count
+		first += count
+		first <<= 1
+		code <<= 1
+	}
+	return 0, errCorrupt
+}
+
+var (
+	lengthBase  = [29]uint16{3, 4, 5, 6, 7, 8, 9, 10, 11, 13, 15, 17, 19, 23, 27, 31, 35, 43, 51, 59, 67, 83, 99, 115, 131, 163, 195, 227, 258}
+	lengthExtra = [29]uint8{0, 0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 4, 4, 4, 4, 5, 5, 5, 5, 0}
+	distBase    = [30]uint16{1, 2, 3, 4, 5, 7, 9, 13, 17, 25, 33, 49, 65, 97, 129, 193, 257, 385, 513, 769, 1025, 1537, 2049, 3073, 4097, 6145, 8193, 12289, 16385, 24577}
+	distExtra   = [30]uint8{0, 0, 0, 0, 1, 1, 2, 2, 3, 3, 4, 4, 5, 5, 6, 6, 7, 7, 8, 8, 9, 9, 10, 10, 11, 11, 12, 12, 13, 13}
+	// clOrder is the order of the code-length code lengths (RFC 1951 §3.2.7).
+	clOrder = [19]uint8{16, 17, 18, 0, 8, 7, 9, 6, 10, 5, 11, 4, 12, 3, 13, 2, 14, 1, 15}
+)
+
+var fixedLit, fixedDist huffman
+
+func init() {
+	var l [288]uint8
+	for i := range l {
+		switch {
+		case i < 144:
+			l[i] = 8
+		case i < 256:
+			l[i] = 9
+		case i < 280:
+			l[i] = 7
+		default:
+			l[i] = 8
+		}
+	}
+	if err := fixedLit.build(l[:], complete); err != nil {
+		panic(err)
+	}
+	var d [30]uint8
+	for i := range d {
+		d[i] = 5
+	}
+	if err := fixedDist.build(d[:], any); err != nil {
+		panic(err)
+	}
+}
+
+// dynamicHeader reads the code definitions of a dynamic block (after its
+// 3 header bits) into lit and dist.
+func (b *bits) dynamicHeader(lit, dist *huffman) error {
+	if !b.need(14) {
+		return errCorrupt
+	}
+	nlit := int(b.take(5)) + 257
+	ndist := int(b.take(5)) + 1
+	nclen := int(b.take(4)) + 4
+	if nlit > 286 || ndist > 30 {
+		return errCorrupt
+	}
+	var cl [19]uint8
+	for i := 0; i < nclen; i++ {
+		if !b.need(3) {
+			return errCorrupt
+		}
+		cl[clOrder[i]] = uint8(b.take(3))
+	}
+	var clh huffman
+	if err := clh.build(cl[:], complete); err != nil {
+		return err
+	}
+	var lengths [286 + 30]uint8
+	for i := 0; i < nlit+ndist; {
+		b.need(maxBits + 7)
+		sym, err := b.decode(&clh)
+		if err != nil {
+			return err
+		}
+		var rep int
+		var val uint8
+		switch {
+		case sym < 16:
+			lengths[i] = uint8(sym)
+			i++
+			continue
+		case sym == 16:
+			if i == 0 || !b.need(2) {
+				return errCorrupt
+			}
+			val, rep = lengths[i-1], 3+int(b.take(2))
+		case sym == 17:
+			if !b.need(3) {
+				return errCorrupt
+			}
+			rep = 3 + int(b.take(3))
+		default:
+			if !b.need(7) {
+				return errCorrupt
+			}
+			rep = 11 + int(b.take(7))
+		}
+		if i+rep > nlit+ndist {
+			return errCorrupt
+		}
+		for ; rep > 0; rep-- {
+			lengths[i] = val
+			i++
+		}
+	}
+	if lengths[256] == 0 { // no end-of-block code
+		return errCorrupt
+	}
+	if err := lit.build(lengths[:nlit], single); err != nil {
+		return err
+	}
+	return dist.build(lengths[nlit:nlit+ndist], single)
+}
+
+// symbols decodes the compressed data of one block into out (whose
+// earlier part is the window), returning out extended.
+func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error) {
+	for {
+		if b.n < 48 {
+			b.refill()
+		}
+		sym, err := b.decode(lit)
+		if err != nil {
+			return out, err
+		}
+		if sym < 256 {
+			out = append(out, T(sym))
+			continue
+		}
+		if sym == 256 {
+			return out, nil
+		}
+		sym -= 257
+		if sym >= 29 {
+			return out, errCorrupt
+		}
+		n := int(lengthBase[sym])
+		if e := uint(lengthExtra[sym]); e > 0 {
+			if b.n < e {
+				return out, errCorrupt
+			}
+			n += int(b.take(e))
+		}
+		ds, err := b.decode(dist)
+		if err != nil {
+			return out, err
+		}
+		if ds >= 30 {
+			return out, errCorrupt
+		}
+		d := int(distBase[ds])
+		if e := uint(distExtra[ds]); e > 0 {
+			if b.n < e {
+				return out, errCorrupt
+			}
+			d += int(b.take(e))
+		}
+		from := len(out) - d
+		if from < 0 {
+			return out, errCorrupt
+		}
+		if d >= n {
+			out = append(out, out[from:from+n]...)
+		} else {
+			for k := 0; k < n; k++ {
+				out = append(out, out[from+k])
+			}
+		}
+	}
+}
+
+// stored copies a stored block (after its 3 header bits).
+func stored[T uint8 | uint16](b *bits, out []T) ([]T, error) {
+	b.take(b.n & 7) // to the byte boundary
+	if !b.need(32) {
+		return out, errCorrupt
+	}
+	n := int(b.take(16))
+	if int(b.take(16)) != ^n&0xffff {
+		return out, errCorrupt
+	}
+	// Bytes still in the bit buffer come first, then the data.
+	for ; n > 0 && b.n >= 8; n-- {
+		out = append(out, T(b.take(8)))
+	}
+	if n == 0 {
+		return out, nil
+	}
+	// The buffer is empty now; clear the look-ahead bits a refill left
+	// above it, which belong to the bytes skipped below.
+	b.buf = 0
+	if b.pos+n > len(b.data) {
+		return out, errCorrupt
+	}
+	for _, c := range b.data[b.pos : b.pos+n] {
+		out = append(out, T(c))
+	}
+	b.pos += n
+	return out, nil
+}
+
+// block decodes one block; final reports its BFINAL bit.
+func block[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) (_ []T, final bool, err error) {
+	if !b.need(3) {
+		return out, false, errCorrupt
+	}
+	final = b.take(1) == 1
+	switch b.take(2) {
+	case 0:
+		out, err = stored(b, out)
+	case 1:
+		out, err = symbols(b, out, &fixedLit, &fixedDist)
+	case 2:
+		if err = b.dynamicHeader(lit, dist); err == nil {
+			out, err = symbols(b, out, lit, dist)
+		}
+	default:
+		err = errCorrupt
+	}
+	return out, final, err
+}

@@ -1,0 +1,221 @@
+package nifti
+
+import (
+	"encoding/binary"
+	"hash/crc32"
+	"io"
+	"math"
+	"runtime"
+	"sync"
+
+	"github.com/tauvox/tauvox/io/gzsplit"
+)
+
+// minSplitBytes is the smallest compressed file worth a split: below it
+// the second goroutine's start costs about what it saves. (A variable for
+// the tests, which use smaller files.)
+var minSplitBytes int64 = 4 << 20
+
+// split is the speculative decoding of the second half of a gzip image
+// (package gzsplit) beside the ordinary decoder. The ordinary decoder asks
+// limitFor how far to read; once the end has decoded (and lies ahead of
+// what it already committed to read) the limit becomes that end's first
+// byte, and the caller checks the whole against the gzip CRC-32.
+//
+// The two halves take about the same time (decoding costs about the same
+// per compressed byte), so the ordinary decoder pauses when its next read
+// could reach the compressed offset where the end begins, until the end
+// is decoded (or has failed): without the pause, a near tie would let it
+// run past the end's start and waste the other half's work.
+type split struct {
+	mu       sync.Mutex
+	limit    int64 // stream offset where the ordinary decoder stops
+	reserved int64 // offset the ordinary decoder has committed to
+	tail     *gzsplit.Tail
+	stopAt   int64
+	crc      uint32 // CRC-32 of the whole member, from its trailer
+	cs       int64  // compressed offset of the end's first block; 0 until found
+	raw      *countReader
+	done     chan struct{} // closed when the end is decoded or has failed
+	// Once accepted, the end's goroutine converts the whole samples of
+	// the end's rest (Tail.Rest) into the destination and takes its
+	// CRC-32, off the ordinary decoder's path.
+	restCRC  uint32
+	restFrom int64 // bytes of the rest left to the caller (a partial sample)
+	restUsed int64 // bytes of the rest converted
+}
+
+// pauseMargin is how far ahead of the end's compressed start the ordinary
+// decoder pauses: one read (at most seqChunkBytes of output, which deflate
+// cannot encode in much more input) plus the read-ahead buffer.
+func pauseMargin() int64 { return int64(seqChunkBytes + 2*chunkBytes) }
+
+// startSplit starts the speculative decoding of a whole-image read whose
+// samples occupy stream bytes base … base+need, or returns nil when it is
+// not worth it (no second CPU, a small file, not allowed the memory).
+func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
+	if r.gzFile == nil || r.gz.raw == nil || r.SplitMemory <= 0 || runtime.GOMAXPROCS(0) < 2 {
+		return nil
+	}
+	fi, err := r.gzFile.Stat()
+	if err != nil || fi.Size() < minSplitBytes {
+		return nil
+	}
+	size := fi.Size()
+	from := size / 2
+	// The compressed half, and the end's output (twice over in the worst
+	// case: 16-bit while it holds placeholders).
+	if (size-from)+2*need > r.SplitMemory {
+		return nil
+	}
+	sp := &split{limit: math.MaxInt64, raw: r.gz.raw, done: make(chan struct{})}
+	go func(f interface {
+		ReadAt([]byte, int64) (int, error)
+	}) {
+		defer close(sp.done)
+		data := make([]byte, size-from)
+		if n, _ := f.ReadAt(data, from); n != len(data) {
+			return
+		}
+		// A header found may be a false positive: try a few.
+		var t *gzsplit.Tail
+		for try, at := 0, 0; try < 8 && t == nil; try++ {
+			start, ok := gzsplit.Find(data, at, min(len(data), 8<<20))
+			if !ok {
+				return
+			}
+			sp.mu.Lock()
+			sp.cs = from + start/8
+			sp.mu.Unlock()
+			tail, err := gzsplit.Decode(data, start, int(need))
+			// A single gzip member: the stream ends with its 8-byte
+			// trailer (CRC-32, ISIZE) at the end of the file.
+			if err == nil && tail.End == len(data)-8 {
+				t = tail
+			}
+			at = int(start/8) + 1
+		}
+		if t == nil {
+			return
+		}
+		crc := binary.LittleEndian.Uint32(data[len(data)-8:])
+		isize := int64(binary.LittleEndian.Uint32(data[len(data)-4:]))
+		u := isize // the member's length, ISIZE modulo 2^32
+		for u < base+need {
+			u += 1 << 32
+		}
+		stopAt := u - int64(t.Len())
+		if stopAt-base < 1<<15 || stopAt >= base+need {
+			return // the window would reach into the header, or no sample is in the end
+		}
+		sp.mu.Lock()
+		ok := stopAt >= sp.reserved
+		if ok {
+			sp.limit, sp.tail, sp.stopAt, sp.crc = stopAt, t, stopAt, crc
+		}
+		sp.mu.Unlock()
+		if !ok {
+			return
+		}
+		// Accepted: the destination beyond stopAt is this goroutine's
+		// until done is closed.
+		rest := t.Rest()
+		sp.restCRC = crc32.ChecksumIEEE(rest)
+		sz := int64(r.Header.Datatype.Size())
+		at := stopAt - base + int64(t.HeadLen()) // sample byte where rest begins
+		first := (at + sz - 1) / sz              // first whole sample in rest
+		sp.restFrom = first*sz - at
+		last := min((at+int64(len(rest)))/sz, need/sz)
+		if last > first {
+			b := rest[sp.restFrom : sp.restFrom+(last-first)*sz]
+			convert(dst[first:last], b, r.Header.Datatype, r.Header.ByteOrder, r.sc)
+			sp.restUsed = int64(len(b))
+		}
+	}(r.gzFile)
+	return sp
+}
+
+// limitFor returns how far (stream offset, at most end) the ordinary
+// decoder at pos may read, and commits it to that.
+func (sp *split) limitFor(pos, end int64) int64 {
+	if sp == nil {
+		return end
+	}
+	sp.mu.Lock()
+	if raw := sp.raw.n.Load(); sp.cs > 0 && sp.tail == nil && raw < sp.cs && raw+pauseMargin() >= sp.cs {
+		sp.mu.Unlock()
+		<-sp.done
+		sp.mu.Lock()
+	}
+	defer sp.mu.Unlock()
+	lim := min(sp.limit, end)
+	sp.reserved = min(pos+int64(seqChunkBytes), lim)
+	return lim
+}
+
+// close ends the split for a read that returns: no end is accepted from
+// now on, and one accepted before has finished writing the destination.
+func (sp *split) close() {
+	if sp == nil {
+		return
+	}
+	sp.mu.Lock()
+	sp.reserved = math.MaxInt64
+	accepted := sp.tail != nil
+	sp.mu.Unlock()
+	if accepted {
+		<-sp.done
+	}
+}
+
+// accepted returns the decoded end if the ordinary decoder stopped at its
+// start, nil otherwise.
+func (sp *split) accepted() *split {
+	if sp == nil {
+		return nil
+	}
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	if sp.tail == nil {
+		return nil
+	}
+	return sp
+}
+
+// finishSplit completes a read whose ordinary decoder stopped at the
+// decoded end's start: it fills the end's placeholders from win (the 32
+// KiB before it), checks the CRC-32 of the whole member (crc so far
+// covers everything before the end) against the trailer, and converts the
+// end's samples. It reports false, and converts nothing, when the check
+// fails (the caller then reads the end in order).
+func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte, end int64) (bool, error) {
+	<-sp.done // the rest converted, its CRC taken
+	t := sp.tail
+	if len(win) != 1<<15 {
+		return false, nil
+	}
+	head, rest, err := t.Resolve(win)
+	if err != nil {
+		return false, nil
+	}
+	crc = crc32.Update(crc, crc32.IEEETable, head)
+	if gzsplit.CombineCRC(crc, sp.restCRC, int64(len(rest))) != sp.crc {
+		return false, nil
+	}
+	// Head, then the partial sample at the start of the rest, then the
+	// converted part, then nothing (bytes past the samples).
+	left := end - sp.stopAt // sample bytes in the end
+	h := min(int64(len(head)), left)
+	c.add(head[:h])
+	left -= h
+	if left > 0 {
+		p := min(sp.restFrom, left, int64(len(rest)))
+		c.add(rest[:p])
+		c.skip(sp.restUsed)
+	}
+	if c.pos != end-c.base {
+		return false, formatErr(r.name, "samples missing after the split read", io.ErrUnexpectedEOF)
+	}
+	r.split = true
+	return true, nil
+}

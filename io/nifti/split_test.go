@@ -1,0 +1,167 @@
+package nifti
+
+import (
+	"bytes"
+	stdgzip "compress/gzip"
+	"errors"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"testing"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// splitSeries returns a 64×64×8×16 multi-echo series of noisy decays
+// (2 MiB as float32); the tests lower minSplitBytes so that it is split.
+func splitSeries(t *testing.T) *volume.Image {
+	oldMin, oldChunk := minSplitBytes, seqChunkBytes
+	minSplitBytes, seqChunkBytes = 64<<10, 16<<10
+	t.Cleanup(func() { minSplitBytes, seqChunkBytes = oldMin, oldChunk })
+	im := &volume.Image{Dims: [4]int{64, 64, 8, 16}, Affine: volume.Identity()}
+	im.Data = make([]float32, 64*64*8*16)
+	r := rand.New(rand.NewPCG(5, 6))
+	nv := 64 * 64 * 8
+	for t := 0; t < 16; t++ {
+		for v := 0; v < nv; v++ {
+			t2 := 20 + float64(v%300)
+			s := 1000*math.Exp(-float64(10*(t+1))/t2) + 10*r.NormFloat64()
+			im.Data[t*nv+v] = float32(math.Abs(s))
+		}
+	}
+	return im
+}
+
+// gzipWith writes im as .nii at a temporary path, then compresses that
+// file with Go's standard compress/gzip at level, so that the gzip stream
+// comes from another writer than tauvox's.
+func gzipWith(t *testing.T, im *volume.Image, level int, mutate func([]byte)) string {
+	t.Helper()
+	dir := t.TempDir()
+	plain := filepath.Join(dir, "s.nii")
+	if err := Write(plain, im, nil); err != nil {
+		t.Fatal(err)
+	}
+	raw, err := os.ReadFile(plain)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var buf bytes.Buffer
+	w, _ := stdgzip.NewWriterLevel(&buf, level)
+	w.Write(raw)
+	w.Close()
+	z := buf.Bytes()
+	if mutate != nil {
+		mutate(z)
+	}
+	p := filepath.Join(dir, "s.nii.gz")
+	if err := os.WriteFile(p, z, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+func readWhole(t *testing.T, path string, split bool) ([]float32, bool, error) {
+	t.Helper()
+	r, err := OpenSlabs(path, &SlabOptions{TempDir: t.TempDir()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if split {
+		r.SplitMemory = 1 << 30
+	}
+	d := r.Dims()
+	dst := make([]float32, d[0]*d[1]*d[2]*d[3])
+	var vols []int
+	r.VolumeDone = func(i int, vol []float32) { vols = append(vols, i) }
+	err = r.ReadSlab(dst, 0, d[2], nil)
+	if err == nil {
+		for i, v := range vols {
+			if v != i {
+				t.Fatalf("VolumeDone order %v", vols)
+			}
+		}
+		if len(vols) != d[3] {
+			t.Fatalf("VolumeDone called for %d of %d volumes", len(vols), d[3])
+		}
+	}
+	return dst, r.split, err
+}
+
+// TestSplitRead: a whole read of a .nii.gz whose second half is decoded
+// speculatively (split.go, package gzsplit) gives the same samples, bit
+// for bit, as the ordinary sequential read, for files compressed by Go's
+// compress/gzip at levels 1, 6 and 9, and actually used the split.
+func TestSplitRead(t *testing.T) {
+	im := splitSeries(t)
+	for _, level := range []int{1, 6, 9} {
+		p := gzipWith(t, im, level, nil)
+		want, _, err := readWhole(t, p, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !sameBits(want, im.Data) {
+			t.Fatalf("level %d: sequential read differs from the image", level)
+		}
+		got, used, err := readWhole(t, p, true)
+		if err != nil {
+			t.Fatalf("level %d: %v", level, err)
+		}
+		if !used {
+			t.Errorf("level %d: the split was not used", level)
+		}
+		if !sameBits(got, want) {
+			t.Errorf("level %d: split read differs", level)
+		}
+	}
+}
+
+// TestSplitCorrupt: damage in the second half of the compressed data, or
+// a second gzip member after the first, never yields wrong samples: the
+// speculative end fails the CRC-32 of the trailer (or is not taken), the
+// read falls back to the ordinary decoder, which reports the corruption
+// (or reads both members).
+func TestSplitCorrupt(t *testing.T) {
+	im := splitSeries(t)
+	// A flipped bit three quarters in: a decodable stream with other
+	// bytes, or an invalid one.
+	flip := gzipWith(t, im, 6, func(z []byte) { z[len(z)*3/4] ^= 0x10 })
+	if _, used, err := readWhole(t, flip, true); err == nil {
+		t.Error("flipped bit: no error")
+	} else if used {
+		t.Error("flipped bit: split used")
+	} else {
+		var fe *FormatError
+		if !errors.As(err, &fe) {
+			t.Errorf("flipped bit: %v, want a FormatError", err)
+		}
+		t.Logf("flipped bit: %v", err)
+	}
+	// Trailer CRC changed: everything decodes, the check must refuse.
+	badCRC := gzipWith(t, im, 6, func(z []byte) { z[len(z)-8] ^= 1 })
+	if _, used, err := readWhole(t, badCRC, true); err == nil || used {
+		t.Errorf("bad trailer CRC: error %v, split used %v", err, used)
+	}
+	// Two members: the image split over two gzip members (as some
+	// parallel compressors write).
+	dir := t.TempDir()
+	plain := filepath.Join(dir, "s.nii")
+	if err := Write(plain, im, nil); err != nil {
+		t.Fatal(err)
+	}
+	raw, _ := os.ReadFile(plain)
+	var buf bytes.Buffer
+	for _, part := range [][]byte{raw[:len(raw)/3], raw[len(raw)/3:]} {
+		w, _ := stdgzip.NewWriterLevel(&buf, 6)
+		w.Write(part)
+		w.Close()
+	}
+	two := filepath.Join(dir, "two.nii.gz")
+	os.WriteFile(two, buf.Bytes(), 0o644)
+	got, _, err := readWhole(t, two, true)
+	if err != nil || !sameBits(got, im.Data) {
+		t.Errorf("two members: %v, equal %v", err, err == nil && sameBits(got, im.Data))
+	}
+}
