@@ -33,8 +33,11 @@ type split struct {
 	reserved int64 // offset the ordinary decoder has committed to
 	tail     *gzsplit.Tail
 	stopAt   int64
-	crc      uint32 // CRC-32 of the whole member, from its trailer
-	cs       int64  // compressed offset of the end's first block; 0 until found
+	crc      uint32        // CRC-32 of the whole member, from its trailer
+	cs       int64         // compressed offset of the end's first block; 0 until found
+	from     int64         // compressed offset where the search for it starts
+	finished bool          // the end's goroutine has returned
+	changed  chan struct{} // closed (and replaced) when cs, tail or finished change
 	raw      *countReader
 	done     chan struct{} // closed when the end is decoded or has failed
 	// Once accepted, the end's goroutine converts the whole samples of
@@ -68,11 +71,17 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 	if (size-from)+2*need > r.SplitMemory {
 		return nil
 	}
-	sp := &split{limit: math.MaxInt64, raw: r.gz.raw, done: make(chan struct{})}
+	sp := &split{limit: math.MaxInt64, raw: r.gz.raw, done: make(chan struct{}), from: from, changed: make(chan struct{})}
 	go func(f interface {
 		ReadAt([]byte, int64) (int, error)
 	}) {
 		defer close(sp.done)
+		defer func() {
+			sp.mu.Lock()
+			sp.finished = true
+			sp.notify()
+			sp.mu.Unlock()
+		}()
 		data := make([]byte, size-from)
 		if n, _ := f.ReadAt(data, from); n != len(data) {
 			return
@@ -86,6 +95,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 			}
 			sp.mu.Lock()
 			sp.cs = from + start/8
+			sp.notify()
 			sp.mu.Unlock()
 			tail, err := gzsplit.Decode(data, start, int(need))
 			// A single gzip member: the stream ends with its 8-byte
@@ -113,6 +123,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		if ok {
 			sp.limit, sp.tail, sp.stopAt, sp.crc = stopAt, t, stopAt, crc
 		}
+		sp.notify()
 		sp.mu.Unlock()
 		if !ok {
 			return
@@ -135,6 +146,12 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 	return sp
 }
 
+// notify wakes a paused ordinary decoder; sp.mu is held.
+func (sp *split) notify() {
+	close(sp.changed)
+	sp.changed = make(chan struct{})
+}
+
 // limitFor returns how far (stream offset, at most end) the ordinary
 // decoder at pos may read, and commits it to that.
 func (sp *split) limitFor(pos, end int64) int64 {
@@ -142,12 +159,23 @@ func (sp *split) limitFor(pos, end int64) int64 {
 		return end
 	}
 	sp.mu.Lock()
-	if raw := sp.raw.n.Load(); sp.cs > 0 && sp.tail == nil && raw < sp.cs && raw+pauseMargin() >= sp.cs {
+	defer sp.mu.Unlock()
+	// Pause while the next read could pass the end's start (or, before
+	// that is found, the point where the search for it begins).
+	for !sp.finished && sp.tail == nil {
+		target := sp.cs
+		if target == 0 {
+			target = sp.from
+		}
+		raw := sp.raw.n.Load()
+		if raw >= target || raw+pauseMargin() < target {
+			break
+		}
+		ch := sp.changed
 		sp.mu.Unlock()
-		<-sp.done
+		<-ch
 		sp.mu.Lock()
 	}
-	defer sp.mu.Unlock()
 	lim := min(sp.limit, end)
 	sp.reserved = min(pos+int64(seqChunkBytes), lim)
 	return lim
