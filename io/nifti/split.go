@@ -245,5 +245,13 @@ func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte
 		return false, formatErr(r.name, "samples missing after the split read", io.ErrUnexpectedEOF)
 	}
 	r.split = true
+	// The end's buffers (its output and the compressed half, about the
+	// size of the image together) are garbage now: collect them at once,
+	// so that what the caller allocates next (the maps) reuses their
+	// memory instead of adding to the peak.
+	sp.mu.Lock()
+	sp.tail = nil
+	sp.mu.Unlock()
+	runtime.GC()
 	return true, nil
 }

@@ -6,7 +6,7 @@ import (
 	"image/color"
 	"math"
 	"math/bits"
-	"sort"
+	"slices"
 	"strconv"
 	"strings"
 )
@@ -91,13 +91,13 @@ func Slice(dst *image.RGBA, values []float32, nx, ny int, cm ColorMap, lo, hi fl
 // default of numpy.percentile). Non-finite values are ignored. When no
 // value is finite it returns 0, 1; when the percentiles are equal it
 // widens the window by 5 % of the value on each side (or to 0..1 for 0).
-// It allocates a copy of the finite values, partially ordered by
+// It allocates a float32 copy of the finite values, partially ordered by
 // selection (linear time; a full sort took most of a montage's time).
 func AutoRange(values []float32) (lo, hi float64) {
-	s := make([]float64, 0, len(values))
+	s := make([]float32, 0, len(values))
 	for _, v := range values {
 		if f := float64(v); !math.IsNaN(f) && !math.IsInf(f, 0) {
-			s = append(s, f)
+			s = append(s, v)
 		}
 	}
 	if len(s) == 0 {
@@ -119,30 +119,30 @@ func AutoRange(values []float32) (lo, hi float64) {
 // (Hyndman–Fan definition 7). It reorders s: the order statistics are
 // found by selection, so that calls for increasing p reuse the order the
 // earlier calls left.
-func percentile(s []float64, p float64) float64 {
+func percentile[F float32 | float64](s []F, p float64) float64 {
 	h := p * float64(len(s)-1)
 	k := int(math.Floor(h))
 	if k >= len(s)-1 {
 		selectKth(s, len(s)-1)
-		return s[len(s)-1]
+		return float64(s[len(s)-1])
 	}
 	selectKth(s, k)
 	next := s[k+1]
 	for _, v := range s[k+2:] {
 		next = min(next, v)
 	}
-	return s[k] + (h-float64(k))*(next-s[k])
+	return float64(s[k]) + (h-float64(k))*(float64(next)-float64(s[k]))
 }
 
 // selectKth reorders s (no NaN) so that s[k] is its k-th smallest value
 // (from 0), every value before it ≤ s[k] and every value after it ≥ s[k]:
 // Hoare's quickselect with a median-of-three pivot, falling back to a
 // sort of the remaining range after 2·log2(n) rounds.
-func selectKth(s []float64, k int) {
+func selectKth[F float32 | float64](s []F, k int) {
 	lo, hi := 0, len(s)-1
 	for depth := 2 * bits.Len(uint(len(s))); hi > lo; depth-- {
 		if depth == 0 {
-			sort.Float64s(s[lo : hi+1])
+			slices.Sort(s[lo : hi+1])
 			return
 		}
 		mid := lo + (hi-lo)/2
