@@ -278,30 +278,17 @@ func (w *Writer) Close() ([]string, error) {
 		return nil, errors.New("mapset: writer already closed")
 	}
 	w.closed = true
-	errs := make([]error, len(w.files))
-	var wg sync.WaitGroup
-	for i, f := range w.files {
-		wg.Add(1)
-		go func(i int, f *nifti.StreamWriter) {
-			defer wg.Done()
-			errs[i] = f.Close()
-		}(i, f)
-	}
-	wg.Wait()
-	if err := first(errs); err != nil {
-		w.err = err
-		w.Abort()
-		return nil, err
-	}
+	// The small files are made first; then every map is finished and
+	// every small file written at once, so that their flushes to disk
+	// (each file is synced before it is renamed) overlap.
 	var names []string
+	files := map[string][]byte{}
 	for i, stem := range w.stems {
 		b, err := json.MarshalIndent(w.metas[i], "", "  ")
 		if err != nil {
 			return nil, err
 		}
-		if err := series.WriteFileAtomic(w.st.Path(stem+".json"), append(b, '\n')); err != nil {
-			return nil, err
-		}
+		files[stem+".json"] = append(b, '\n')
 		names = append(names, stem+".nii.gz", stem+".json")
 	}
 	info := w.info
@@ -314,6 +301,8 @@ func (w *Writer) Close() ([]string, error) {
 	}
 	sums := <-w.sums
 	if sums.err != nil {
+		w.err = sums.err
+		w.Abort()
 		return nil, sums.err
 	}
 	prov.Inputs = sums.recs
@@ -327,7 +316,30 @@ func (w *Writer) Close() ([]string, error) {
 	if err != nil {
 		return nil, err
 	}
-	if err := series.WriteFileAtomic(w.st.Path("provenance.json"), append(b, '\n')); err != nil {
+	files["provenance.json"] = append(b, '\n')
+
+	errs := make([]error, len(w.files)+len(files))
+	var wg sync.WaitGroup
+	for i, f := range w.files {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			errs[i] = f.Close()
+		}()
+	}
+	i := len(w.files)
+	for name, data := range files {
+		wg.Add(1)
+		go func(i int) {
+			defer wg.Done()
+			errs[i] = series.WriteFileAtomic(w.st.Path(name), data)
+		}(i)
+		i++
+	}
+	wg.Wait()
+	if err := first(errs); err != nil {
+		w.err = err
+		w.Abort()
 		return nil, err
 	}
 	return append(names, "provenance.json"), nil
