@@ -101,7 +101,7 @@ func writePreviews(ctx context.Context, folder *mapset.Folder, stems []string, o
 	for i, s := range stems {
 		jobs[i] = previewJob{stem: s, path: folder.Maps[s]}
 	}
-	return drawPreviews(ctx, jobs, out, win)
+	return drawPreviews(ctx, jobs, out, win, 1)
 }
 
 // previewJob is one map to draw: its stem and file, and its samples when
@@ -114,11 +114,13 @@ type previewJob struct {
 	im             *volume.Image
 }
 
-// drawPreviews draws the jobs' montages into out, as many at once as
-// there are CPUs. It returns the first error (in job order).
-func drawPreviews(ctx context.Context, jobs []previewJob, out string, win preview.Window) error {
+// drawPreviews draws the jobs' montages into out, up to parallel at once
+// (maps read from files are drawn one at a time: a map and its montage of
+// a large series take hundreds of megabytes). It returns the first error
+// (in job order).
+func drawPreviews(ctx context.Context, jobs []previewJob, out string, win preview.Window, parallel int) error {
 	errs := make([]error, len(jobs))
-	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	sem := make(chan struct{}, max(parallel, 1))
 	var wg sync.WaitGroup
 	for i, j := range jobs {
 		wg.Add(1)
@@ -185,7 +187,13 @@ func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.
 				jobs = append(jobs, previewJob{stem: p.Map, path: filepath.Join(dir, p.Map+".nii.gz"), quantity: p.Name, unit: p.Unit, im: im})
 			}
 		}
-		return drawPreviews(ctx, jobs, dir, win)
+		// Montages of maps up to 4 Mi voxels (16 MiB of pixels at one pixel
+		// per voxel) are drawn in parallel; larger ones one at a time.
+		parallel := runtime.GOMAXPROCS(0)
+		if len(jobs) > 0 && jobs[0].im.Voxels() > 1<<22 {
+			parallel = 1
+		}
+		return drawPreviews(ctx, jobs, dir, win, parallel)
 	}
 	folder, err := mapset.Open(dir)
 	if err != nil {
@@ -196,5 +204,5 @@ func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.
 			jobs = append(jobs, previewJob{stem: p.Map, path: path})
 		}
 	}
-	return drawPreviews(ctx, jobs, dir, win)
+	return drawPreviews(ctx, jobs, dir, win, 1)
 }
