@@ -934,6 +934,12 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 			}
 		}
 	}
+	if nslab > 1 {
+		// The slab buffers (up to --memory) are not needed any more: let
+		// the previews, which read the maps back, reuse their memory.
+		buf, maps = nil, nil
+		runtime.GC()
+	}
 	tc := time.Now()
 	timings["load"] = tLoad.Seconds()
 	timings["survey"] = tSurvey.Seconds()
