@@ -131,17 +131,33 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		// Accepted: the destination beyond stopAt is this goroutine's
 		// until done is closed.
 		rest := t.Rest()
-		sp.restCRC = crc32.ChecksumIEEE(rest)
 		sz := int64(r.Header.Datatype.Size())
 		at := stopAt - base + int64(t.HeadLen()) // sample byte where rest begins
 		first := (at + sz - 1) / sz              // first whole sample in rest
 		sp.restFrom = first*sz - at
-		last := min((at+int64(len(rest)))/sz, need/sz)
-		if last > first {
-			b := rest[sp.restFrom : sp.restFrom+(last-first)*sz]
-			convert(dst[first:last], b, r.Header.Datatype, r.Header.ByteOrder, r.sc)
-			sp.restUsed = int64(len(b))
+		last := max(min((at+int64(len(rest)))/sz, need/sz), first)
+		sp.restUsed = (last - first) * sz
+		// The ordinary decoder is idle by now (paused or done): take the
+		// CRC and convert in two halves at once.
+		part := func(k0, k1 int64, b []byte) uint32 {
+			if k1 > k0 {
+				off := sp.restFrom + (k0-first)*sz
+				convert(dst[k0:k1], rest[off:off+(k1-k0)*sz], r.Header.Datatype, r.Header.ByteOrder, r.sc)
+			}
+			return crc32.ChecksumIEEE(b)
 		}
+		mid := first + (last-first)/2
+		cut := min(sp.restFrom+(mid-first)*sz, int64(len(rest)))
+		var crcB uint32
+		var wg sync.WaitGroup
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			crcB = part(mid, last, rest[cut:])
+		}()
+		crcA := part(first, mid, rest[:cut])
+		wg.Wait()
+		sp.restCRC = gzsplit.CombineCRC(crcA, crcB, int64(len(rest))-cut)
 	}(r.gzFile)
 	return sp
 }

@@ -31,7 +31,8 @@ type Options struct {
 	Invalid *color.RGBA
 	// Zoom is the number of image pixels per voxel along the finer of
 	// the two in-plane voxel sizes; 0 chooses one so that a slice is
-	// about 160 pixels across (at least 1, at most 8).
+	// at least 128 pixels across (at least 1, at most 8): a 128-voxel
+	// slice is drawn at one pixel per voxel.
 	Zoom int
 	// Columns is the number of slices per row; 0 means ⌈√nz⌉.
 	Columns int
@@ -131,7 +132,7 @@ func tileSize(nx, ny int, vs [3]float64, zoom int) (w, h int) {
 		dx, dy = 1, 1
 	}
 	if zoom <= 0 {
-		zoom = min(max(int(math.Ceil(160/float64(max(nx, ny)))), 1), 8)
+		zoom = min(max(int(math.Ceil(128/float64(max(nx, ny)))), 1), 8)
 	}
 	p := float64(zoom) / math.Min(dx, dy) // pixels per mm
 	w = max(int(math.Round(float64(nx)*dx*p)), 1)
