@@ -9,7 +9,6 @@ import (
 	"io"
 	"math"
 	"os"
-	"path/filepath"
 	"runtime"
 	"runtime/debug"
 	"runtime/pprof"
@@ -484,31 +483,14 @@ func openSlabSource(a *fitArgs, tmpDir string) (*slabSource, error) {
 	if err != nil {
 		return nil, err
 	}
-	s := &slabSource{r: r, src: r.Source(), inputs: []series.Input{{Path: a.series, Role: "series"}}}
-	if s.src.Description == "" {
-		s.src.Description = filepath.Base(a.series)
-	}
+	s := &slabSource{r: r, src: r.Source()}
 	nt := r.Dims()[3]
-	s.acq = make([]volume.Acquisition, nt)
-	for i := range s.acq {
-		s.acq[i] = volume.Unknown()
-	}
 	fail := func(err error) (*slabSource, error) {
 		r.Close()
 		return nil, err
 	}
-	if sc, ok := sidecar.ForImage(a.series); ok {
-		side, err := sidecar.Read(sc)
-		if err != nil {
-			return fail(err)
-		}
-		if s.acq, err = side.Acquisitions(nt); err != nil {
-			return fail(err)
-		}
-		side.ApplySource(&s.src)
-		s.inputs = append(s.inputs, series.Input{Path: sc, Role: "sidecar"})
-	}
-	if err := applyLists(s.acq, a, a.series); err != nil {
+	s.acq, s.inputs, err = series.NIfTIProtocol(a.series, nt, &s.src, &series.Overrides{TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list()})
+	if err != nil {
 		return fail(err)
 	}
 	if nt < 2 {
@@ -524,34 +506,6 @@ func openSlabSource(a *fitArgs, tmpDir string) (*slabSource, error) {
 		}
 	}
 	return s, nil
-}
-
-// applyLists applies --te/--ti/--tr/--fa as series.Load does: one value
-// for every volume or one per volume.
-func applyLists(acq []volume.Acquisition, a *fitArgs, path string) error {
-	nt := len(acq)
-	set := func(flag string, vals []float64, put func(a *volume.Acquisition, v float64)) error {
-		if vals == nil {
-			return nil
-		}
-		if len(vals) != 1 && len(vals) != nt {
-			return fmt.Errorf("%s: --%s lists %d values but the image has %d volumes", path, flag, len(vals), nt)
-		}
-		for t := range acq {
-			v := vals[0]
-			if len(vals) == nt {
-				v = vals[t]
-			}
-			put(&acq[t], v)
-		}
-		return nil
-	}
-	return errors.Join(
-		set("te", a.te.list(), func(a *volume.Acquisition, v float64) { a.EchoTime = v }),
-		set("ti", a.ti.list(), func(a *volume.Acquisition, v float64) { a.InversionTime = v }),
-		set("tr", a.tr.list(), func(a *volume.Acquisition, v float64) { a.RepetitionTime = v }),
-		set("fa", a.fa.list(), func(a *volume.Acquisition, v float64) { a.FlipAngle = v }),
-	)
 }
 
 // skipVolumes leaves out the n volumes of shortest echo time, as

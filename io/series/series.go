@@ -73,36 +73,49 @@ func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
 	if err != nil {
 		return nil, nil, err
 	}
+	acq, inputs, err := NIfTIProtocol(path, im.Volumes(), &im.Source, o)
+	if err != nil {
+		return nil, nil, err
+	}
+	im.Acq = acq
+	return im, inputs, nil
+}
+
+// NIfTIProtocol assembles what Load adds to the samples of the NIfTI
+// series at path with nt volumes, for a caller that reads the samples
+// itself (in slabs): the acquisition parameters of each volume from the
+// sidecar beside it, then o's lists; src (from the header) gets the
+// path, format and the sidecar's description, field, scanner and date.
+// It returns the parameters and the files read.
+func NIfTIProtocol(path string, nt int, src *volume.Source, o *Overrides) ([]volume.Acquisition, []Input, error) {
 	inputs := []Input{{Path: path, Role: "series"}}
-	im.Acq = make([]volume.Acquisition, im.Volumes())
-	for i := range im.Acq {
-		im.Acq[i] = volume.Unknown()
+	acq := make([]volume.Acquisition, nt)
+	for i := range acq {
+		acq[i] = volume.Unknown()
 	}
-	im.Source.Path = path
-	im.Source.Format = "nifti"
-	if im.Source.Description == "" {
-		im.Source.Description = filepath.Base(path)
+	src.Path = path
+	src.Format = "nifti"
+	if src.Description == "" {
+		src.Description = filepath.Base(path)
 	}
-	im.Source.FieldStrength = math.NaN()
+	src.FieldStrength = math.NaN()
 	if sc, ok := sidecar.ForImage(path); ok {
 		s, err := sidecar.Read(sc)
 		if err != nil {
 			return nil, nil, err
 		}
-		acq, err := s.Acquisitions(im.Volumes())
-		if err != nil {
+		if acq, err = s.Acquisitions(nt); err != nil {
 			return nil, nil, err
 		}
-		im.Acq = acq
-		s.ApplySource(&im.Source)
+		s.ApplySource(src)
 		inputs = append(inputs, Input{Path: sc, Role: "sidecar"})
 	}
 	if o != nil {
-		if err := apply(im, o, path); err != nil {
+		if err := applyTo(acq, o, path); err != nil {
 			return nil, nil, err
 		}
 	}
-	return im, inputs, nil
+	return acq, inputs, nil
 }
 
 // loadDICOM scans a DICOM folder or file and loads one series.
@@ -171,7 +184,13 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 }
 
 func apply(im *volume.Image, o *Overrides, path string) error {
-	nt := im.Volumes()
+	return applyTo(im.Acq, o, path)
+}
+
+// applyTo replaces the parameters o lists: one value for every volume or
+// one per volume.
+func applyTo(acq []volume.Acquisition, o *Overrides, path string) error {
+	nt := len(acq)
 	set := func(flag string, vals []float64, put func(a *volume.Acquisition, v float64)) error {
 		if vals == nil {
 			return nil
@@ -179,12 +198,12 @@ func apply(im *volume.Image, o *Overrides, path string) error {
 		if len(vals) != 1 && len(vals) != nt {
 			return fmt.Errorf("%s: --%s lists %d values but the image has %d volumes", path, flag, len(vals), nt)
 		}
-		for t := range im.Acq {
+		for t := range acq {
 			v := vals[0]
 			if len(vals) == nt {
 				v = vals[t]
 			}
-			put(&im.Acq[t], v)
+			put(&acq[t], v)
 		}
 		return nil
 	}
