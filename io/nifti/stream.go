@@ -557,18 +557,26 @@ func Create(path string, dims [4]int, affine volume.Affine, opt *WriteOptions) (
 	return sw, nil
 }
 
+// checkName accepts the names Write and Create write: .nii, and .nii.gz
+// (gz).
+func checkName(path string) (gz bool, err error) {
+	lower := strings.ToLower(path)
+	switch {
+	case strings.HasSuffix(lower, ".nii.gz"):
+		return true, nil
+	case strings.HasSuffix(lower, ".nii"):
+		return false, nil
+	}
+	return false, errors.New(message(path, "file name must end .nii or .nii.gz", nil))
+}
+
 // checkStream makes the checks of checkWrite that do not need the
 // samples: the name, the datatype, the version and its dimension limit,
 // the affine, the time step and the gzip level.
 func checkStream(path string, im *volume.Image, o *WriteOptions) (gz bool, err error) {
 	bad := func(reason string) error { return errors.New(message(path, reason, nil)) }
-	lower := strings.ToLower(path)
-	switch {
-	case strings.HasSuffix(lower, ".nii.gz"):
-		gz = true
-	case strings.HasSuffix(lower, ".nii"):
-	default:
-		return false, bad("file name must end .nii or .nii.gz")
+	if gz, err = checkName(path); err != nil {
+		return false, err
 	}
 	if !o.Datatype.writable() {
 		return false, bad(fmt.Sprintf("cannot write datatype %s", o.Datatype))

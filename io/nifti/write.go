@@ -10,7 +10,6 @@ import (
 	"math"
 	"os"
 	"path/filepath"
-	"strings"
 
 	"github.com/tauvox/tauvox/io/volume"
 )
@@ -128,13 +127,8 @@ func (e *sampleError) Error() string {
 
 func checkWrite(path string, im *volume.Image, o *WriteOptions) (gz bool, err error) {
 	bad := func(reason string) error { return errors.New(message(path, reason, nil)) }
-	lower := strings.ToLower(path)
-	switch {
-	case strings.HasSuffix(lower, ".nii.gz"):
-		gz = true
-	case strings.HasSuffix(lower, ".nii"):
-	default:
-		return false, bad("file name must end .nii or .nii.gz")
+	if _, err := checkName(path); err != nil {
+		return false, err
 	}
 	if im == nil {
 		return false, bad("nil image")
@@ -142,29 +136,7 @@ func checkWrite(path string, im *volume.Image, o *WriteOptions) (gz bool, err er
 	if err := im.Validate(); err != nil {
 		return false, errors.New(message(path, "cannot write", err))
 	}
-	if !o.Datatype.writable() {
-		return false, bad(fmt.Sprintf("cannot write datatype %s", o.Datatype))
-	}
-	if o.Version != 1 && o.Version != 2 {
-		return false, bad(fmt.Sprintf("version %d, want 1 or 2", o.Version))
-	}
-	if o.Version == 1 {
-		for _, d := range im.Dims {
-			if d > math.MaxInt16 {
-				return false, bad(fmt.Sprintf("dimension %d exceeds the NIfTI-1 limit of %d; write NIfTI-2", d, math.MaxInt16))
-			}
-		}
-	}
-	if !finiteAffine(&im.Affine) {
-		return false, bad("affine holds NaN or Inf")
-	}
-	if math.IsNaN(o.TimeStep) || math.IsInf(o.TimeStep, 0) || o.TimeStep < 0 {
-		return false, bad(fmt.Sprintf("time step %g ms is not a finite non-negative number", o.TimeStep))
-	}
-	if (o.Compression < gzip.HuffmanOnly || o.Compression > gzip.BestCompression) && gz {
-		return false, bad(fmt.Sprintf("gzip level %d out of range", o.Compression))
-	}
-	return gz, nil
+	return checkStream(path, im, o)
 }
 
 // writeBody writes header and samples through a buffer (and gzip), then
