@@ -56,21 +56,9 @@ func runExport(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	var stems []string
-	if maps != "" {
-		for _, s := range strings.Split(maps, ",") {
-			s = strings.TrimSpace(s)
-			if _, ok := folder.Maps[s]; !ok {
-				return fmt.Errorf("%s: no map %q (have %s)", pos[0], s, strings.Join(folder.Stems(), ", "))
-			}
-			stems = append(stems, s)
-		}
-	} else {
-		for _, s := range folder.Stems() {
-			if !strings.HasSuffix(s, "_sd") && !strings.HasSuffix(s, "status") && !strings.Contains(s, "desc-sd") && !strings.Contains(s, "sd_") {
-				stems = append(stems, s)
-			}
-		}
+	stems, err := chooseMaps(folder, pos[0], maps)
+	if err != nil {
+		return err
 	}
 	var src *dicom.Series
 	if like != "" {
@@ -161,4 +149,27 @@ func mapQuantity(path, stem string) (string, string) {
 	}
 	q = strings.TrimSuffix(filepath.Base(q), "map")
 	return q, preview.DefaultUnit(q)
+}
+
+// chooseMaps returns the map stems of folder (read from dir) named in the
+// comma list maps, or, when it is empty, every map but the standard
+// errors (_sd, BIDS desc-sd) and status.
+func chooseMaps(folder *mapset.Folder, dir, maps string) ([]string, error) {
+	var stems []string
+	if maps != "" {
+		for _, s := range strings.Split(maps, ",") {
+			s = strings.TrimSpace(s)
+			if _, ok := folder.Maps[s]; !ok {
+				return nil, fmt.Errorf("%s: no map %q (have %s)", dir, s, strings.Join(folder.Stems(), ", "))
+			}
+			stems = append(stems, s)
+		}
+		return stems, nil
+	}
+	for _, s := range folder.Stems() {
+		if !strings.HasSuffix(s, "_sd") && !strings.HasSuffix(s, "status") && !strings.Contains(s, "desc-sd") && !strings.Contains(s, "sd_") {
+			stems = append(stems, s)
+		}
+	}
+	return stems, nil
 }

@@ -56,21 +56,9 @@ func runPreview(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	var stems []string
-	if maps != "" {
-		for _, s := range strings.Split(maps, ",") {
-			s = strings.TrimSpace(s)
-			if _, ok := folder.Maps[s]; !ok {
-				return fmt.Errorf("%s: no map %q (have %s)", pos[0], s, strings.Join(folder.Stems(), ", "))
-			}
-			stems = append(stems, s)
-		}
-	} else {
-		for _, s := range folder.Stems() {
-			if !strings.HasSuffix(s, "_sd") && !strings.HasSuffix(s, "status") && !strings.Contains(s, "sd_") {
-				stems = append(stems, s)
-			}
-		}
+	stems, err := chooseMaps(folder, pos[0], maps)
+	if err != nil {
+		return err
 	}
 	if out == "" {
 		out = pos[0]

@@ -509,19 +509,7 @@ type StreamWriter struct {
 // Create starts the image at path with grid dims and the affine; opt is
 // as for Write (nil: the defaults). The samples then come by Append.
 func Create(path string, dims [4]int, affine volume.Affine, opt *WriteOptions) (*StreamWriter, error) {
-	var o WriteOptions
-	if opt != nil {
-		o = *opt
-	}
-	if o.Datatype == 0 {
-		o.Datatype = Float32
-	}
-	if o.Version == 0 {
-		o.Version = 1
-	}
-	if o.Compression == 0 {
-		o.Compression = DefaultCompression
-	}
+	o := opt.withDefaults()
 	n, err := volume.Count(dims)
 	if err != nil {
 		return nil, errors.New(message(path, "cannot write", err))

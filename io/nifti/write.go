@@ -69,19 +69,7 @@ type WriteOptions struct {
 // allowed). On any error the temporary file is removed and path is left as
 // it was.
 func Write(path string, im *volume.Image, opt *WriteOptions) error {
-	var o WriteOptions
-	if opt != nil {
-		o = *opt
-	}
-	if o.Datatype == 0 {
-		o.Datatype = Float32
-	}
-	if o.Version == 0 {
-		o.Version = 1
-	}
-	if o.Compression == 0 {
-		o.Compression = DefaultCompression
-	}
+	o := opt.withDefaults()
 	gz, err := checkWrite(path, im, &o)
 	if err != nil {
 		return err
@@ -112,6 +100,25 @@ func Write(path string, im *volume.Image, opt *WriteOptions) error {
 	}
 	syncDir(dir)
 	return nil
+}
+
+// withDefaults returns a copy of o (nil: the zero options) with the
+// defaults filled in: float32, NIfTI-1, DefaultCompression.
+func (o *WriteOptions) withDefaults() WriteOptions {
+	var w WriteOptions
+	if o != nil {
+		w = *o
+	}
+	if w.Datatype == 0 {
+		w.Datatype = Float32
+	}
+	if w.Version == 0 {
+		w.Version = 1
+	}
+	if w.Compression == 0 {
+		w.Compression = DefaultCompression
+	}
+	return w
 }
 
 // sampleError reports a sample the chosen datatype cannot hold.
