@@ -358,7 +358,7 @@ func frameFlavor(q string) string {
 
 // lpsGeometry is the DICOM geometry of an affine: unit row and column
 // directions (LPS), spacings, slice step and the first voxel's position,
-// as WriteSeries computes it.
+// used by WriteSeries and WriteParametricMap.
 type lpsGeom struct {
 	x, y, d      [3]float64
 	origin       [3]float64

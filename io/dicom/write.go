@@ -117,10 +117,8 @@ type seriesWriter struct {
 	when    time.Time
 	zone    bool
 	signed  bool
-	x, y, d [3]float64 // LPS row and column directions, slice step
-	origin  [3]float64 // LPS position of voxel (0, 0, 0)
-	di, dj  float64    // column and row spacing
-	echo    []int      // echo number per volume
+	lpsGeom       // LPS directions, spacings, slice step, origin
+	echo    []int // echo number per volume
 	written []string
 }
 
@@ -142,27 +140,11 @@ func newSeriesWriter(dir string, im *volume.Image, o *WriteOptions) (*seriesWrit
 		return nil, fail("pixel data larger than 4 GiB cannot be stored in one file")
 	}
 	// RAS → LPS: negate the first two rows (check-values §3.4).
-	a := im.Affine
-	for r := 0; r < 3; r++ {
-		s := 1.0
-		if r < 2 {
-			s = -1
-		}
-		w.x[r], w.y[r], w.d[r], w.origin[r] = s*a[r][0], s*a[r][1], s*a[r][2], s*a[r][3]
+	g, err := lpsGeometry(im.Affine)
+	if err != nil {
+		return nil, fail("%v", err)
 	}
-	w.di, w.dj = math.Sqrt(dot(w.x, w.x)), math.Sqrt(dot(w.y, w.y))
-	step := math.Sqrt(dot(w.d, w.d))
-	if !(w.di > 0) || !(w.dj > 0) || !(step > 0) || math.IsInf(w.di+w.dj+step, 0) {
-		return nil, fail("affine has a zero or non-finite voxel size")
-	}
-	for r := range w.x {
-		w.x[r] /= w.di
-		w.y[r] /= w.dj
-	}
-	n := cross(w.x, w.y)
-	if math.Abs(dot(w.x, w.y)) > 1e-6 || dist(cross(n, w.d), [3]float64{}) > 1e-6*step {
-		return nil, fail("affine columns are not perpendicular; DICOM cannot store a sheared grid")
-	}
+	w.lpsGeom = *g
 	for _, v := range im.Data {
 		if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) {
 			return nil, fail("sample %v cannot be stored as an integer", v)
@@ -171,7 +153,6 @@ func newSeriesWriter(dir string, im *volume.Image, o *WriteOptions) (*seriesWrit
 			w.signed = true
 		}
 	}
-	var err error
 	if w.study = o.StudyUID; w.study == "" {
 		if w.study, err = w.uid(); err != nil {
 			return nil, err
@@ -338,11 +319,6 @@ func clip(s string, n int) string {
 	return s
 }
 
-// position returns the LPS position of the first voxel of slice k.
-func (w *seriesWriter) position(k int) []float64 {
-	return []float64{w.origin[0] + float64(k)*w.d[0], w.origin[1] + float64(k)*w.d[1], w.origin[2] + float64(k)*w.d[2]}
-}
-
 // quantise stores src into dst (little endian 16-bit) and returns the
 // slope used; the slope is the value of its own DS text, so that a reader
 // applying the written slope gets the quantised values exactly.
@@ -421,7 +397,7 @@ func (w *seriesWriter) writeClassic() error {
 	pix := make([]byte, 2*plane)
 	seq := w.sequence()
 	iop := []float64{w.x[0], w.x[1], w.x[2], w.y[0], w.y[1], w.y[2]}
-	step := math.Sqrt(dot(w.d, w.d))
+	step := w.step
 	for t := 0; t < nt; t++ {
 		a := w.acq(t)
 		for k := 0; k < nz; k++ {
@@ -482,7 +458,7 @@ func (w *seriesWriter) writeEnhanced() error {
 	if err != nil {
 		return err
 	}
-	step := math.Sqrt(dot(w.d, w.d))
+	step := w.step
 	seq := w.sequence()
 	var d dataset
 	w.common(&d, sopEnhancedMR, sop)
