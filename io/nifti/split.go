@@ -3,7 +3,6 @@ package nifti
 import (
 	"encoding/binary"
 	"hash/crc32"
-	"io"
 	"math"
 	"runtime"
 	"sync"
@@ -29,10 +28,9 @@ var minSplitBytes int64 = 4 << 20
 // run past the end's start and waste the other half's work.
 type split struct {
 	mu       sync.Mutex
-	limit    int64 // stream offset where the ordinary decoder stops
+	limit    int64 // stream offset where the ordinary decoder stops: the end's first byte once accepted
 	reserved int64 // offset the ordinary decoder has committed to
 	tail     *gzsplit.Tail
-	stopAt   int64
 	crc      uint32        // CRC-32 of the whole member, from its trailer
 	cs       int64         // compressed offset of the end's first block; 0 until found
 	from     int64         // compressed offset where the search for it starts
@@ -121,7 +119,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		sp.mu.Lock()
 		ok := stopAt >= sp.reserved
 		if ok {
-			sp.limit, sp.tail, sp.stopAt, sp.crc = stopAt, t, stopAt, crc
+			sp.limit, sp.tail, sp.crc = stopAt, t, crc
 		}
 		sp.notify()
 		sp.mu.Unlock()
@@ -212,18 +210,15 @@ func (sp *split) close() {
 	}
 }
 
-// accepted returns the decoded end if the ordinary decoder stopped at its
-// start, nil otherwise.
-func (sp *split) accepted() *split {
+// accepted reports whether an end was accepted, so that the ordinary
+// decoder stopped at its start.
+func (sp *split) accepted() bool {
 	if sp == nil {
-		return nil
+		return false
 	}
 	sp.mu.Lock()
 	defer sp.mu.Unlock()
-	if sp.tail == nil {
-		return nil
-	}
-	return sp
+	return sp.tail != nil
 }
 
 // finishSplit completes a read whose ordinary decoder stopped at the
@@ -232,23 +227,23 @@ func (sp *split) accepted() *split {
 // covers everything before the end) against the trailer, and converts the
 // end's samples. It reports false, and converts nothing, when the check
 // fails (the caller then reads the end in order).
-func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte, end int64) (bool, error) {
+func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte, end int64) bool {
 	<-sp.done // the rest converted, its CRC taken
 	t := sp.tail
 	if len(win) != 1<<15 {
-		return false, nil
+		return false
 	}
 	head, rest, err := t.Resolve(win)
 	if err != nil {
-		return false, nil
+		return false
 	}
 	crc = crc32.Update(crc, crc32.IEEETable, head)
 	if gzsplit.CombineCRC(crc, sp.restCRC, int64(len(rest))) != sp.crc {
-		return false, nil
+		return false
 	}
 	// Head, then the partial sample at the start of the rest, then the
 	// converted part, then nothing (bytes past the samples).
-	left := end - sp.stopAt // sample bytes in the end
+	left := end - sp.limit // sample bytes in the end
 	h := min(int64(len(head)), left)
 	c.add(head[:h])
 	left -= h
@@ -256,9 +251,6 @@ func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte
 		p := min(sp.restFrom, left, int64(len(rest)))
 		c.add(rest[:p])
 		c.skip(sp.restUsed)
-	}
-	if c.pos != end-c.base {
-		return false, formatErr(r.name, "samples missing after the split read", io.ErrUnexpectedEOF)
 	}
 	r.split = true
 	// The end's buffers (its output and the compressed half, about the
@@ -269,5 +261,5 @@ func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte
 	sp.tail = nil
 	sp.mu.Unlock()
 	runtime.GC()
-	return true, nil
+	return true
 }

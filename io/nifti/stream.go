@@ -226,6 +226,9 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	need := r.n * sz
 	base := s.pos // stream offset of the first sample byte
 	end := base + need
+	short := func(read int64) error {
+		return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, read), io.ErrUnexpectedEOF)
+	}
 	sp := r.startSplit(base, need, dst)
 	defer sp.close()
 	if sp != nil {
@@ -263,7 +266,7 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 			}
 			got, err := s.readFull(b[:n])
 			if err == nil && int64(got) < n {
-				err = formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, pos+int64(got)-base), io.ErrUnexpectedEOF)
+				err = short(pos + int64(got) - base)
 			}
 			select {
 			case full <- part{b[:got], err}:
@@ -282,7 +285,7 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 		close(stop)
 		<-done
 	}()
-	c := converter{r: r, dst: dst, per: per, nvol: nvol, sz: int(sz), base: base}
+	c := converter{r: r, dst: dst, per: per, nvol: nvol, sz: int(sz)}
 	crc := uint32(0)
 	if sp != nil {
 		crc = s.crc.sum
@@ -299,28 +302,29 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 		c.add(p.b)
 		free <- p.b[:cap(p.b)]
 	}
-	if t := sp.accepted(); t != nil {
-		ok, err := r.finishSplit(&c, t, crc, win, end)
-		if ok || err != nil {
-			return err
-		}
+	accepted := sp.accepted()
+	viaSplit := accepted && r.finishSplit(&c, sp, crc, win, end)
+	if accepted && !viaSplit {
 		// The speculative end failed its check: read it in order.
 		s.crc.on = true
+		b := make([]byte, seqChunkBytes)
 		for c.pos < need {
 			n := min(int64(seqChunkBytes), need-c.pos)
-			b := make([]byte, n)
-			got, err := s.readFull(b)
+			got, err := s.readFull(b[:n])
 			if err != nil {
 				return err
 			}
 			if int64(got) < n {
-				return formatErr(r.name, fmt.Sprintf("header declares %d bytes of samples but the decompressed stream ends after %d", need, c.pos+int64(got)), io.ErrUnexpectedEOF)
+				return short(c.pos + int64(got))
 			}
-			c.add(b)
+			c.add(b[:n])
 		}
 	}
 	if c.pos < need { // the producer stopped early without an error: cannot happen
 		return formatErr(r.name, "samples missing", io.ErrUnexpectedEOF)
+	}
+	if viaSplit {
+		return nil // the stream stopped at the split: its trailer was checked there
 	}
 	return s.finish()
 }
@@ -333,7 +337,6 @@ type converter struct {
 	dst       []float32
 	per, nvol int
 	sz        int
-	base      int64 // stream offset of the first sample byte
 	pos       int64 // sample bytes taken
 	carry     [8]byte
 	nc        int
