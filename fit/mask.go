@@ -16,7 +16,16 @@ import (
 // It returns 0 (no masking) when the image holds no positive finite sample.
 func AutoThreshold(im *volume.Image) float64 {
 	var p PeakHistogram
-	p.Add(p.Peaks(nil, im))
+	return PeaksThreshold(p.Peaks(nil, im))
+}
+
+// PeaksThreshold returns the automatic threshold of the per-voxel peaks of
+// a whole series (as Peaks, or ResetPeaks and MaxInto per volume, give
+// them): AutoThreshold of that series.
+func PeaksThreshold(peaks []float32) float64 {
+	var p PeakHistogram
+	p.Raise(peaks)
+	p.Add(peaks)
 	return p.Threshold()
 }
 

@@ -86,6 +86,7 @@ type fitArgs struct {
 	memory                                                                    byteFlag
 	noPreview, keepIDs                                                        bool
 	previewRange                                                              string
+	display                                                                   preview.Window // previewRange parsed
 }
 
 func runFit(ctx context.Context, args []string, e *env) error {
@@ -151,9 +152,11 @@ func runFit(ctx context.Context, args []string, e *env) error {
 		return fmt.Errorf("--sigma must be positive")
 	}
 	if a.previewRange != "" {
-		if _, err := preview.ParseWindow(a.previewRange); err != nil {
+		w, err := preview.ParseWindow(a.previewRange)
+		if err != nil {
 			return fmt.Errorf("--range: %v", err)
 		}
+		a.display = w
 	}
 	a.series = pos[0]
 	if a.cpuprofile != "" {
@@ -192,27 +195,14 @@ func (a *fitArgs) previews(ctx context.Context, st *mapset.Stage, outs []fit.Par
 	if a.noPreview {
 		return func() error { return nil }
 	}
-	var win preview.Window
-	if a.previewRange != "" {
-		w, err := preview.ParseWindow(a.previewRange)
-		if err != nil {
-			return func() error { return fmt.Errorf("--range: %v", err) }
-		}
-		win = w
-	}
 	done := make(chan error, 1)
-	go func() { done <- fitPreviews(ctx, st.Path(""), outs, win, inMemory) }()
+	go func() { done <- fitPreviews(ctx, st.Path(""), outs, a.display, inMemory) }()
 	return func() error { return <-done }
 }
 
 func fitSeries(ctx context.Context, a *fitArgs, e *env) error {
 	if err := checkOutput(a.out, a.series, a.maskFile, a.b1File); err != nil {
 		return err
-	}
-	if a.previewRange != "" {
-		if _, err := preview.ParseWindow(a.previewRange); err != nil {
-			return fmt.Errorf("--range: %v", err)
-		}
 	}
 	if a.memory <= 0 {
 		a.memory = defaultMemory
@@ -734,10 +724,7 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 			return err
 		}
 		if auto {
-			var ph fit.PeakHistogram
-			ph.Raise(peaks)
-			ph.Add(peaks)
-			thr = ph.Threshold()
+			thr = fit.PeaksThreshold(peaks)
 		}
 	} else if auto {
 		if thr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
