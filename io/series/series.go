@@ -60,7 +60,7 @@ func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
 			return nil, nil, err
 		}
 		if o != nil {
-			if err := apply(im, o, path); err != nil {
+			if err := applyTo(im.Acq, o, path); err != nil {
 				return nil, nil, err
 			}
 		}
@@ -181,10 +181,6 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 		inputs = append(inputs, Input{Path: p, Role: "dicom"})
 	}
 	return im, inputs, nil
-}
-
-func apply(im *volume.Image, o *Overrides, path string) error {
-	return applyTo(im.Acq, o, path)
 }
 
 // applyTo replaces the parameters o lists: one value for every volume or
