@@ -4,7 +4,7 @@ BIN     := bin/tauvox
 PKGS    := ./...
 BENCHTIME ?= 2s
 
-.PHONY: all build test lint vet bench bench-peers bench-memory demo fuzz clean
+.PHONY: all build test lint vet bench bench-peers bench-memory demo fuzz clean slurm-test
 
 all: build
 
@@ -22,6 +22,13 @@ vet:
 lint:
 	@out=$$(gofmt -l $$(find . -name '*.go' -not -path './.git/*')); \
 	if [ -n "$$out" ]; then echo "gofmt would change:"; echo "$$out"; exit 1; fi
+
+# make slurm-test: start a single-node SLURM from Debian's packages (as
+# root; installs them when missing), run the array script of
+# `tauvox batch --slurm-script` over testdata/bids and compare with a plain
+# batch run (.ci/slurm-test.sh; also run by .ci/run).
+slurm-test:
+	timeout 900 .ci/slurm-test.sh
 
 # make bench: the engine and per-voxel benchmarks on two workers; results
 # and method in docs/benchmarks.md.

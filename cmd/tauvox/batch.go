@@ -81,6 +81,11 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&a.force, "force", false, "fit every series again, even those already finished")
 	fs.BoolVar(&a.dryRun, "dry-run", false, "list the series and what would be done, fit nothing")
 	fs.BoolVar(&a.quiet, "quiet", false, "print only failures and the summary")
+	var slurm bids.SlurmOptions
+	script := fs.String("slurm-script", "", "write a SLURM array script (one task per participant of participants.tsv) to FILE and fit nothing")
+	fs.IntVar(&slurm.CPUs, "slurm-cpus", 4, "CPUs per SLURM task (its --workers)")
+	fs.StringVar(&slurm.Mem, "slurm-mem", "4G", "memory per SLURM task")
+	fs.StringVar(&slurm.Time, "slurm-time", "01:00:00", "time limit per SLURM task")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
 		return err
@@ -119,7 +124,32 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 			return fmt.Errorf("--out %s is the raw dataset itself; give a derivative folder such as %s", a.out, filepath.Join(a.root, "derivatives", "tauvox"))
 		}
 	}
+	if *script != "" {
+		slurm.Out, slurm.Batch, slurm.Tauvox = a.out, modelArgs(a.models), tauvoxPath()
+		n, err := bids.WriteSlurmScript(*script, a.root, &slurm, a.force)
+		if err == nil {
+			fmt.Fprintf(e.stdout, "wrote %s: %d array tasks; submit it with: sbatch %s\n", *script, n, *script)
+		}
+		return err
+	}
 	return batch(ctx, &a, e)
+}
+
+// modelArgs repeats the --model flags for the tasks of a cluster script.
+func modelArgs(models []string) []string {
+	var s []string
+	for _, m := range models {
+		s = append(s, "--model", m)
+	}
+	return s
+}
+
+// tauvoxPath is this executable's absolute path ("tauvox" when unknown).
+func tauvoxPath() string {
+	if p, err := os.Executable(); err == nil {
+		return p
+	}
+	return "tauvox"
 }
 
 // batchJob is one series of the plan.
