@@ -82,3 +82,42 @@ func TestSEMatchesMonteCarlo(t *testing.T) {
 		}
 	}
 }
+
+// TestRunSEEqualsFitter: the standard-error maps of Run hold, voxel for
+// voxel, the SEs the model's Fitter reports for the same samples (as
+// float32), for every output of the log-linear and NLLS mono-exponential
+// fits on a noisy series with a dark border; the per-voxel
+// SEs themselves are checked by TestSEMatchesMonteCarlo and the scipy
+// tests.
+func TestRunSEEqualsFitter(t *testing.T) {
+	te := spacedTE(12, 10, 10)
+	im := decaySeries(9, 8, 2, te, 10, 3)
+	for _, m := range []Model{&MonoExp{}, &MonoExp{Estimator: LogLinear}} {
+		maps, err := Run(context.Background(), im, m, &Options{Workers: 2, NoThreshold: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		f := mustFitter(t, m, im.Acq)
+		res := NewResult(m)
+		y := make([]float64, len(te))
+		nv, checked := im.Voxels(), 0
+		for v := 0; v < nv; v++ {
+			for k := range y {
+				y[k] = float64(im.Data[k*nv+v])
+			}
+			f.Fit(res, y, Covariates{})
+			if res.Status != OK {
+				continue
+			}
+			checked++
+			for k := range res.SE {
+				if maps.SE[k][v] != float32(res.SE[k]) {
+					t.Fatalf("%s %s voxel %d: map SE %g, fitter %g", m.Name(), m.Outputs()[k].Map, v, maps.SE[k][v], res.SE[k])
+				}
+			}
+		}
+		if checked < nv/2 {
+			t.Errorf("%s: only %d of %d voxels fitted", m.Method(), checked, nv)
+		}
+	}
+}
