@@ -2,6 +2,9 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
+	stdhtml "html"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -69,15 +72,49 @@ func TestPhantomCommand(t *testing.T) {
 		t.Errorf("qa.csv:\n%s", csv)
 	}
 
-	// A vial whose material drifted by 15 %.
-	t2d := fitted(t, "t2", "t2", append(place, "--drift", "A6=1.15")...)
+	// Vials whose material drifted by +15 % and −15 %: both fail, and the
+	// deviation is signed (100·(median − reference)/reference, design.md)
+	// in qa.json, qa.csv, the printed table and report.html.
+	t2d := fitted(t, "t2", "t2", append(place, "--drift", "A6=1.15", "--drift", "B2=0.85")...)
 	out2 := filepath.Join(t.TempDir(), "qa")
 	code, stdout, _ = tauvox(t, "phantom", t2d, "--def", "demo", "--temperature", "24", "--out", out2)
 	if code != 1 || !strings.Contains(stdout, "FAIL") {
 		t.Errorf("drifting vial: exit %d\n%s", code, stdout)
 	}
-	if _, err := os.Stat(filepath.Join(out2, "qa.json")); err != nil {
-		t.Error("a failed verdict must still write its outputs")
+	b, err = os.ReadFile(filepath.Join(out2, "qa.json"))
+	if err != nil {
+		t.Fatal("a failed verdict must still write its outputs")
+	}
+	var qa2 phantom.QA
+	if err := json.Unmarshal(b, &qa2); err != nil {
+		t.Fatal(err)
+	}
+	csv2, _ := os.ReadFile(filepath.Join(out2, "qa.csv"))
+	raw, _ := os.ReadFile(filepath.Join(out2, "report.html"))
+	html := stdhtml.UnescapeString(string(raw)) // html/template writes + as &#43;
+	for _, v := range qa2.Vials {
+		want, ok := map[string]float64{"A6": 15, "B2": -15}[v.ID]
+		if !ok {
+			continue
+		}
+		// The fitted T2 is within 0.5 percentage points of the drifted
+		// truth here (observed +14.75 and −14.88: twice the worst
+		// observed difference); the sign must be the drift's.
+		if v.Verdict != phantom.Fail || math.Abs(v.Deviation-want) > 0.5 {
+			t.Errorf("vial %s: %s, deviation %+.3f %%, want %+.0f %% ± 0.5", v.ID, v.Verdict, v.Deviation, want)
+			continue
+		}
+		row := fmt.Sprintf("%s,T2,%d,", v.ID, v.N)
+		field := fmtNum(v.Deviation, 2)
+		if !strings.Contains(string(csv2), row) || !strings.Contains(string(csv2), ","+field+",") || (want < 0) != strings.HasPrefix(field, "-") {
+			t.Errorf("vial %s: qa.csv lacks the signed deviation %s:\n%s", v.ID, field, csv2)
+		}
+		if !strings.Contains(stdout, field) {
+			t.Errorf("vial %s: printed table lacks the signed deviation %s:\n%s", v.ID, field, stdout)
+		}
+		if cell := fmt.Sprintf("%+.1f %%", v.Deviation); !strings.Contains(html, cell) {
+			t.Errorf("vial %s: report.html lacks the signed deviation %q", v.ID, cell)
+		}
 	}
 }
 
