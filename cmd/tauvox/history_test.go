@@ -1,11 +1,52 @@
 package main
 
 import (
+	"encoding/csv"
+	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 )
+
+// checkExportDeviations: every row of `history export --csv` carries the
+// signed deviation 100·(median − reference)/reference of its own median
+// and reference (design.md; qa.json), to the rounding of the printed
+// columns (median and reference with 3 decimals, deviation with 4: at most
+// 0.005 percentage points for references above 20 ms; tolerance 0.01).
+// Rows of both signs must occur in the demo's sessions.
+func checkExportDeviations(t *testing.T, out string) {
+	t.Helper()
+	rows, err := csv.NewReader(strings.NewReader(out)).ReadAll()
+	if err != nil || len(rows) < 2 {
+		t.Fatalf("export: %v", err)
+	}
+	col := map[string]int{}
+	for i, h := range rows[0] {
+		col[h] = i
+	}
+	neg, pos := 0, 0
+	for _, r := range rows[1:] {
+		med, e1 := strconv.ParseFloat(r[col["median_ms"]], 64)
+		ref, e2 := strconv.ParseFloat(r[col["reference_ms"]], 64)
+		dev, e3 := strconv.ParseFloat(r[col["deviation_pct"]], 64)
+		if e1 != nil || e2 != nil || e3 != nil {
+			continue // not measured, or no reference
+		}
+		if want := 100 * (med - ref) / ref; math.Abs(dev-want) > 0.01 {
+			t.Errorf("export row %v: deviation %g %%, 100·(median − reference)/reference = %g %%", r, dev, want)
+		}
+		if dev < 0 {
+			neg++
+		} else if dev > 0 {
+			pos++
+		}
+	}
+	if neg == 0 || pos == 0 {
+		t.Errorf("export: %d negative and %d positive deviations, want both", neg, pos)
+	}
+}
 
 // TestHistoryCommands: add is idempotent, list and export show the
 // sessions, remove needs --yes, chart writes its files and exits 1 when a
@@ -37,6 +78,7 @@ func TestHistoryCommands(t *testing.T) {
 	if code != 0 || strings.Count(stdout, "\n") != 1+4*20 || !strings.HasPrefix(stdout, "session,scanner,acquired,") {
 		t.Errorf("export: %d lines", strings.Count(stdout, "\n"))
 	}
+	checkExportDeviations(t, stdout)
 	out := filepath.Join(dir, "charts")
 	code, stdout, stderr = tauvox(t, "history", "chart", "--db", db, "--out", out, "--baseline", "3")
 	if code != 0 && code != 1 {

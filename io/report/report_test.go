@@ -5,6 +5,7 @@ import (
 	"encoding/base64"
 	"encoding/xml"
 	"errors"
+	"fmt"
 	"image/png"
 	"io"
 	"math"
@@ -244,6 +245,22 @@ func TestWriteStructure(t *testing.T) {
 		id := vialID(k, false)
 		if n := strings.Count(s, "<tr><td>"+id+"</td>"); n != 2 {
 			t.Errorf("vial %s has %d result rows, want 2 (T1, T2)", id, n)
+			continue
+		}
+		// The deviation cell of each row is signed, 100·(median −
+		// reference)/reference with one decimal (html/template writes
+		// "+" as "&#43;"): the T1 row comes first, then the T2 row.
+		rest := s
+		for i, dev := range []float64{t1Dev[k], t2Dev[k]} {
+			_, rest, _ = strings.Cut(rest, "<tr><td>"+id+"</td>")
+			row, _, _ := strings.Cut(rest, "</tr>")
+			want := strings.ReplaceAll(fmt.Sprintf(`<td class="num">%+.1f %%</td>`, 100*dev), "+", "&#43;")
+			if i == 1 && k == 9 {
+				want = `<td class="num">–</td>` // not measured
+			}
+			if !strings.Contains(row, want) {
+				t.Errorf("vial %s %s row lacks the deviation cell %s:\n%s", id, []string{"T1", "T2"}[i], want, row)
+			}
 		}
 	}
 	if !strings.Contains(s, `<td class="v-fail">fail</td>`) || !strings.Contains(s, `<td class="v-not-measured">not-measured</td><td>2 usable voxels</td>`) {
