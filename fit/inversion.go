@@ -209,7 +209,9 @@ var irCoarse = 4
 // the null is within about two noise SDs of zero (the excess cost of the
 // wrong sign is about (2·y_min)², against (n − 3)·σ² for the right one),
 // so either sign is plausible and only the polished fits can decide.
-const irRunnerUp = 4
+// TestIRRunnerUp shows the step's effect on committed noisy voxels. A
+// variable so that test can turn it off (0).
+var irRunnerUp = 4.0
 
 // irStart is a start of the polish: grid row and split.
 type irStart struct {
