@@ -55,7 +55,7 @@ func TestDICOMEndToEnd(t *testing.T) {
 			t.Fatal(err)
 		}
 		inv, _ := m.Affine.Inverse()
-		var sum float64
+		var sum, sumAbs float64
 		n := 0
 		for k := 0; k < tr.Dims[2]; k++ {
 			for j := 0; j < tr.Dims[1]; j++ {
@@ -73,13 +73,21 @@ func TestDICOMEndToEnd(t *testing.T) {
 					got := float64(m.Data[m.Index(ai, bi, ci, 0)])
 					if !math.IsNaN(got) {
 						sum += (got - want) / want
+						sumAbs += math.Abs(got-want) / want
 						n++
 					}
 				}
 			}
 		}
-		if n < 100 || math.Abs(sum/float64(n)) > 0.01 {
-			t.Errorf("enhanced=%v: mean relative error %.4f over %d voxels", enhanced, sum/float64(n), n)
+		rel, abs := sum/float64(n), sumAbs/float64(n)
+		t.Logf("enhanced=%v: mean relative error %+.5f, mean absolute relative error %.5f over %d voxels", enhanced, rel, abs, n)
+		// Tolerances from the observed values (logged; +0.0007 and 0.0148
+		// for both encodings): the signed mean within 4 standard errors of
+		// the mean (≈ 1.25·0.0148/√1117 = 0.00055), the absolute mean
+		// within 1.5 × observed. Opposite errors cannot cancel in the
+		// absolute mean.
+		if n < 100 || math.Abs(rel) > 0.0025 || abs > 0.022 {
+			t.Errorf("enhanced=%v: mean relative error %+.5f, mean absolute %.5f over %d voxels", enhanced, rel, abs, n)
 		}
 	}
 }
@@ -109,8 +117,10 @@ func TestDICOMBadInput(t *testing.T) {
 // of the mixed folder, the enhanced multi-frame file and the deflated
 // inversion-recovery series. The map's affine equals nibabel 5.0.0's
 // conversion of the same geometry to 1e-4 mm and the fitted time constants
-// equal the truth the script encoded (noise-free data, stored as integers:
-// tolerance 1 %).
+// equal the truth the script encoded (noise-free data, stored as integers):
+// worst relative error per series within about 2.5 times the observed
+// worst (logged: oblique 6.3e-4, enhanced 1.3e-4, inversion recovery
+// 4.1e-4; integer rounding of the stored samples).
 func TestFitPydicomSeries(t *testing.T) {
 	raw, err := os.ReadFile("../../testdata/dicom/refs.json")
 	if err != nil {
@@ -128,10 +138,11 @@ func TestFitPydicomSeries(t *testing.T) {
 	}
 	for _, c := range []struct {
 		key, dir, model, q string
+		tol                float64
 	}{
-		{"oblique_se", "mix", "t2", "T2"},
-		{"enhanced", "enhanced", "t2", "T2"},
-		{"ir_deflate", "ir", "t1-ir", "T1"},
+		{"oblique_se", "mix", "t2", "T2", 1.5e-3},
+		{"enhanced", "enhanced", "t2", "T2", 3e-4},
+		{"ir_deflate", "ir", "t1-ir", "T1", 1e-3},
 	} {
 		ref := refs.Series[c.key]
 		dir := filepath.Join("../../testdata/dicom", c.dir)
@@ -172,8 +183,8 @@ func TestFitPydicomSeries(t *testing.T) {
 			worst = math.Max(worst, math.Abs(got-want)/want)
 		}
 		t.Logf("%s: worst relative error %.2e over %d voxels", c.key, worst, len(truth))
-		if !(worst < 0.01) {
-			t.Errorf("%s: worst relative error %.4f", c.key, worst)
+		if !(worst <= c.tol) {
+			t.Errorf("%s: worst relative error %.2e, tolerance %g", c.key, worst, c.tol)
 		}
 	}
 }

@@ -37,9 +37,11 @@ func simulated(t *testing.T, kind string, extra ...string) string {
 	return filepath.Join(dir, kind+".nii.gz")
 }
 
-// vialError returns the mean relative error of a fitted map against the
-// truth over voxels where the truth is defined and the fit succeeded.
-func vialError(t *testing.T, mapPath, truthPath string) (float64, int) {
+// vialError returns the mean signed and the mean absolute relative error
+// of a fitted map against the truth over voxels where the truth is defined
+// and the fit succeeded. The signed mean shows a bias; the absolute mean
+// cannot hide errors of opposite sign that cancel.
+func vialError(t *testing.T, mapPath, truthPath string) (signed, abs float64, n int) {
 	t.Helper()
 	m, err := nifti.Read(mapPath)
 	if err != nil {
@@ -49,37 +51,47 @@ func vialError(t *testing.T, mapPath, truthPath string) (float64, int) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var sum float64
-	n := 0
+	var sum, sumAbs float64
 	for i, v := range tr.Data {
 		if math.IsNaN(float64(v)) || math.IsNaN(float64(m.Data[i])) {
 			continue
 		}
-		sum += (float64(m.Data[i]) - float64(v)) / float64(v)
+		d := (float64(m.Data[i]) - float64(v)) / float64(v)
+		sum += d
+		sumAbs += math.Abs(d)
 		n++
 	}
-	return sum / float64(n), n
+	return sum / float64(n), sumAbs / float64(n), n
 }
 
-// TestFitEndToEnd: simulate → fit for every model; the mean of the fitted
-// map over whole-voxel vial interiors matches the simulated truth.
+// TestFitEndToEnd: simulate → fit for every model; over the whole-voxel
+// vial interiors (714 voxels) the fitted map matches the simulated truth:
+// the mean signed relative error (a bias) within tol, the mean absolute
+// relative error (scatter; errors of opposite sign cannot cancel) within
+// tolAbs. Tolerances are tightened to the observed values of these seeded
+// runs (logged): tol is max(2 × |observed|, 4 standard errors of the mean,
+// ≈ 1.25·abs/√714), tolAbs 1.5 × observed. Observed (signed, absolute):
+// t2 +0.0031, 0.0150; loglinear +0.0164, 0.0252 (the log-linear bias);
+// Rician-aware +0.0006, 0.0146; t2star +0.0009, 0.0094; t1-ir −0.0001,
+// 0.0216; vfa linear +0.0014, 0.0287; vfa nlls −0.0009, 0.0219; t1-sr
+// +0.0007, 0.0244.
 func TestFitEndToEnd(t *testing.T) {
 	// The gradient-echo kinds get σ = 1: their steady-state signal is a
 	// few percent of the fully relaxed 1000, so σ = 10 would mean SNR ≈ 3.
 	cases := []struct {
 		kind, model, q string
 		args           []string
-		tol            float64
+		tol, tolAbs    float64
 		sim            []string
 	}{
-		{"t2", "t2", "T2", nil, 0.01, nil},
-		{"t2", "t2", "T2", []string{"--method", "loglinear"}, 0.02, nil},
-		{"t2", "t2", "T2", []string{"--noise", "rician", "--sigma", "10"}, 0.005, nil},
-		{"t2star", "t2star", "T2star", nil, 0.01, []string{"--sigma", "1"}},
-		{"t1-ir", "t1-ir", "T1", nil, 0.01, nil},
-		{"t1-vfa", "t1-vfa", "T1", nil, 0.03, []string{"--sigma", "1"}},
-		{"t1-vfa", "t1-vfa", "T1", []string{"--method", "nlls"}, 0.03, []string{"--sigma", "1"}},
-		{"t1-sr", "t1-sr", "T1", nil, 0.01, nil},
+		{"t2", "t2", "T2", nil, 0.006, 0.022, nil},
+		{"t2", "t2", "T2", []string{"--method", "loglinear"}, 0.025, 0.035, nil},
+		{"t2", "t2", "T2", []string{"--noise", "rician", "--sigma", "10"}, 0.003, 0.022, nil},
+		{"t2star", "t2star", "T2star", nil, 0.003, 0.014, []string{"--sigma", "1"}},
+		{"t1-ir", "t1-ir", "T1", nil, 0.004, 0.032, nil},
+		{"t1-vfa", "t1-vfa", "T1", nil, 0.006, 0.043, []string{"--sigma", "1"}},
+		{"t1-vfa", "t1-vfa", "T1", []string{"--method", "nlls"}, 0.005, 0.033, []string{"--sigma", "1"}},
+		{"t1-sr", "t1-sr", "T1", nil, 0.005, 0.036, nil},
 	}
 	for _, c := range cases {
 		series := simulated(t, c.kind, c.sim...)
@@ -92,10 +104,10 @@ func TestFitEndToEnd(t *testing.T) {
 		if !strings.Contains(stdout, "wrote "+out) {
 			t.Errorf("summary: %q", stdout)
 		}
-		rel, n := vialError(t, filepath.Join(out, c.q+"map.nii.gz"), filepath.Join(filepath.Dir(series), "truth_"+c.q+"map.nii.gz"))
-		t.Logf("%s %v: mean relative error %+.4f over %d voxels", c.model, c.args, rel, n)
-		if n < 100 || math.Abs(rel) > c.tol {
-			t.Errorf("%s %v: mean relative error %+.4f over %d voxels (tolerance %g)", c.model, c.args, rel, n, c.tol)
+		rel, abs, n := vialError(t, filepath.Join(out, c.q+"map.nii.gz"), filepath.Join(filepath.Dir(series), "truth_"+c.q+"map.nii.gz"))
+		t.Logf("%s %v: mean relative error %+.5f, mean absolute relative error %.5f over %d voxels", c.model, c.args, rel, abs, n)
+		if n < 100 || math.Abs(rel) > c.tol || abs > c.tolAbs {
+			t.Errorf("%s %v: mean relative error %+.5f (tolerance %g), mean absolute %.5f (tolerance %g) over %d voxels", c.model, c.args, rel, c.tol, abs, c.tolAbs, n)
 		}
 		for _, f := range []string{c.q + "map_sd.nii.gz", "fitquality.nii.gz", "status.nii.gz", "provenance.json", c.q + "map.json", c.q + "map.png"} {
 			if _, err := os.Stat(filepath.Join(out, f)); err != nil {
