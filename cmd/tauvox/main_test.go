@@ -37,11 +37,14 @@ func simulated(t *testing.T, kind string, extra ...string) string {
 	return filepath.Join(dir, kind+".nii.gz")
 }
 
-// vialError returns the mean signed and the mean absolute relative error
-// of a fitted map against the truth over voxels where the truth is defined
-// and the fit succeeded. The signed mean shows a bias; the absolute mean
-// cannot hide errors of opposite sign that cancel.
-func vialError(t *testing.T, mapPath, truthPath string) (signed, abs float64, n int) {
+// vialErrors summarises a fitted map against the truth over voxels where
+// the truth is defined and the fit succeeded, per vial (the voxels of one
+// true value): the mean signed relative error of every vial (a bias; the
+// vials are not averaged together, so opposite errors of two vials cannot
+// cancel) and its mean absolute relative error (scatter; opposite errors
+// within a vial cannot cancel either). It returns the vial with the largest
+// |signed| and the one with the largest absolute error, and the voxel count.
+func vialErrors(t *testing.T, mapPath, truthPath string) (worstSigned, worstAbs float64, vials, n int) {
 	t.Helper()
 	m, err := nifti.Read(mapPath)
 	if err != nil {
@@ -51,30 +54,49 @@ func vialError(t *testing.T, mapPath, truthPath string) (signed, abs float64, n 
 	if err != nil {
 		t.Fatal(err)
 	}
-	var sum, sumAbs float64
+	type acc struct {
+		sum, abs float64
+		n        int
+	}
+	per := map[float32]*acc{}
 	for i, v := range tr.Data {
 		if math.IsNaN(float64(v)) || math.IsNaN(float64(m.Data[i])) {
 			continue
 		}
 		d := (float64(m.Data[i]) - float64(v)) / float64(v)
-		sum += d
-		sumAbs += math.Abs(d)
+		a := per[v]
+		if a == nil {
+			a = &acc{}
+			per[v] = a
+		}
+		a.sum += d
+		a.abs += math.Abs(d)
+		a.n++
 		n++
 	}
-	return sum / float64(n), sumAbs / float64(n), n
+	for _, a := range per {
+		s := a.sum / float64(a.n)
+		if math.Abs(s) > math.Abs(worstSigned) {
+			worstSigned = s
+		}
+		worstAbs = math.Max(worstAbs, a.abs/float64(a.n))
+	}
+	return worstSigned, worstAbs, len(per), n
 }
 
-// TestFitEndToEnd: simulate → fit for every model; over the whole-voxel
-// vial interiors (714 voxels) the fitted map matches the simulated truth:
-// the mean signed relative error (a bias) within tol, the mean absolute
-// relative error (scatter; errors of opposite sign cannot cancel) within
-// tolAbs. Tolerances are tightened to the observed values of these seeded
-// runs (logged): tol is max(2 × |observed|, 4 standard errors of the mean,
-// ≈ 1.25·abs/√714), tolAbs 1.5 × observed. Observed (signed, absolute):
-// t2 +0.0031, 0.0150; loglinear +0.0164, 0.0252 (the log-linear bias);
-// Rician-aware +0.0006, 0.0146; t2star +0.0009, 0.0094; t1-ir −0.0001,
-// 0.0216; vfa linear +0.0014, 0.0287; vfa nlls −0.0009, 0.0219; t1-sr
-// +0.0007, 0.0244.
+// TestFitEndToEnd: simulate → fit for every model; in every vial (10
+// vials, 714 whole-voxel interior voxels) the fitted map matches the
+// simulated truth: the vial's mean signed relative error (a bias) within
+// tol, its mean absolute relative error (scatter) within tolAbs. Checked
+// per vial and with absolute errors, opposite errors cannot cancel. The
+// tolerances are 1.5 × the worst vial observed in these seeded runs
+// (logged). Observed worst vials (signed, absolute): t2 NLLS +0.0126,
+// 0.0219 (T2 22 ms: no noise-floor model); log-linear +0.113, 0.113 (T2
+// 22 ms: the late echoes sit on the Rician noise floor, which the
+// log-linear fit does not model; the other vials are within +0.021);
+// Rician-aware NLLS +0.0037, 0.0193; t2star +0.0025, 0.0158; t1-ir −0.0066,
+// 0.0323; vfa linear +0.0064, 0.0396; vfa nlls +0.0051, 0.0306; t1-sr
+// +0.0087, 0.0287.
 func TestFitEndToEnd(t *testing.T) {
 	// The gradient-echo kinds get σ = 1: their steady-state signal is a
 	// few percent of the fully relaxed 1000, so σ = 10 would mean SNR ≈ 3.
@@ -84,14 +106,14 @@ func TestFitEndToEnd(t *testing.T) {
 		tol, tolAbs    float64
 		sim            []string
 	}{
-		{"t2", "t2", "T2", nil, 0.006, 0.022, nil},
-		{"t2", "t2", "T2", []string{"--method", "loglinear"}, 0.025, 0.035, nil},
-		{"t2", "t2", "T2", []string{"--noise", "rician", "--sigma", "10"}, 0.003, 0.022, nil},
-		{"t2star", "t2star", "T2star", nil, 0.003, 0.014, []string{"--sigma", "1"}},
-		{"t1-ir", "t1-ir", "T1", nil, 0.004, 0.032, nil},
-		{"t1-vfa", "t1-vfa", "T1", nil, 0.006, 0.043, []string{"--sigma", "1"}},
-		{"t1-vfa", "t1-vfa", "T1", []string{"--method", "nlls"}, 0.005, 0.033, []string{"--sigma", "1"}},
-		{"t1-sr", "t1-sr", "T1", nil, 0.005, 0.036, nil},
+		{"t2", "t2", "T2", nil, 0.019, 0.033, nil},
+		{"t2", "t2", "T2", []string{"--method", "loglinear"}, 0.15, 0.15, nil},
+		{"t2", "t2", "T2", []string{"--noise", "rician", "--sigma", "10"}, 0.0056, 0.029, nil},
+		{"t2star", "t2star", "T2star", nil, 0.0039, 0.024, []string{"--sigma", "1"}},
+		{"t1-ir", "t1-ir", "T1", nil, 0.010, 0.049, nil},
+		{"t1-vfa", "t1-vfa", "T1", nil, 0.0097, 0.060, []string{"--sigma", "1"}},
+		{"t1-vfa", "t1-vfa", "T1", []string{"--method", "nlls"}, 0.0077, 0.046, []string{"--sigma", "1"}},
+		{"t1-sr", "t1-sr", "T1", nil, 0.013, 0.044, nil},
 	}
 	for _, c := range cases {
 		series := simulated(t, c.kind, c.sim...)
@@ -104,10 +126,10 @@ func TestFitEndToEnd(t *testing.T) {
 		if !strings.Contains(stdout, "wrote "+out) {
 			t.Errorf("summary: %q", stdout)
 		}
-		rel, abs, n := vialError(t, filepath.Join(out, c.q+"map.nii.gz"), filepath.Join(filepath.Dir(series), "truth_"+c.q+"map.nii.gz"))
-		t.Logf("%s %v: mean relative error %+.5f, mean absolute relative error %.5f over %d voxels", c.model, c.args, rel, abs, n)
-		if n < 100 || math.Abs(rel) > c.tol || abs > c.tolAbs {
-			t.Errorf("%s %v: mean relative error %+.5f (tolerance %g), mean absolute %.5f (tolerance %g) over %d voxels", c.model, c.args, rel, c.tol, abs, c.tolAbs, n)
+		rel, abs, vials, n := vialErrors(t, filepath.Join(out, c.q+"map.nii.gz"), filepath.Join(filepath.Dir(series), "truth_"+c.q+"map.nii.gz"))
+		t.Logf("%s %v: %d vials, %d voxels; worst vial mean relative error %+.5f, worst vial mean absolute relative error %.5f", c.model, c.args, vials, n, rel, abs)
+		if n < 100 || vials < 10 || math.Abs(rel) > c.tol || abs > c.tolAbs {
+			t.Errorf("%s %v: %d vials, %d voxels; worst vial mean relative error %+.5f (tolerance %g), worst mean absolute %.5f (tolerance %g)", c.model, c.args, vials, n, rel, c.tol, abs, c.tolAbs)
 		}
 		for _, f := range []string{c.q + "map_sd.nii.gz", "fitquality.nii.gz", "status.nii.gz", "provenance.json", c.q + "map.json", c.q + "map.png"} {
 			if _, err := os.Stat(filepath.Join(out, f)); err != nil {
