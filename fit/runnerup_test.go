@@ -23,8 +23,9 @@ import (
 // within 3e-6 relative: about 15 and 4 times the observed worst, 7e-13
 // and 7e-7, which are logged) on all but at most 4 of the
 // voxels whose scipy T1 lies within the model's bounds (1–10000 ms):
-// observed exactly 4 misses, 2 of them from the coarse-to-fine grid (the
-// exhaustive grid finds those) and 2 where neither of the two best splits
+// observed exactly 4 misses: voxels 365 and 505 (SNR 10–11) from the
+// coarse-to-fine grid (the exhaustive grid, irCoarse = 1, finds scipy's
+// minimum there), voxels 253 and 896 where neither of the two best splits
 // leads to the lowest minimum. The bound is the observed count, so the
 // test fails if the search gets worse (turning the step off gives 8).
 func TestIRRunnerUp(t *testing.T) {
