@@ -125,7 +125,10 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 		}
 	}
 	if *script != "" {
-		slurm.Out, slurm.Batch, slurm.Tauvox = a.out, modelArgs(a.models), tauvoxPath()
+		slurm.Out, slurm.Models = a.out, a.models
+		if exe, err := os.Executable(); err == nil {
+			slurm.Tauvox = exe
+		}
 		n, err := bids.WriteSlurmScript(*script, a.root, &slurm, a.force)
 		if err == nil {
 			fmt.Fprintf(e.stdout, "wrote %s: %d array tasks; submit it with: sbatch %s\n", *script, n, *script)
@@ -133,23 +136,6 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 		return err
 	}
 	return batch(ctx, &a, e)
-}
-
-// modelArgs repeats the --model flags for the tasks of a cluster script.
-func modelArgs(models []string) []string {
-	var s []string
-	for _, m := range models {
-		s = append(s, "--model", m)
-	}
-	return s
-}
-
-// tauvoxPath is this executable's absolute path ("tauvox" when unknown).
-func tauvoxPath() string {
-	if p, err := os.Executable(); err == nil {
-		return p
-	}
-	return "tauvox"
 }
 
 // batchJob is one series of the plan.

@@ -20,7 +20,8 @@ type SlurmOptions struct {
 	CPUs     int      // CPUs per task, also the task's --workers; 0 means 4
 	Mem      string   // memory per task in sbatch syntax (4G, 500M); "" means 4G
 	Time     string   // time limit per task in sbatch syntax; "" means 01:00:00
-	Batch    []string // further arguments of every task's tauvox batch (e.g. --model MEGRE=t2star)
+	Models   []string // SUFFIX=MODEL values, each passed to every task as --model
+	Batch    []string // further arguments of every task's tauvox batch
 	Comments []string // extra comment lines written under the header
 }
 
@@ -158,6 +159,9 @@ func SlurmScript(root string, opt *SlurmOptions) ([]byte, int, error) {
 	fmt.Fprintf(&b, "labels=(%s)\n", strings.Join(labels, " "))
 	fmt.Fprintf(&b, "label=${labels[$((SLURM_ARRAY_TASK_ID - 1))]}\n")
 	cmd := []string{shellQuote(o.Tauvox), "batch", `"$BIDS"`, "--out", `"$DERIV"`, "--participant-label", `"$label"`, "--workers", `"${SLURM_CPUS_PER_TASK:-1}"`, "--quiet"}
+	for _, m := range o.Models {
+		cmd = append(cmd, "--model", shellQuote(m))
+	}
 	for _, a := range o.Batch {
 		cmd = append(cmd, shellQuote(a))
 	}

@@ -51,7 +51,7 @@ func TestSlurmScript(t *testing.T) {
 	root := filepath.Join(t.TempDir(), "my study")
 	os.Mkdir(root, 0o755)
 	os.WriteFile(filepath.Join(root, "participants.tsv"), []byte("age\tparticipant_id\n30\tsub-A1\n31\tsub-B2\n\n32\tsub-C3\n33\tsub-D4\n34\tsub-E5\n"), 0o644)
-	got, n, err := SlurmScript(root, &SlurmOptions{Out: "/scratch/out dir", CPUs: 2, Mem: "500M", Time: "1-00:00:00", JobName: "qmri_2", Batch: []string{"--model", "MEGRE=t2star"}})
+	got, n, err := SlurmScript(root, &SlurmOptions{Out: "/scratch/out dir", CPUs: 2, Mem: "500M", Time: "1-00:00:00", JobName: "qmri_2", Models: []string{"MEGRE=t2star"}, Batch: []string{"--jobs", "2"}})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -59,7 +59,7 @@ func TestSlurmScript(t *testing.T) {
 	for _, want := range []string{
 		"#SBATCH --job-name=qmri_2\n", "#SBATCH --array=1-5\n", "#SBATCH --cpus-per-task=2\n", "#SBATCH --mem=500M\n", "#SBATCH --time=1-00:00:00\n",
 		"BIDS='" + root + "'\n", "DERIV='/scratch/out dir'\n", "labels=(sub-A1 sub-B2 sub-C3 sub-D4 sub-E5)\n",
-		`srun tauvox batch "$BIDS" --out "$DERIV" --participant-label "$label" --workers "${SLURM_CPUS_PER_TASK:-1}" --quiet --model MEGRE=t2star` + "\n",
+		`srun tauvox batch "$BIDS" --out "$DERIV" --participant-label "$label" --workers "${SLURM_CPUS_PER_TASK:-1}" --quiet --model MEGRE=t2star --jobs 2` + "\n",
 	} {
 		if !strings.Contains(s, want) {
 			t.Errorf("script lacks %q:\n%s", want, s)
