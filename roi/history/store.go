@@ -394,6 +394,7 @@ type Point struct {
 	Reference   float64 // NaN when none
 	Deviation   float64 // percent; NaN when no reference
 	Tolerance   float64
+	RefUncPct   float64 // reference uncertainty, percent; NaN when not recorded
 	Verdict     string
 	Field       float64
 	Temperature float64
@@ -403,7 +404,7 @@ type Point struct {
 // scanner, vial, quantity and time.
 func (s *Store) Points(ctx context.Context, scanner string) ([]Point, error) {
 	rows, err := s.db.QueryContext(ctx, `SELECT s.id, s.scanner, s.acquired, r.vial, r.quantity, r.n, r.mean, r.median, r.sd,
-		r.reference, r.deviation_pct, r.tolerance, r.verdict, s.field_t, s.temperature_c
+		r.reference, r.deviation_pct, r.tolerance, r.reference_uncertainty_pct, r.verdict, s.field_t, s.temperature_c
 		FROM results r JOIN sessions s ON s.id = r.session_id
 		WHERE ? = '' OR s.scanner = ?
 		ORDER BY s.scanner, r.vial, r.quantity, s.acquired, s.id`, scanner, scanner)
@@ -414,9 +415,9 @@ func (s *Store) Points(ctx context.Context, scanner string) ([]Point, error) {
 	var out []Point
 	for rows.Next() {
 		var p Point
-		var mean, median, sd, ref, dev, tol sql.NullFloat64
+		var mean, median, sd, ref, dev, tol, unc sql.NullFloat64
 		if err := rows.Scan(&p.SessionID, &p.Scanner, &p.Acquired, &p.Vial, &p.Quantity, &p.N, &mean, &median, &sd,
-			&ref, &dev, &tol, &p.Verdict, &p.Field, &p.Temperature); err != nil {
+			&ref, &dev, &tol, &unc, &p.Verdict, &p.Field, &p.Temperature); err != nil {
 			return nil, s.wrap(err)
 		}
 		f := func(n sql.NullFloat64) float64 {
@@ -425,7 +426,7 @@ func (s *Store) Points(ctx context.Context, scanner string) ([]Point, error) {
 			}
 			return math.NaN()
 		}
-		p.Mean, p.Median, p.SD, p.Reference, p.Deviation, p.Tolerance = f(mean), f(median), f(sd), f(ref), f(dev), f(tol)
+		p.Mean, p.Median, p.SD, p.Reference, p.Deviation, p.Tolerance, p.RefUncPct = f(mean), f(median), f(sd), f(ref), f(dev), f(tol), f(unc)
 		p.Time = parseAcquired(p.Acquired)
 		out = append(out, p)
 	}
