@@ -122,15 +122,17 @@ verdict table and the drift table.`, e)
 		last = qa
 	}
 	db.Close()
-	a := &chartArgs{db: st.Path("history.db"), out: st.Path("history"), baseline: max(3, sessions/2), minDrift: 1}
+	a := &chartArgs{db: st.Path("history.db"), out: st.Path("history"), baseline: history.DefaultBaseline, minDrift: 1,
+		minLimit: history.DefaultMinLimit, minSessions: history.DefaultMinSessions, horizon: 12}
 	ss, err := analyseHistory(ctx, a)
 	if err != nil {
 		return err
 	}
-	violated, err := writeCharts(a.out, ss, a.settings(), "history.db")
+	sum, err := writeCharts(a.out, ss, a.settings(), "history.db")
 	if err != nil {
 		return err
 	}
+	index.Summary = report.HistoryHeadline(sum)
 	for _, s := range ss {
 		if s.Drifting {
 			index.Drifting = append(index.Drifting, s.Vial+" "+s.Quantity)
@@ -146,8 +148,9 @@ verdict table and the drift table.`, e)
 	printQA(e, last, filepath.Join(out, "session-"+last.Session.Date, "qa"))
 	fmt.Fprintf(e.stdout, "\nstability over %d sessions (baseline: first %d; deviation from the temperature-corrected reference, %%):\n", sessions, a.baseline)
 	driftTable(e, ss)
-	if violated {
-		fmt.Fprintln(e.stdout, "rules were violated: see", filepath.Join(out, "history", "index.html"))
+	fmt.Fprintln(e.stdout, index.Summary)
+	if sum.Actions+sum.Watches > 0 {
+		fmt.Fprintln(e.stdout, "see", filepath.Join(out, "history", "index.html"))
 	}
 	fmt.Fprintln(e.stdout, "\nevery report and the charts:", filepath.Join(out, "index.html"))
 	fmt.Fprintln(e.stdout, "\n"+mapset.Caution)

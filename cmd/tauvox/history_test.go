@@ -43,14 +43,21 @@ func TestHistoryCommands(t *testing.T) {
 		t.Fatalf("chart: %d %s", code, stderr)
 	}
 	b, err := os.ReadFile(filepath.Join(out, "drift.csv"))
-	if err != nil || !strings.HasPrefix(string(b), "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations\n") {
+	// The columns of earlier versions first, new ones at the end.
+	if err != nil || !strings.HasPrefix(string(b), "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations,finding,") {
 		t.Errorf("drift.csv: %v %q", err, b)
 	}
 	if _, err := os.Stat(filepath.Join(out, "index.html")); err != nil {
 		t.Error(err)
 	}
-	if (code == 1) != strings.Contains(stderr, "rules violated") {
-		t.Errorf("exit %d with %q", code, stderr)
+	// Four sessions are fewer than the five needed: nothing is judged,
+	// no exit 1, and never a green "in control".
+	if code != 0 || !strings.Contains(stdout, "20 of 20 series not judged: not enough sessions (4 of 5).") || strings.Contains(stdout, "in control") {
+		t.Errorf("exit %d with %q", code, stdout)
+	}
+	idx, _ := os.ReadFile(filepath.Join(out, "index.html"))
+	if !strings.Contains(string(idx), `class="verdict too-few"`) {
+		t.Error("index of a too-short history is not marked as not judged")
 	}
 	if code, _, stderr := tauvox(t, "history", "remove", "--db", db, "--id", "2"); code != 2 || !strings.Contains(stderr, "--yes") {
 		t.Errorf("remove without --yes: %d %s", code, stderr)
