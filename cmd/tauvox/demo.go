@@ -13,6 +13,7 @@ import (
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -96,7 +97,7 @@ verdict table and the drift table.`, e)
 		if err != nil {
 			return fmt.Errorf("%s: qa.json: %v", qaDir, err)
 		}
-		b = append(b, '\n')
+		b = append(sidecar.Tidy(b), '\n')
 		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.json"), b); err != nil {
 			return err
 		}

@@ -17,6 +17,7 @@ import (
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -122,7 +123,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if err != nil {
 		return fmt.Errorf("%s: qa.json: %v", a.out, err)
 	}
-	if err := series.WriteFileAtomic(st.Path("qa.json"), append(b, '\n')); err != nil {
+	if err := series.WriteFileAtomic(st.Path("qa.json"), append(sidecar.Tidy(b), '\n')); err != nil {
 		return err
 	}
 	if err := series.WriteFileAtomic(st.Path("qa.csv"), qaCSV(qa)); err != nil {
@@ -261,7 +262,7 @@ func phantomInputs(p string) ([]phantom.Input, *mapset.Provenance, error) {
 		if m.Volumes() != 1 {
 			return nil, nil, fmt.Errorf("%s: a map must hold one volume, not %d", path, m.Volumes())
 		}
-		in := phantom.Input{Quantity: q, Map: m, Ref: phantom.SeriesRef{Map: path}}
+		in := phantom.Input{Quantity: q, Map: m, Ref: phantom.SeriesRef{Map: mapset.FinalPath(path)}}
 		if sp, ok := folder.Maps["status"]; ok {
 			s, err := nifti.Read(sp)
 			if err != nil {
