@@ -2,10 +2,10 @@ package report
 
 import (
 	"bytes"
-	"fmt"
 	"encoding/base64"
 	"encoding/xml"
 	"errors"
+	"fmt"
 	"image/png"
 	"io"
 	"math"

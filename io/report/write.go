@@ -350,7 +350,7 @@ func headlines(vials []phantom.VialQA, shown []string, frac float64, hist map[st
 			continue
 		}
 		txt := fmt.Sprintf("%s %s %s (%s ms) against a tolerance of ±%s (±%s ms)", display(r.ID, 24), display(r.Quantity, 12),
-			pctText(r.Deviation), signedNum(r.Median-r.Reference), pctText(100*r.Tolerance/r.Reference)[len("+"):], num(r.Tolerance, 1, ""))
+			pctText(r.Deviation), signedNum(r.Median-r.Reference), pctText(100 * r.Tolerance / r.Reference)[len("+"):], num(r.Tolerance, 1, ""))
 		if shown[i] == phantom.Fail {
 			fail = append(fail, txt)
 			continue
