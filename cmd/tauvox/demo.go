@@ -104,10 +104,17 @@ verdict table and the drift table.`, e)
 		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
 			return err
 		}
-		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance); err != nil {
+		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
 			return err
 		}
-		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
+		// The report shows a passing vial that its history so far flags
+		// as warn.
+		pts, err := db.Points(ctx, qa.Session.Scanner)
+		if err != nil {
+			return err
+		}
+		hist := report.HistoryFlags(history.Analyse(pts, nil))
+		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance, hist); err != nil {
 			return err
 		}
 		fmt.Fprintf(e.stdout, "session %2d  %s  %4.1f °C  phantom at (%5.1f, %5.1f) mm, %5.1f°: %s\n", n+1, when.Format("2006-01-02"), temp,

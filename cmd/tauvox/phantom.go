@@ -129,7 +129,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if err := series.WriteFileAtomic(st.Path("qa.csv"), qaCSV(qa)); err != nil {
 		return err
 	}
-	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance); err != nil {
+	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance, nil); err != nil {
 		return err
 	}
 	if err := st.Commit(); err != nil {

@@ -602,6 +602,19 @@ func findingText(s *history.Series) string {
 	return "–"
 }
 
+// HistoryFlags returns, for Page.History, the first reason of every
+// series whose finding is action or watch, keyed by HistoryKey(vial,
+// quantity) (the series of one scanner).
+func HistoryFlags(series []*history.Series) map[string]string {
+	out := map[string]string{}
+	for _, s := range series {
+		if (s.Finding == history.FindingAction || s.Finding == history.FindingWatch) && len(s.Reasons) > 0 {
+			out[HistoryKey(s.Vial, s.Quantity)] = s.Reasons[0]
+		}
+	}
+	return out
+}
+
 // HistoryHeadline is the one-line summary leading the index page: the
 // action items (vial, quantity, first reason), the watch items, how many
 // series are in control and how many have too few sessions.
