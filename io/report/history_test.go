@@ -514,3 +514,30 @@ func TestHistoryChromium(t *testing.T) {
 		t.Errorf("screenshot looks blank: %d distinct colours, %.1f %% non-white", colours, 100*ink)
 	}
 }
+
+// TestRuleLabelsApart: labels of neighbouring sessions closer than a
+// label's width go to the other row, labels far apart stay in the first,
+// and all sit above the highest line (yhi).
+func TestRuleLabelsApart(t *testing.T) {
+	day := 86400.0
+	xs := []float64{0, 5 * day, 60 * day, 62 * day, 64 * day}
+	lb, err := ruleLabels(xs, []string{"1", "1,2", "5", "1", "2"}, 10, 8, 365*day)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows := make([]float64, len(lb.XYs))
+	for i, p := range lb.XYs {
+		rows[i] = p.Y
+		if p.Y <= 8 || p.Y >= 10 {
+			t.Errorf("label %d at y %g, outside the band (8, 10)", i, p.Y)
+		}
+	}
+	for i := 1; i < len(rows); i++ {
+		if xs[i]-xs[i-1] < 10*day && rows[i] == rows[i-1] {
+			t.Errorf("labels %d and %d, %g days apart, share a row", i-1, i, (xs[i]-xs[i-1])/day)
+		}
+	}
+	if rows[2] != rows[0] {
+		t.Error("a label far from its neighbour left the first row")
+	}
+}

@@ -261,7 +261,7 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		}
 		leg.Add(txt, l)
 	}
-	setRange(top, xmin, xmax, ylo, yhi, 0.16)
+	setRange(top, xmin, xmax, ylo, yhi, 0.22)
 	if finite(baseEnd) {
 		// The end of the baseline: a vertical line below the label band.
 		x := baseEnd + 0.5*(nextX(all, baseEnd)-baseEnd)
@@ -383,20 +383,32 @@ func hline(xmin, xmax, y float64, c color.RGBA, w float64, dashes []vg.Length) (
 }
 
 // ruleLabels places the labels in the band between yhi (above every line)
-// and ytop: one row, or a second row for a label closer than a label's
-// width to the one before it.
+// and ytop, in up to three rows: each label goes to the first row whose
+// last label is at least a label's width away, or, when none is, to the
+// row whose last label is farthest.
 func ruleLabels(xs []float64, text []string, ytop, yhi, span float64) (*plotter.Labels, error) {
-	rows := [2]float64{yhi + 0.3*(ytop-yhi), yhi + 0.7*(ytop-yhi)}
+	rows := [3]float64{yhi + 0.2*(ytop-yhi), yhi + 0.5*(ytop-yhi), yhi + 0.8*(ytop-yhi)}
 	var xy plotter.XYs
-	last := [2]float64{math.Inf(-1), math.Inf(-1)}
-	// A label of up to 8 characters at 8 pt is about 0.05 of the plot's
-	// width (6.0 in wide data area).
-	minGap := 0.012 * span * 8 / 2
+	last := [3]float64{math.Inf(-1), math.Inf(-1), math.Inf(-1)}
+	// A label of 4 characters at 8 pt is about 0.048 of the data area's
+	// width (about 6 in).
+	minGap := 0.048 * span
 	for i, x := range xs {
 		w := minGap * math.Max(1, float64(len(text[i]))/4)
-		row := 0
-		if x-last[0] < w {
-			row = 1
+		row := -1
+		for r := range rows {
+			if x-last[r] >= w {
+				row = r
+				break
+			}
+		}
+		if row < 0 {
+			row = 0
+			for r := range rows {
+				if last[r] < last[row] {
+					row = r
+				}
+			}
 		}
 		last[row] = x
 		xy = append(xy, plotter.XY{X: x, Y: rows[row]})
