@@ -140,11 +140,16 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	driftTable(e, ss)
 	fmt.Fprintf(e.stdout, "wrote %s (index.html, drift.csv, charts)\n", a.out)
 	fmt.Fprintln(e.stdout, report.HistoryHeadline(sum))
-	see := filepath.Join(a.out, report.HistoryIndex)
+	return chartExit(sum, a.strict, filepath.Join(a.out, report.HistoryIndex))
+}
+
+// chartExit is the chart command's result: exit code 1 for action items,
+// or for watch items with strict; nil otherwise.
+func chartExit(sum *report.HistorySummary, strict bool, see string) error {
 	switch {
 	case sum.Actions > 0:
 		return &exitError{code: 1, err: fmt.Errorf("%d action item(s): see %s", sum.Actions, see)}
-	case a.strict && sum.Watches > 0:
+	case strict && sum.Watches > 0:
 		return &exitError{code: 1, err: fmt.Errorf("%d watch item(s) (--strict): see %s", sum.Watches, see)}
 	}
 	return nil

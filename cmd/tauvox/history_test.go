@@ -1,10 +1,13 @@
 package main
 
 import (
+	"errors"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/tauvox/tauvox/io/report"
 )
 
 // TestHistoryCommands: add is idempotent, list and export show the
@@ -87,5 +90,30 @@ func TestHistoryCommands(t *testing.T) {
 	}
 	if b, _ := os.ReadFile(corrupt); !strings.HasPrefix(string(b), "not sqlite") {
 		t.Error("corrupt database changed")
+	}
+}
+
+// TestChartExit: exit code 1 only for action items, unless --strict makes
+// watch items count too; too-few and in-control series never exit 1.
+func TestChartExit(t *testing.T) {
+	for _, c := range []struct {
+		sum    report.HistorySummary
+		strict bool
+		want   string // "" for success
+	}{
+		{report.HistorySummary{}, false, ""},
+		{report.HistorySummary{TooFew: 20}, true, ""},
+		{report.HistorySummary{Watches: 2}, false, ""},
+		{report.HistorySummary{Watches: 2}, true, "2 watch item(s) (--strict)"},
+		{report.HistorySummary{Actions: 1, Watches: 1}, false, "1 action item(s)"},
+	} {
+		err := chartExit(&c.sum, c.strict, "charts/index.html")
+		var ee *exitError
+		switch {
+		case c.want == "" && err != nil:
+			t.Errorf("%+v strict %v: %v, want success", c.sum, c.strict, err)
+		case c.want != "" && (!errors.As(err, &ee) || ee.code != 1 || !strings.Contains(err.Error(), c.want)):
+			t.Errorf("%+v strict %v: %v, want exit 1 with %q", c.sum, c.strict, err, c.want)
+		}
 	}
 }
