@@ -85,7 +85,35 @@ func TestDemoStability(t *testing.T) {
 	if paths < 12*4 {
 		t.Errorf("only %d recorded paths checked", paths)
 	}
+	// The demo's last report, and one remade with 'phantom --history',
+	// show A7 T2 (inside tolerance, drifting) as warn with its reason.
+	last := filepath.Dir(filepath.Dir(reports[len(reports)-1]))
+	again := filepath.Join(dir, "again")
+	code, _, stderr = tauvox(t, "phantom", filepath.Join(last, "fit-t2"), filepath.Join(last, "fit-t1-ir"), "--def", "demo",
+		"--temperature", temperatureOf(t, filepath.Join(last, "qa", "qa.json")), "--out", again, "--history", filepath.Join(demo, "history.db"), "--quiet")
+	if code != 1 {
+		t.Fatalf("phantom --history: exit %d, %s (want 1: A7 T1 fails)", code, stderr)
+	}
+	for _, page := range []string{reports[len(reports)-1], filepath.Join(again, "report.html")} {
+		b, _ := os.ReadFile(page)
+		if !regexp.MustCompile(`<li>Warn: A7 T2 −[0-9.]+ % \(−[0-9.]+ ms\) against a tolerance of ±10.0 % \(±[0-9.]+ ms\); history: drift −[0-9.]+ %/yr`).Match(b) {
+			t.Errorf("%s: no warn line for A7 T2", page)
+		}
+	}
 	t.Run("print", func(t *testing.T) { printsOnA4(t, reports[len(reports)-1]) })
+}
+
+// temperatureOf returns the session temperature of a qa.json as text.
+func temperatureOf(t *testing.T, path string) string {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := regexp.MustCompile(`"temperature_C": ([0-9.]+)`).FindSubmatch(b)
+	if m == nil {
+		t.Fatalf("%s: no temperature", path)
+	}
+	return string(m[1])
 }
 
 // printsOnA4: the QA report, printed by headless Chromium

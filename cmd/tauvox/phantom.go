@@ -16,9 +16,11 @@ import (
 
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
@@ -29,6 +31,7 @@ type phantomArgs struct {
 	centerSet, rotSet              bool
 	mirrored, extrapolate, force   bool
 	quiet                          bool
+	history                        string
 }
 
 // optFloat records whether a float flag was set.
@@ -88,6 +91,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	fs.BoolVar(&a.extrapolate, "extrapolate", false, "allow a temperature outside the reference tables")
 	fs.Float64Var(&a.frac, "roi-fraction", phantom.DefaultROIFraction, "measurement radius as a fraction of the vial radius")
 	fs.BoolVar(&a.quiet, "quiet", false, "print nothing on success")
+	fs.StringVar(&a.history, "history", "", "history database (read only): a passing vial its history flags is shown as warn")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
 		return err
@@ -129,7 +133,20 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if err := series.WriteFileAtomic(st.Path("qa.csv"), qaCSV(qa)); err != nil {
 		return err
 	}
-	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance, nil); err != nil {
+	var hist map[string]string
+	if a.history != "" {
+		db, err := openDB(a.history, true)
+		if err != nil {
+			return err
+		}
+		pts, err := db.Points(ctx, qa.Session.Scanner)
+		db.Close()
+		if err != nil {
+			return err
+		}
+		hist = report.HistoryFlags(history.Analyse(history.WithSession(pts, qa), nil))
+	}
+	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance, hist); err != nil {
 		return err
 	}
 	if err := st.Commit(); err != nil {

@@ -10,6 +10,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"sort"
 	"strings"
 	"time"
 
@@ -455,4 +456,58 @@ func (s *Store) Version(ctx context.Context) (int, error) {
 	var v int
 	err := s.db.QueryRowContext(ctx, "PRAGMA user_version").Scan(&v)
 	return v, s.wrap(err)
+}
+
+// PointsOf returns the results of a session as Points recorded by Add
+// would read back (no reference: NaN reference and deviation; a vial not
+// measured: NaN deviation), without a session id.
+func PointsOf(qa *phantom.QA) []Point {
+	s := qa.Session
+	acq := Acquired(s)
+	var out []Point
+	for _, v := range qa.Vials {
+		p := Point{Scanner: s.Scanner, Acquired: acq, Time: parseAcquired(acq), Vial: v.ID, Quantity: v.Quantity, N: v.N,
+			Mean: v.Mean, Median: v.Median, SD: v.SD, Reference: v.Reference, Deviation: v.Deviation, Tolerance: v.Tolerance,
+			RefUncPct: v.RefUncPct, Verdict: v.Verdict, Field: s.Field, Temperature: s.Temperature}
+		if !(v.Reference > 0) {
+			p.Reference, p.Deviation = math.NaN(), math.NaN()
+		}
+		if v.Verdict == phantom.NotMeasured {
+			p.Deviation = math.NaN()
+		}
+		if !(v.Tolerance > 0) {
+			p.Tolerance = math.NaN()
+		}
+		if !(v.RefUncPct > 0) {
+			p.RefUncPct = math.NaN()
+		}
+		out = append(out, p)
+	}
+	return out
+}
+
+// WithSession returns the recorded points of qa's scanner with the
+// session of qa added (replacing a recorded session at the same time),
+// ordered as Points orders them: the history a report of that session is
+// judged against.
+func WithSession(recorded []Point, qa *phantom.QA) []Point {
+	acq := Acquired(qa.Session)
+	var out []Point
+	for _, p := range recorded {
+		if p.Scanner == qa.Session.Scanner && p.Acquired != acq {
+			out = append(out, p)
+		}
+	}
+	out = append(out, PointsOf(qa)...)
+	sort.SliceStable(out, func(i, j int) bool {
+		a, b := out[i], out[j]
+		if a.Vial != b.Vial {
+			return a.Vial < b.Vial
+		}
+		if a.Quantity != b.Quantity {
+			return a.Quantity < b.Quantity
+		}
+		return a.Acquired < b.Acquired
+	})
+	return out
 }

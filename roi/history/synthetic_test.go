@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"testing"
 	"time"
+
+	"github.com/tauvox/tauvox/roi/phantom"
 )
 
 // synthHistory is a history of our own: cadence days between sessions
@@ -112,5 +114,42 @@ func TestSyntheticHistory(t *testing.T) {
 	t.Logf("%d seeds: drift found within ±1.5 %%/yr %d, excursion flagged %d, ≤ 3 others flagged %d, all three %d", n, drift, exc, quiet, ok)
 	if ok < n*65/100 {
 		t.Errorf("only %d of %d seeded histories meet all three", ok, n)
+	}
+}
+
+// TestWithSession: a session not yet recorded joins the scanner's points
+// (a recorded one at the same time is replaced, other scanners dropped),
+// read as Add would store it.
+func TestWithSession(t *testing.T) {
+	rec := synthHistory(1, 6, 30)
+	rec = append(rec, Point{Scanner: "OTHER", Acquired: "2025-01-01", Vial: "A1", Quantity: "T1"})
+	last := rec[5] // A1 T1, sixth session
+	qa := &phantom.QA{Session: phantom.Session{Scanner: "OWN-1", Date: last.Time.Format("2006-01-02"), Time: last.Time.Format("15:04"), Field: 1.5, Temperature: 21},
+		Vials: []phantom.VialQA{
+			{ID: "A1", Quantity: "T1", N: 200, Median: 330, Reference: 300, Deviation: 10, Tolerance: 15, Verdict: phantom.Fail},
+			{ID: "Z9", Quantity: "T2", N: 0, Median: math.NaN(), Verdict: phantom.NotMeasured},
+		}}
+	pts := WithSession(rec, qa)
+	if len(pts) != len(rec)-1-24+2 {
+		t.Fatalf("%d points, want %d", len(pts), len(rec)-1-24+2)
+	}
+	var a1 []Point
+	for _, p := range pts {
+		if p.Scanner != "OWN-1" {
+			t.Fatalf("point of scanner %q kept", p.Scanner)
+		}
+		if p.Vial == "A1" && p.Quantity == "T1" {
+			a1 = append(a1, p)
+		}
+		if p.Vial == "Z9" && (!math.IsNaN(p.Deviation) || !math.IsNaN(p.Reference)) {
+			t.Errorf("not-measured vial: deviation %g reference %g, want NaN", p.Deviation, p.Reference)
+		}
+	}
+	if len(a1) != 6 || a1[5].Deviation != 10 || a1[5].Tolerance != 15 {
+		t.Fatalf("A1 T1: %d points, last %+v", len(a1), a1[len(a1)-1])
+	}
+	s := Analyse(a1, nil)[0]
+	if !s.Outside[5] || s.Finding != FindingAction {
+		t.Errorf("the added session at +10 %% (tolerance 5 %%): outside %v, finding %s", s.Outside[5], s.Finding)
 	}
 }
