@@ -13,6 +13,7 @@ import (
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -96,17 +97,24 @@ verdict table and the drift table.`, e)
 		if err != nil {
 			return fmt.Errorf("%s: qa.json: %v", qaDir, err)
 		}
-		b = append(b, '\n')
+		b = append(sidecar.Tidy(b), '\n')
 		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.json"), b); err != nil {
 			return err
 		}
 		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
 			return err
 		}
-		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance); err != nil {
+		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
 			return err
 		}
-		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
+		// The report shows a passing vial that its history so far flags
+		// as warn.
+		pts, err := db.Points(ctx, qa.Session.Scanner)
+		if err != nil {
+			return err
+		}
+		hist := report.HistoryFlags(history.Analyse(pts, nil))
+		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance, hist); err != nil {
 			return err
 		}
 		fmt.Fprintf(e.stdout, "session %2d  %s  %4.1f °C  phantom at (%5.1f, %5.1f) mm, %5.1f°: %s\n", n+1, when.Format("2006-01-02"), temp,
@@ -122,15 +130,17 @@ verdict table and the drift table.`, e)
 		last = qa
 	}
 	db.Close()
-	a := &chartArgs{db: st.Path("history.db"), out: st.Path("history"), baseline: max(3, sessions/2), minDrift: 1}
+	a := &chartArgs{db: st.Path("history.db"), out: st.Path("history"), baseline: history.DefaultBaseline, minDrift: 1,
+		minLimit: history.DefaultMinLimit, minSessions: history.DefaultMinSessions, horizon: 12}
 	ss, err := analyseHistory(ctx, a)
 	if err != nil {
 		return err
 	}
-	violated, err := writeCharts(a.out, ss, a.settings(), "history.db")
+	sum, err := writeCharts(a.out, ss, a.settings(), "history.db")
 	if err != nil {
 		return err
 	}
+	index.Summary = report.HistoryHeadline(sum)
 	for _, s := range ss {
 		if s.Drifting {
 			index.Drifting = append(index.Drifting, s.Vial+" "+s.Quantity)
@@ -146,8 +156,9 @@ verdict table and the drift table.`, e)
 	printQA(e, last, filepath.Join(out, "session-"+last.Session.Date, "qa"))
 	fmt.Fprintf(e.stdout, "\nstability over %d sessions (baseline: first %d; deviation from the temperature-corrected reference, %%):\n", sessions, a.baseline)
 	driftTable(e, ss)
-	if violated {
-		fmt.Fprintln(e.stdout, "rules were violated: see", filepath.Join(out, "history", "index.html"))
+	fmt.Fprintln(e.stdout, index.Summary)
+	if sum.Actions+sum.Watches > 0 {
+		fmt.Fprintln(e.stdout, "see", filepath.Join(out, "history", "index.html"))
 	}
 	fmt.Fprintln(e.stdout, "\nevery report and the charts:", filepath.Join(out, "index.html"))
 	fmt.Fprintln(e.stdout, "\n"+mapset.Caution)

@@ -31,8 +31,9 @@ and shows each vial's stability:
                                               control charts, index.html and drift.csv
 
 Statistics use each vial's deviation from its temperature-corrected reference
-(percent). 'chart' exits with code 1 when any rule is violated, so a scheduled
-job can alert.`
+(percent). 'chart' exits with code 1 when there is an action item (a vial
+outside its tolerance, or drifting into it within the horizon), so a
+scheduled job can alert; --strict also for watch items.`
 
 func runHistory(ctx context.Context, args []string, e *env) error {
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
@@ -216,12 +217,18 @@ func historyRemove(ctx context.Context, args []string, e *env) error {
 	return nil
 }
 
-// worstFirst orders series: drifting first, then by the number of rules
-// violated, then by the size of the slope.
+// findingOrder ranks findings for the drift table.
+var findingOrder = map[string]int{history.FindingAction: 0, history.FindingWatch: 1, history.FindingTooFew: 2, history.FindingOK: 3}
+
+// worstFirst orders series: by finding, then drifting first, then by the
+// number of rules violated, then by the size of the slope.
 func worstFirst(ss []*history.Series) []*history.Series {
 	out := append([]*history.Series(nil), ss...)
 	sort.SliceStable(out, func(i, j int) bool {
 		a, b := out[i], out[j]
+		if fa, fb := findingOrder[a.Finding], findingOrder[b.Finding]; fa != fb {
+			return fa < fb
+		}
 		if a.Drifting != b.Drifting {
 			return a.Drifting
 		}
@@ -237,14 +244,18 @@ func worstFirst(ss []*history.Series) []*history.Series {
 func driftTable(e *env, ss []*history.Series) {
 	ss = worstFirst(ss)
 	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "scanner\tvial\tq\tsessions\tbaseline %\tlast %\tdrift %/yr\t95% CI\tviolations\t")
+	fmt.Fprintln(tw, "scanner\tvial\tq\tsessions\tbaseline %\tlast %\tdrift %/yr\t95% CI\tviolations\tfinding\t")
 	for _, s := range ss {
 		var v []string
 		for _, k := range s.Violations {
 			v = append(v, strconv.Itoa(k))
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%s\t%s\t[%s, %s]\t%s\t\n", oneLine(s.Scanner), s.Vial, s.Quantity, len(s.Points),
-			fmtNum(s.BaselineMean, 2), fmtNum(s.Value[len(s.Value)-1], 2), fmtNum(s.Slope, 2), fmtNum(s.SlopeLow, 2), fmtNum(s.SlopeHigh, 2), strings.Join(v, ";"))
+		f := s.Finding
+		if f == history.FindingTooFew {
+			f = fmt.Sprintf("not enough sessions (%d of %d)", s.Sessions, s.MinSessions)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%s\t%s\t[%s, %s]\t%s\t%s\t\n", oneLine(s.Scanner), s.Vial, s.Quantity, len(s.Points),
+			fmtNum(s.BaselineMean, 2), fmtNum(s.Value[len(s.Value)-1], 2), fmtNum(s.Slope, 2), fmtNum(s.SlopeLow, 2), fmtNum(s.SlopeHigh, 2), strings.Join(v, ";"), f)
 	}
 	tw.Flush()
 }

@@ -2,12 +2,15 @@ package main
 
 import (
 	"encoding/csv"
+	"errors"
 	"math"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+
+	"github.com/tauvox/tauvox/io/report"
 )
 
 // checkExportDeviations: every row of `history export --csv` carries the
@@ -85,14 +88,21 @@ func TestHistoryCommands(t *testing.T) {
 		t.Fatalf("chart: %d %s", code, stderr)
 	}
 	b, err := os.ReadFile(filepath.Join(out, "drift.csv"))
-	if err != nil || !strings.HasPrefix(string(b), "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations\n") {
+	// The columns of earlier versions first, new ones at the end.
+	if err != nil || !strings.HasPrefix(string(b), "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations,finding,") {
 		t.Errorf("drift.csv: %v %q", err, b)
 	}
 	if _, err := os.Stat(filepath.Join(out, "index.html")); err != nil {
 		t.Error(err)
 	}
-	if (code == 1) != strings.Contains(stderr, "rules violated") {
-		t.Errorf("exit %d with %q", code, stderr)
+	// Four sessions are fewer than the five needed: nothing is judged,
+	// no exit 1, and never a green "in control".
+	if code != 0 || !strings.Contains(stdout, "20 of 20 series not judged: not enough sessions (4 of 5).") || strings.Contains(stdout, "in control") {
+		t.Errorf("exit %d with %q", code, stdout)
+	}
+	idx, _ := os.ReadFile(filepath.Join(out, "index.html"))
+	if !strings.Contains(string(idx), `class="verdict too-few"`) {
+		t.Error("index of a too-short history is not marked as not judged")
 	}
 	if code, _, stderr := tauvox(t, "history", "remove", "--db", db, "--id", "2"); code != 2 || !strings.Contains(stderr, "--yes") {
 		t.Errorf("remove without --yes: %d %s", code, stderr)
@@ -122,5 +132,30 @@ func TestHistoryCommands(t *testing.T) {
 	}
 	if b, _ := os.ReadFile(corrupt); !strings.HasPrefix(string(b), "not sqlite") {
 		t.Error("corrupt database changed")
+	}
+}
+
+// TestChartExit: exit code 1 only for action items, unless --strict makes
+// watch items count too; too-few and in-control series never exit 1.
+func TestChartExit(t *testing.T) {
+	for _, c := range []struct {
+		sum    report.HistorySummary
+		strict bool
+		want   string // "" for success
+	}{
+		{report.HistorySummary{}, false, ""},
+		{report.HistorySummary{TooFew: 20}, true, ""},
+		{report.HistorySummary{Watches: 2}, false, ""},
+		{report.HistorySummary{Watches: 2}, true, "2 watch item(s) (--strict)"},
+		{report.HistorySummary{Actions: 1, Watches: 1}, false, "1 action item(s)"},
+	} {
+		err := chartExit(&c.sum, c.strict, "charts/index.html")
+		var ee *exitError
+		switch {
+		case c.want == "" && err != nil:
+			t.Errorf("%+v strict %v: %v, want success", c.sum, c.strict, err)
+		case c.want != "" && (!errors.As(err, &ee) || ee.code != 1 || !strings.Contains(err.Error(), c.want)):
+			t.Errorf("%+v strict %v: %v, want exit 1 with %q", c.sum, c.strict, err, c.want)
+		}
 	}
 }

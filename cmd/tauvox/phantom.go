@@ -16,8 +16,11 @@ import (
 
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
@@ -28,6 +31,7 @@ type phantomArgs struct {
 	centerSet, rotSet              bool
 	mirrored, extrapolate, force   bool
 	quiet                          bool
+	history                        string
 }
 
 // optFloat records whether a float flag was set.
@@ -87,6 +91,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	fs.BoolVar(&a.extrapolate, "extrapolate", false, "allow a temperature outside the reference tables")
 	fs.Float64Var(&a.frac, "roi-fraction", phantom.DefaultROIFraction, "measurement radius as a fraction of the vial radius")
 	fs.BoolVar(&a.quiet, "quiet", false, "print nothing on success")
+	fs.StringVar(&a.history, "history", "", "history database (read only): a passing vial its history flags is shown as warn")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
 		return err
@@ -122,13 +127,26 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if err != nil {
 		return fmt.Errorf("%s: qa.json: %v", a.out, err)
 	}
-	if err := series.WriteFileAtomic(st.Path("qa.json"), append(b, '\n')); err != nil {
+	if err := series.WriteFileAtomic(st.Path("qa.json"), append(sidecar.Tidy(b), '\n')); err != nil {
 		return err
 	}
 	if err := series.WriteFileAtomic(st.Path("qa.csv"), qaCSV(qa)); err != nil {
 		return err
 	}
-	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance); err != nil {
+	var hist map[string]string
+	if a.history != "" {
+		db, err := openDB(a.history, true)
+		if err != nil {
+			return err
+		}
+		pts, err := db.Points(ctx, qa.Session.Scanner)
+		db.Close()
+		if err != nil {
+			return err
+		}
+		hist = report.HistoryFlags(history.Analyse(history.WithSession(pts, qa), nil))
+	}
+	if err := writeReport(st.Path("report.html"), qa, res, inputs, def.Tolerance, hist); err != nil {
 		return err
 	}
 	if err := st.Commit(); err != nil {
@@ -261,7 +279,7 @@ func phantomInputs(p string) ([]phantom.Input, *mapset.Provenance, error) {
 		if m.Volumes() != 1 {
 			return nil, nil, fmt.Errorf("%s: a map must hold one volume, not %d", path, m.Volumes())
 		}
-		in := phantom.Input{Quantity: q, Map: m, Ref: phantom.SeriesRef{Map: path}}
+		in := phantom.Input{Quantity: q, Map: m, Ref: phantom.SeriesRef{Map: mapset.FinalPath(path)}}
 		if sp, ok := folder.Maps["status"]; ok {
 			s, err := nifti.Read(sp)
 			if err != nil {

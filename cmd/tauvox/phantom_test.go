@@ -112,7 +112,9 @@ func TestPhantomCommand(t *testing.T) {
 		if !strings.Contains(stdout, field) {
 			t.Errorf("vial %s: printed table lacks the signed deviation %s:\n%s", v.ID, field, stdout)
 		}
-		if cell := fmt.Sprintf("%+.1f %%", v.Deviation); !strings.Contains(html, cell) {
+		// The report writes the minus as U+2212 (html/template may write
+		// "+" as "&#43;": compared unescaped).
+		if cell := strings.Replace(fmt.Sprintf("%+.1f %%", v.Deviation), "-", "−", 1); !strings.Contains(stdhtml.UnescapeString(html), cell) {
 			t.Errorf("vial %s: report.html lacks the signed deviation %q", v.ID, cell)
 		}
 	}

@@ -8,8 +8,8 @@ import (
 
 // writeReport writes report.html: per measured map its slice with the vial
 // regions, plus everything in qa.
-func writeReport(path string, qa *phantom.QA, res *phantom.Result, inputs []phantom.Input, tol map[string]phantom.Tolerance) error {
-	page := &report.Page{QA: qa, Tolerance: tol}
+func writeReport(path string, qa *phantom.QA, res *phantom.Result, inputs []phantom.Input, tol map[string]phantom.Tolerance, hist map[string]string) error {
+	page := &report.Page{QA: qa, Tolerance: tol, History: hist}
 	for n, in := range inputs {
 		pl := res.Placements[n]
 		m := in.Map

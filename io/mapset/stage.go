@@ -55,7 +55,9 @@ func NewStage(dir string, force bool) (*Stage, error) {
 		os.RemoveAll(tmp)
 		return nil, err
 	}
-	return &Stage{target: dir, tmp: tmp, force: force, owner: owner}, nil
+	s := &Stage{target: dir, tmp: tmp, force: force, owner: owner}
+	s.register()
+	return s, nil
 }
 
 // sweep removes the temporary folders of earlier runs for the same output
@@ -93,6 +95,7 @@ func (s *Stage) Commit() error {
 		return errors.New("mapset: stage already finished")
 	}
 	s.done = true
+	s.unregister()
 	if _, err := os.Stat(s.target); err == nil {
 		old, err := os.MkdirTemp(filepath.Dir(s.target), "."+filepath.Base(s.target)+".old-")
 		if err != nil {
@@ -128,6 +131,7 @@ func (s *Stage) Commit() error {
 func (s *Stage) Abort() {
 	if !s.done {
 		s.done = true
+		s.unregister()
 		s.release(s.tmp)
 		os.RemoveAll(s.tmp)
 	}

@@ -156,7 +156,7 @@ func StartChecksums(inputs []series.Input) Sums {
 				c.err = err
 				break
 			}
-			c.recs = append(c.recs, InputRecord{Path: i.Path, Role: i.Role, SHA256: sum, Bytes: n})
+			c.recs = append(c.recs, InputRecord{Path: FinalPath(i.Path), Role: i.Role, SHA256: sum, Bytes: n})
 		}
 		ch <- c
 	}(append([]series.Input(nil), inputs...))
@@ -356,7 +356,7 @@ func (w *Writer) Abort() {
 func sources(in []series.Input) []string {
 	var s []string
 	for _, i := range in {
-		s = append(s, i.Path)
+		s = append(s, FinalPath(i.Path))
 	}
 	return s
 }

@@ -24,6 +24,8 @@ type DemoIndex struct {
 	Sessions []DemoSession
 	History  string // link to the history index.html, relative
 	Drifting []string
+	// Summary is the history's one-line summary (HistoryHeadline).
+	Summary string
 }
 
 var demoTmpl = template.Must(template.New("demo").Funcs(template.FuncMap{
@@ -47,6 +49,7 @@ td.pass{color:#00684a}
 <p>Scanner <strong>{{.Scanner}}</strong> · {{len .Sessions}} simulated monthly QA sessions (invented data).</p>
 <p class="caution">{{caution}}</p>
 <p class="box"><a href="{{.History}}">Stability charts and drift per year</a>{{if .Drifting}} — drifting: {{range $i, $d := .Drifting}}{{if $i}}, {{end}}{{$d}}{{end}}{{end}}</p>
+{{if .Summary}}<p id="stability-summary"><b>Stability:</b> {{.Summary}}</p>{{end}}
 <table>
 <tr><th>session</th><th>date</th><th>time</th><th>temperature °C</th><th>verdict</th><th>failed</th><th>report</th></tr>
 {{range $i, $s := .Sessions}}<tr><td>{{inc $i}}</td><td>{{$s.Date}}</td><td>{{$s.Time}}</td><td>{{printf "%.1f" $s.Temperature}}</td>

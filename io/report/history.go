@@ -26,7 +26,16 @@ const (
 )
 
 // HistoryColumns is the header of drift.csv, in order.
-var HistoryColumns = []string{"scanner", "vial", "quantity", "sessions", "baseline_mean", "last_value", "slope_pct_per_year", "slope_ci_low", "slope_ci_high", "violations"}
+// The first ten are those of earlier versions; later ones are added at
+// the end only: finding (action, watch, ok, too-few), last_mode (how the
+// last session was judged: leave-one-out, fixed-baseline, too-few),
+// modes (one letter per session, oldest first: L leave-one-out, F fixed
+// baseline, T too few sessions, - no value),
+// limit_sd_floor (the smallest SD the rules used, percentage points),
+// tolerance_pct (the last session's tolerance in percent of the
+// reference) and reasons (the finding's reasons joined by "; ").
+var HistoryColumns = []string{"scanner", "vial", "quantity", "sessions", "baseline_mean", "last_value", "slope_pct_per_year", "slope_ci_low", "slope_ci_high", "violations",
+	"finding", "last_mode", "modes", "limit_sd_floor", "tolerance_pct", "reasons"}
 
 // HistoryOptions are the settings of WriteHistory; the zero value is
 // right.
@@ -65,9 +74,12 @@ type HistorySummary struct {
 	// number of rules violated, then by |slope| (NaN last), then by
 	// scanner, vial and quantity.
 	Rows []HistoryRow
-	// Violations is set when some row violates at least one rule (the
-	// command exits 1 then).
+	// Violations is set when some row violates at least one rule.
 	Violations bool
+	// Actions, Watches and TooFew count the rows of each finding
+	// (history.FindingAction, ...); the command exits 1 when Actions > 0
+	// (or Watches > 0 with --strict).
+	Actions, Watches, TooFew int
 	// Scanners are the distinct scanner names, sorted.
 	Scanners []string
 	// From and To are the first and last session dates; zero when no
@@ -184,6 +196,14 @@ func summarise(series []*history.Series) *HistorySummary {
 		if len(s.Violations) > 0 {
 			sum.Violations = true
 		}
+		switch s.Finding {
+		case history.FindingAction:
+			sum.Actions++
+		case history.FindingWatch:
+			sum.Watches++
+		case history.FindingTooFew:
+			sum.TooFew++
+		}
 		if !scanners[s.Scanner] {
 			scanners[s.Scanner] = true
 			sum.Scanners = append(sum.Scanners, s.Scanner)
@@ -195,9 +215,26 @@ func summarise(series []*history.Series) *HistorySummary {
 	return sum
 }
 
-// worse orders series worst first: drifting, then more rules violated,
-// then larger |slope| (NaN last), then by name.
+// findingRank orders findings: action, watch, too few, in control.
+func findingRank(f string) int {
+	switch f {
+	case history.FindingAction:
+		return 0
+	case history.FindingWatch:
+		return 1
+	case history.FindingTooFew:
+		return 2
+	}
+	return 3
+}
+
+// worse orders series worst first: by finding (action, watch, too few,
+// in control), then drifting, then more rules violated, then larger
+// |slope| (NaN last), then by name.
 func worse(a, b *history.Series) bool {
+	if ra, rb := findingRank(a.Finding), findingRank(b.Finding); ra != rb {
+		return ra < rb
+	}
 	if a.Drifting != b.Drifting {
 		return a.Drifting
 	}
@@ -259,12 +296,52 @@ func writeDriftCSV(w io.Writer, rows []HistoryRow) error {
 			csvNum(s.BaselineMean), csvNum(r.Last),
 			csvNum(s.Slope), csvNum(s.SlopeLow), csvNum(s.SlopeHigh),
 			ruleList(s.Violations, ";"),
+			s.Finding, lastMode(s), modeLetters(s.Mode), csvNum(s.Floor), csvNum(lastFinite(s.TolPct, s.Value)),
+			strings.Join(s.Reasons, "; "),
 		}); err != nil {
 			return err
 		}
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// modeLetters writes one letter per session's mode (HistoryColumns).
+func modeLetters(m []string) string {
+	b := make([]byte, len(m))
+	for i, x := range m {
+		switch x {
+		case history.ModeLeaveOneOut:
+			b[i] = 'L'
+		case history.ModeFixed:
+			b[i] = 'F'
+		case history.ModeTooFew:
+			b[i] = 'T'
+		default:
+			b[i] = '-'
+		}
+	}
+	return string(b)
+}
+
+// lastMode is the mode of the last session with a value.
+func lastMode(s *history.Series) string {
+	for i := len(s.Value) - 1; i >= 0; i-- {
+		if finite(s.Value[i]) && i < len(s.Mode) {
+			return s.Mode[i]
+		}
+	}
+	return ""
+}
+
+// lastFinite is v at the last index where ref is finite.
+func lastFinite(v, ref []float64) float64 {
+	for i := len(ref) - 1; i >= 0; i-- {
+		if finite(ref[i]) && i < len(v) {
+			return v[i]
+		}
+	}
+	return math.NaN()
 }
 
 // maxComponent bounds each of the three parts of a chart's file name, in
@@ -357,15 +434,34 @@ func display(s string, max int) string {
 type historyData struct {
 	Title, Scanners, Range, Source string
 	Count, Flagged                 string
+	Class                          string // action, watch, ok or too-few: the summary's look
 	Any                            bool
+	Glance                         []glanceData
+	Floor, Horizon, MinSessions    string
+	Rules                          string
 	Baseline, EWMA, Drift          string
 	Relative                       bool
 	Rows                           []historyRowData
 	Caution, Tool                  string
 }
 
+// glanceData is one vial of the at-a-glance strip: its quantities'
+// sparklines.
+type glanceData struct {
+	Scanner, Vial string
+	Lines         []sparkData
+}
+
+type sparkData struct {
+	Anchor, Quantity, Finding string
+	Spark                     template.URL
+}
+
 type historyRowData struct {
 	Anchor                            string
+	Finding, FindingClass             string
+	Reasons, LastMode                 string
+	Spark                             template.URL
 	Scanner, Vial, Quantity, Relative string
 	Sessions, Baseline, Last          string
 	Slope, CI, Rules                  string
@@ -421,19 +517,24 @@ func historyPage(sum *HistorySummary, charts [][]byte, opt *HistoryOptions) *his
 	for i, r := range sum.Rows {
 		s := r.Series
 		rd := historyRowData{
-			Anchor:   fmt.Sprintf("c%d", i+1),
-			Scanner:  display(s.Scanner, maxDisplay),
-			Vial:     display(s.Vial, maxDisplay),
-			Quantity: display(s.Quantity, maxDisplay),
-			Sessions: strconv.Itoa(r.Sessions),
-			Baseline: signed(s.BaselineMean) + " ± " + num(s.BaselineSD, 2, "") + fmt.Sprintf(" (n = %d)", s.BaselineN),
-			Last:     signed(r.Last),
-			Slope:    signed(s.Slope),
-			CI:       "–",
-			Rules:    ruleList(s.Violations, ", "),
-			Drifting: s.Drifting,
-			Flagged:  len(s.Violations) > 0,
-			File:     r.Chart,
+			Anchor:       fmt.Sprintf("c%d", i+1),
+			Scanner:      display(s.Scanner, maxDisplay),
+			Vial:         display(s.Vial, maxDisplay),
+			Quantity:     display(s.Quantity, maxDisplay),
+			Sessions:     strconv.Itoa(r.Sessions),
+			Baseline:     signed(s.BaselineMean) + " ± " + num(s.BaselineSD, 2, "") + fmt.Sprintf(" (n = %d)", s.BaselineN),
+			Last:         signed(r.Last),
+			Slope:        signed(s.Slope),
+			CI:           "–",
+			Rules:        ruleList(s.Violations, ", "),
+			Drifting:     s.Drifting,
+			Flagged:      len(s.Violations) > 0,
+			File:         r.Chart,
+			Finding:      findingText(s),
+			FindingClass: s.Finding,
+			Reasons:      strings.Join(s.Reasons, "; "),
+			LastMode:     lastMode(s),
+			Spark:        dataURI("image/svg+xml", sparkline(s)),
 		}
 		if !finite(s.BaselineMean) {
 			rd.Baseline = "–"
@@ -458,11 +559,156 @@ func historyPage(sum *HistorySummary, charts [][]byte, opt *HistoryOptions) *his
 	}
 	d.Any = flagged > 0
 	d.Count = fmt.Sprintf("%d vial × quantity series", len(sum.Rows))
-	d.Flagged = fmt.Sprintf("%d of %d series violate at least one rule", flagged, len(sum.Rows))
-	if flagged == 0 {
-		d.Flagged = fmt.Sprintf("No rule violated in %d series", len(sum.Rows))
+	d.Flagged, d.Class = headline(sum)
+	d.Glance = glance(d.Rows, sum)
+	minLimit := set.MinLimit
+	if minLimit == 0 {
+		minLimit = history.DefaultMinLimit
 	}
+	d.Floor = fmt.Sprintf("±%g %% for ±3 SD (SD ≥ %.2g %%)", math.Max(minLimit, 0), math.Max(minLimit, 0)/3)
+	h := set.Horizon
+	if h == 0 {
+		h = history.DefaultHorizon
+	}
+	d.Horizon = fmt.Sprintf("%g year", h)
+	if h != 1 {
+		d.Horizon += "s"
+	}
+	ms := set.MinSessions
+	if ms == 0 {
+		ms = history.DefaultMinSessions
+	}
+	d.MinSessions = fmt.Sprint(max(3, ms))
+	rules := set.Rules
+	if rules == nil {
+		rules = history.DefaultRules
+	}
+	d.Rules = ruleList(rules, ", ")
 	return d
+}
+
+// findingText is the table's word for a series' finding.
+func findingText(s *history.Series) string {
+	switch s.Finding {
+	case history.FindingAction:
+		return "ACTION"
+	case history.FindingWatch:
+		return "watch"
+	case history.FindingTooFew:
+		return fmt.Sprintf("not enough sessions (%d of %d)", s.Sessions, s.MinSessions)
+	case history.FindingOK:
+		return "in control"
+	}
+	return "–"
+}
+
+// HistoryFlags returns, for Page.History, the first reason of every
+// series whose finding is action or watch, keyed by HistoryKey(vial,
+// quantity) (the series of one scanner).
+func HistoryFlags(series []*history.Series) map[string]string {
+	out := map[string]string{}
+	for _, s := range series {
+		if (s.Finding == history.FindingAction || s.Finding == history.FindingWatch) && len(s.Reasons) > 0 {
+			out[HistoryKey(s.Vial, s.Quantity)] = s.Reasons[0]
+		}
+	}
+	return out
+}
+
+// HistoryHeadline is the one-line summary leading the index page: the
+// action items (vial, quantity, first reason), the watch items, how many
+// series are in control and how many have too few sessions.
+func HistoryHeadline(sum *HistorySummary) string {
+	h, _ := headline(sum)
+	return h
+}
+
+// headline is the one-line summary leading the page and its class.
+func headline(sum *HistorySummary) (string, string) {
+	var act, watch []string
+	for _, r := range sum.Rows {
+		s := r.Series
+		name := display(s.Vial, 24) + " " + display(s.Quantity, 12)
+		if len(sum.Scanners) > 1 {
+			name = display(s.Scanner, 24) + " " + name
+		}
+		why := ""
+		if len(s.Reasons) > 0 {
+			why = " (" + s.Reasons[0] + ")"
+		}
+		switch s.Finding {
+		case history.FindingAction:
+			act = append(act, name+why)
+		case history.FindingWatch:
+			watch = append(watch, name+why)
+		}
+	}
+	n := len(sum.Rows)
+	ok := n - sum.Actions - sum.Watches - sum.TooFew
+	var parts []string
+	if len(act) > 0 {
+		parts = append(parts, "Action: "+strings.Join(act, "; ")+".")
+	}
+	if len(watch) > 0 {
+		if len(watch) > 4 {
+			watch = append(watch[:4], fmt.Sprintf("and %d more", len(watch)-4))
+		}
+		parts = append(parts, "Watch: "+strings.Join(watch, "; ")+".")
+	}
+	if ok > 0 {
+		parts = append(parts, fmt.Sprintf("%d of %d series in control.", ok, n))
+	}
+	if sum.TooFew > 0 {
+		most := 0
+		need := 0
+		for _, r := range sum.Rows {
+			if r.Series.Finding == history.FindingTooFew {
+				most, need = max(most, r.Series.Sessions), r.Series.MinSessions
+			}
+		}
+		parts = append(parts, fmt.Sprintf("%d of %d series not judged: not enough sessions (%d of %d).", sum.TooFew, n, most, need))
+	}
+	if n == 0 {
+		return "No sessions recorded: nothing judged.", history.FindingTooFew
+	}
+	class := history.FindingOK
+	switch {
+	case len(act) > 0:
+		class = history.FindingAction
+	case len(watch) > 0:
+		class = history.FindingWatch
+	case sum.TooFew > 0:
+		class = history.FindingTooFew
+	}
+	return strings.Join(parts, " "), class
+}
+
+// glance groups the rows' sparklines by scanner and vial, in name order.
+func glance(rows []historyRowData, sum *HistorySummary) []glanceData {
+	idx := make([]int, len(rows))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, b int) bool {
+		sa, sb := sum.Rows[idx[a]].Series, sum.Rows[idx[b]].Series
+		if sa.Scanner != sb.Scanner {
+			return sa.Scanner < sb.Scanner
+		}
+		if sa.Vial != sb.Vial {
+			return sa.Vial < sb.Vial
+		}
+		return sa.Quantity < sb.Quantity
+	})
+	var out []glanceData
+	for _, i := range idx {
+		s, r := sum.Rows[i].Series, rows[i]
+		if len(out) == 0 || out[len(out)-1].Scanner != r.Scanner || out[len(out)-1].Vial != r.Vial {
+			out = append(out, glanceData{Scanner: r.Scanner, Vial: r.Vial})
+		}
+		g := &out[len(out)-1]
+		g.Lines = append(g.Lines, sparkData{Anchor: r.Anchor, Quantity: r.Quantity, Finding: s.Finding, Spark: r.Spark})
+	}
+	return out
 }
 
 func baselineText(b history.Baseline) string {
@@ -474,7 +720,7 @@ func baselineText(b history.Baseline) string {
 	}
 	n := b.N
 	if n == 0 {
-		n = 12
+		n = history.DefaultBaseline
 	}
 	return fmt.Sprintf("the first %d sessions", n)
 }

@@ -58,7 +58,7 @@ func historyPoints(hostile bool) []history.Point {
 		ps = append(ps, history.Point{
 			SessionID: int64(i + 1), Scanner: scanner, Acquired: dates[i].Format("2006-01-02 15:04"), Time: dates[i],
 			Vial: vial, Quantity: q, N: 100, Median: median, Mean: median, SD: 0.02 * median,
-			Reference: 500, Deviation: dev, Field: 1.5, Temperature: 20,
+			Reference: 500, Deviation: dev, Tolerance: 25, Field: 1.5, Temperature: 20 + float64(i%5)/2,
 		})
 	}
 	for i, d := range dates {
@@ -150,12 +150,17 @@ func TestHistoryInvented(t *testing.T) {
 }
 
 // TestHistoryWorstFirst checks the order of the summary, the table and
-// drift.csv: drifting first, then by number of rules, then |slope|.
+// drift.csv: action, watch, too few, in control; then drifting first,
+// then by number of rules, then |slope|.
 func TestHistoryWorstFirst(t *testing.T) {
 	dir, sum := writeHistoryTest(t, false)
 	for i := 1; i < len(sum.Rows); i++ {
 		a, b := sum.Rows[i-1].Series, sum.Rows[i].Series
 		switch {
+		case findingRank(a.Finding) != findingRank(b.Finding):
+			if findingRank(a.Finding) > findingRank(b.Finding) {
+				t.Errorf("row %d (%s) before row %d (%s)", i-1, a.Finding, i, b.Finding)
+			}
 		case a.Drifting != b.Drifting:
 			if !a.Drifting {
 				t.Errorf("row %d not drifting before drifting row %d", i-1, i)
@@ -171,8 +176,8 @@ func TestHistoryWorstFirst(t *testing.T) {
 	if s := sum.Rows[0].Series; s.Vial != "A2" {
 		t.Errorf("first row %s %s, want the drifting A2", s.Vial, s.Quantity)
 	}
-	if s := sum.Rows[len(sum.Rows)-1].Series; s.Vial != "C1" {
-		t.Errorf("last row %s %s, want C1 (no slope)", s.Vial, s.Quantity)
+	if s := sum.Rows[2].Series; s.Vial != "C1" || s.Finding != history.FindingTooFew {
+		t.Errorf("third row %s %s (%s), want C1, not enough sessions, before the series in control", s.Vial, s.Quantity, s.Finding)
 	}
 	// The page lists the vials in the same order.
 	b, err := os.ReadFile(filepath.Join(dir, HistoryIndex))
@@ -221,7 +226,8 @@ func TestHistoryCSV(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if h := strings.Join(recs[0], ","); h != "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations" {
+	// The columns of earlier versions come first, unchanged.
+	if h := strings.Join(recs[0], ","); h != "scanner,vial,quantity,sessions,baseline_mean,last_value,slope_pct_per_year,slope_ci_low,slope_ci_high,violations,finding,last_mode,modes,limit_sd_floor,tolerance_pct,reasons" {
 		t.Errorf("header %q", h)
 	}
 	if len(recs) != 1+len(sum.Rows) {
@@ -230,22 +236,23 @@ func TestHistoryCSV(t *testing.T) {
 	for i, r := range sum.Rows {
 		s := r.Series
 		rec := recs[i+1]
-		want := []string{s.Scanner, s.Vial, s.Quantity, strconv.Itoa(r.Sessions), f4(s.BaselineMean), f4(r.Last), f4(s.Slope), f4(s.SlopeLow), f4(s.SlopeHigh), joinInts(s.Violations)}
+		want := []string{s.Scanner, s.Vial, s.Quantity, strconv.Itoa(r.Sessions), csvNum(s.BaselineMean), f4(r.Last), f4(s.Slope), f4(s.SlopeLow), f4(s.SlopeHigh), joinInts(s.Violations),
+			s.Finding, lastMode(s), modeLetters(s.Mode), f4(s.Floor), f4(lastFinite(s.TolPct, s.Value)), strings.Join(s.Reasons, "; ")}
 		if strings.Join(rec, "|") != strings.Join(want, "|") {
 			t.Errorf("row %d = %q, want %q", i+1, rec, want)
 		}
 	}
-	c1 := recs[len(recs)-1]
-	if c1[1] != "C1" || c1[3] != "2" || c1[6] != "" || c1[7] != "" || c1[8] != "" {
-		t.Errorf("C1 (2 sessions, no slope) = %q, want empty slope fields", c1)
+	c1 := recs[3]
+	if c1[1] != "C1" || c1[3] != "2" || c1[6] != "" || c1[7] != "" || c1[8] != "" || c1[10] != "too-few" || c1[12] != "TT" || c1[15] != "not enough sessions (2 of 5)" {
+		t.Errorf("C1 (2 sessions, no slope) = %q, want empty slope fields, too few", c1)
 	}
 	for _, rec := range recs[1:] {
 		if rec[1] == "A1" && rec[2] == "T1" && rec[9] != "" {
 			t.Errorf("A1 T1 violations %q, want empty", rec[9])
 		}
 	}
-	if rec := recs[1]; rec[1] != "A2" || !strings.Contains(rec[9], ";6") {
-		t.Errorf("first row %q, want A2 with rule 6 among ';'-separated rules", rec)
+	if rec := recs[1]; rec[1] != "A2" || !strings.Contains(rec[9], ";6") || rec[10] != "action" || rec[11] != "fixed-baseline" || rec[12] != "LLLLLLLLLLLLFFFFFFFF" {
+		t.Errorf("first row %q, want A2, action, with rule 6 among ';'-separated rules, 12 leave-one-out then fixed", rec)
 	}
 }
 
@@ -363,8 +370,8 @@ func TestHistoryEscaped(t *testing.T) {
 			t.Errorf("page lacks %q", want)
 		}
 	}
-	if len(srcs) != len(sum.Rows) {
-		t.Errorf("%d images for %d series", len(srcs), len(sum.Rows))
+	if len(srcs) != 2*len(sum.Rows) {
+		t.Errorf("%d images for %d series, want a sparkline and a chart each", len(srcs), len(sum.Rows))
 	}
 	for _, uri := range srcs {
 		data, ok := strings.CutPrefix(uri, "data:image/svg+xml;base64,")
@@ -401,7 +408,8 @@ func TestHistoryChartContent(t *testing.T) {
 	s := a2.Series
 	want := []string{
 		"drift " + strings.TrimSuffix(pct(s.Slope, 1), " %") + " %/yr [" + strings.TrimSuffix(pct(s.SlopeLow, 1), " %") + ", " + strings.TrimSuffix(pct(s.SlopeHigh, 1), " %") + "] rule 6",
-		"±2 SD", "±3 SD", "reference (0 % deviation)", "baseline session (n = 12)", "flagged; label: rules", "EWMA, λ = 0.2", "EWMA limits",
+		"±2 SD", "±3 SD", "reference (0 % deviation)", "baseline session (n = 12)", "EWMA, λ = 0.2", "EWMA limits",
+		"tolerance ±5.0 % (action outside)", "action: outside tolerance", "end of baseline (12 sessions)", "session temperature (20.0–22.0 °C)",
 		"2025", "2026",
 	}
 	for _, w := range want {
@@ -409,12 +417,19 @@ func TestHistoryChartContent(t *testing.T) {
 			t.Errorf("chart lacks %q", w)
 		}
 	}
+	b1, err := os.ReadFile(filepath.Join(dir, find(sum, "MR-3", "B1", "T1").Chart))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Contains(b1, []byte("watch: a rule (label)")) {
+		t.Error("B1 chart lacks the watch marker")
+	}
 	// The relative series has no reference line.
 	rel, err := os.ReadFile(filepath.Join(dir, find(sum, "MR-3", "A1", "T2").Chart))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if bytes.Contains(rel, []byte("reference (0 %")) || !bytes.Contains(rel, []byte("relative to baseline mean (%)")) {
+	if bytes.Contains(rel, []byte("reference (0 %")) || !bytes.Contains(rel, []byte("relative to baseline median (%)")) {
 		t.Error("relative chart labelled as a deviation from reference")
 	}
 }
@@ -497,5 +512,32 @@ func TestHistoryChromium(t *testing.T) {
 	colours, ink := census(img)
 	if colours < 100 || ink < 0.03 {
 		t.Errorf("screenshot looks blank: %d distinct colours, %.1f %% non-white", colours, 100*ink)
+	}
+}
+
+// TestRuleLabelsApart: labels of neighbouring sessions closer than a
+// label's width go to the other row, labels far apart stay in the first,
+// and all sit above the highest line (yhi).
+func TestRuleLabelsApart(t *testing.T) {
+	day := 86400.0
+	xs := []float64{0, 5 * day, 60 * day, 62 * day, 64 * day}
+	lb, err := ruleLabels(xs, []string{"1", "1,2", "5", "1", "2"}, 10, 8, 365*day)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows := make([]float64, len(lb.XYs))
+	for i, p := range lb.XYs {
+		rows[i] = p.Y
+		if p.Y <= 8 || p.Y >= 10 {
+			t.Errorf("label %d at y %g, outside the band (8, 10)", i, p.Y)
+		}
+	}
+	for i := 1; i < len(rows); i++ {
+		if xs[i]-xs[i-1] < 10*day && rows[i] == rows[i-1] {
+			t.Errorf("labels %d and %d, %g days apart, share a row", i-1, i, (xs[i]-xs[i-1])/day)
+		}
+	}
+	if rows[2] != rows[0] {
+		t.Error("a label far from its neighbour left the first row")
 	}
 }

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"sort"
 	"strings"
 	"time"
 
@@ -21,9 +22,10 @@ import (
 // below it on the same time axis, the legends in a column on the right.
 const (
 	histW      = 8.6 * vg.Inch
-	histH      = 4.9 * vg.Inch
+	histH      = 5.8 * vg.Inch
 	histLegend = 2.6 * vg.Inch // width of the legend column
-	histEWMA   = 1.5 * vg.Inch // height of the EWMA panel
+	histEWMA   = 1.3 * vg.Inch // height of the EWMA panel
+	histTemp   = 0.9 * vg.Inch // height of the temperature strip
 	histTitle  = 28            // characters of each name in the title
 )
 
@@ -40,6 +42,11 @@ var (
 	limit3Color  = color.RGBA{50, 50, 50, 255}
 	trailColor   = color.RGBA{190, 200, 210, 255}
 	gridColor    = color.RGBA{232, 232, 232, 255}
+	watchColor   = color.RGBA{170, 110, 0, 255}
+	tolColor     = color.RGBA{0, 158, 115, 28}
+	tolEdge      = color.RGBA{0, 120, 90, 255}
+	baseEndColor = color.RGBA{90, 90, 90, 255}
+	tempColor    = color.RGBA{86, 180, 233, 255}
 )
 
 // Dash patterns: ±2 SD dashed, ±3 SD dash-dot, the reference dotted.
@@ -54,35 +61,70 @@ var (
 const yearSeconds = 365.2425 * 24 * 3600
 
 // historySVG draws the stability chart of one series, or returns nil when
-// it has no dated finite value.
+// it has no dated finite value. Panels, on one time axis: the control
+// chart (tolerance band, centre line and ±2/±3 SD limits of the session
+// that was judged, sessions by how they were judged, flags, the drift
+// line, the end of the baseline), the EWMA once the baseline is complete,
+// and the session temperature.
 func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
-	var all, base, mon, flag plotter.XYs
+	var all, base, loo, fixed, watch, action plotter.XYs
+	var flagX []float64
 	var flagText []string
 	var sx, sy float64 // centroid of the drift fit's points
+	var centre, up2, lo2, up3, lo3, tol plotter.XYs
+	var temps plotter.XYs
+	baseEnd := math.NaN()
 	for i, p := range s.Points {
 		v := s.Value[i]
-		if !finite(v) || p.Time.IsZero() {
+		if p.Time.IsZero() {
 			continue
 		}
-		xy := plotter.XY{X: float64(p.Time.Unix()), Y: v}
+		x := float64(p.Time.Unix())
+		if finite(p.Temperature) {
+			temps = append(temps, plotter.XY{X: x, Y: p.Temperature})
+		}
+		if !finite(v) {
+			continue
+		}
+		xy := plotter.XY{X: x, Y: v}
 		all = append(all, xy)
 		sx, sy = sx+xy.X, sy+xy.Y
-		inBase := i < len(s.InBaseline) && s.InBaseline[i]
+		inBase := at(s.InBaseline, i)
+		if inBase && s.Complete {
+			baseEnd = x
+		}
+		if c, sd := atF(s.Centre, i), atF(s.SD, i); finite(c) && finite(sd) {
+			centre = append(centre, plotter.XY{X: x, Y: c})
+			up2, lo2 = append(up2, plotter.XY{X: x, Y: c + 2*sd}), append(lo2, plotter.XY{X: x, Y: c - 2*sd})
+			up3, lo3 = append(up3, plotter.XY{X: x, Y: c + 3*sd}), append(lo3, plotter.XY{X: x, Y: c - 3*sd})
+		}
+		if t := atF(s.TolPct, i); finite(t) {
+			tol = append(tol, plotter.XY{X: x, Y: t})
+		}
 		var rules []int
 		if i < len(s.Rules) {
 			rules = append(rules, s.Rules[i]...)
 		}
-		if !inBase && i < len(s.EWMAOut) && s.EWMAOut[i] {
+		if at(s.EWMAOut, i) {
 			rules = append(rules, history.RuleEWMA)
 		}
+		label := ruleList(rules, ",")
 		switch {
+		case at(s.Outside, i):
+			action = append(action, xy)
+			label = strings.TrimPrefix(label+",tol", ",")
 		case len(rules) > 0:
-			flag = append(flag, xy)
-			flagText = append(flagText, ruleList(rules, ","))
-		case inBase:
+			watch = append(watch, xy)
+		case i < len(s.Mode) && s.Mode[i] == history.ModeFixed:
+			fixed = append(fixed, xy)
+		case inBase && s.Complete:
 			base = append(base, xy)
 		default:
-			mon = append(mon, xy)
+			loo = append(loo, xy)
+		}
+		if label != "" {
+			flagX = append(flagX, x)
+			flagText = append(flagText, label)
 		}
 	}
 	if len(all) == 0 {
@@ -104,15 +146,11 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 	title := display(s.Scanner, histTitle) + " · " + display(s.Vial, histTitle) + " · " + display(s.Quantity, histTitle)
 	ylabel := "deviation from reference (%)"
 	if s.Relative {
-		ylabel = "relative to baseline mean (%)"
+		ylabel = "relative to baseline median (%)"
 	}
-	top := newPlot(title, "session date", ylabel)
+	top := newPlot(title, "", ylabel)
 	top.Title.TextStyle.Font.Size = vg.Points(11)
-	top.X.Tick.Marker = dateTicks{}
-	if ewma {
-		top.X.Label.Text = ""
-		top.X.Tick.Marker = dateTicks{blank: true}
-	}
+	top.X.Tick.Marker = dateTicks{blank: true}
 	grid := plotter.NewGrid()
 	grid.Vertical.Color, grid.Horizontal.Color = gridColor, gridColor
 	top.Add(grid)
@@ -127,15 +165,30 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 	for _, p := range all {
 		widen(p.Y)
 	}
-	hline := func(y float64, c color.RGBA, w float64, dashes []vg.Length) (*plotter.Line, error) {
-		l, err := plotter.NewLine(plotter.XYs{{X: xmin, Y: y}, {X: xmax, Y: y}})
+	if len(tol) > 0 {
+		// The tolerance band: shaded between −tol and +tol over the
+		// whole axis (the median tolerance of the sessions).
+		t := medianY(tol)
+		band, err := plotter.NewPolygon(plotter.XYs{{X: xmin, Y: -t}, {X: xmax, Y: -t}, {X: xmax, Y: t}, {X: xmin, Y: t}})
 		if err != nil {
 			return nil, err
 		}
-		l.Color, l.Width, l.Dashes = c, vg.Points(w), dashes
-		return l, nil
+		band.Color, band.LineStyle.Width = tolColor, 0
+		top.Add(band)
+		for _, sign := range []float64{1, -1} {
+			l, err := plotter.NewLine(plotter.XYs{{X: xmin, Y: sign * t}, {X: xmax, Y: sign * t}})
+			if err != nil {
+				return nil, err
+			}
+			l.Color, l.Width = tolEdge, vg.Points(1.6)
+			top.Add(l)
+			if sign > 0 {
+				leg.Add(fmt.Sprintf("tolerance ±%.1f %% (action outside)", t), band, l)
+			}
+		}
+		widen(t)
+		widen(-t)
 	}
-
 	if len(all) > 1 {
 		trail, err := plotter.NewLine(all)
 		if err != nil {
@@ -144,35 +197,39 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		trail.Color, trail.Width = trailColor, vg.Points(0.8)
 		top.Add(trail)
 	}
-	if m, sd := s.BaselineMean, s.BaselineSD; finite(m) {
-		l, err := hline(m, meanColor, 1, nil)
-		if err != nil {
-			return nil, err
-		}
-		top.Add(l)
-		leg.Add("baseline mean "+pct(m, 2), l)
-		if finite(sd) && sd > 0 {
-			for _, k := range []struct {
-				n      float64
-				c      color.RGBA
-				dashes []vg.Length
-			}{{2, limit2Color, dash2}, {3, limit3Color, dash3}} {
-				var first *plotter.Line
-				for _, sign := range []float64{1, -1} {
-					l, err := hline(m+sign*k.n*sd, k.c, 1, k.dashes)
-					if err != nil {
-						return nil, err
-					}
-					top.Add(l)
-					widen(m + sign*k.n*sd)
+	if len(centre) > 0 {
+		for _, k := range []struct {
+			xy     []plotter.XYs
+			name   string
+			c      color.RGBA
+			dashes []vg.Length
+		}{
+			{[]plotter.XYs{centre}, "centre line", meanColor, nil},
+			{[]plotter.XYs{up2, lo2}, "±2 SD", limit2Color, dash2},
+			{[]plotter.XYs{up3, lo3}, fmt.Sprintf("±3 SD (SD ≥ %.2f %%)", s.Floor), limit3Color, dash3},
+		} {
+			var first *plotter.Line
+			for _, xy := range k.xy {
+				xy = stretch(xy, xmin, xmax)
+				l, err := plotter.NewLine(xy)
+				if err != nil {
+					return nil, err
+				}
+				l.Color, l.Width, l.Dashes = k.c, vg.Points(1), k.dashes
+				l.StepStyle = plotter.MidStep
+				top.Add(l)
+				for _, p := range xy {
+					widen(p.Y)
+				}
+				if first == nil {
 					first = l
 				}
-				leg.Add(fmt.Sprintf("±%g SD (±%.2f)", k.n, k.n*sd), first)
 			}
+			leg.Add(k.name, first)
 		}
 	}
 	if !s.Relative {
-		l, err := hline(0, color.RGBA{0, 0, 0, 255}, 1.3, dashRef)
+		l, err := hline(xmin, xmax, 0, color.RGBA{0, 0, 0, 255}, 1.3, dashRef)
 		if err != nil {
 			return nil, err
 		}
@@ -181,16 +238,20 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		leg.Add("reference (0 % deviation)", l)
 	}
 	if b := s.Slope; finite(b) {
-		at := func(x float64) float64 { return sy + b*(x-sx)/yearSeconds }
+		atX := func(x float64) float64 { return sy + b*(x-sx)/yearSeconds }
 		x0, x1 := all[0].X, all[len(all)-1].X
-		l, err := plotter.NewLine(plotter.XYs{{X: x0, Y: at(x0)}, {X: x1, Y: at(x1)}})
+		l, err := plotter.NewLine(plotter.XYs{{X: x0, Y: atX(x0)}, {X: x1, Y: atX(x1)}})
 		if err != nil {
 			return nil, err
 		}
 		l.Color, l.Width = driftColor, vg.Points(1.8)
+		if !s.Drifting {
+			l.Dashes = dash2
+			l.Width = vg.Points(1.2)
+		}
 		top.Add(l)
-		widen(at(x0))
-		widen(at(x1))
+		widen(atX(x0))
+		widen(atX(x1))
 		txt := "drift " + pct(b, 1) + "/yr"
 		if finite(s.SlopeLow) && finite(s.SlopeHigh) {
 			txt += " [" + strings.TrimSuffix(pct(s.SlopeLow, 1), " %") + ", " + strings.TrimSuffix(pct(s.SlopeHigh, 1), " %") + "]"
@@ -200,6 +261,18 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		}
 		leg.Add(txt, l)
 	}
+	setRange(top, xmin, xmax, ylo, yhi, 0.22)
+	if finite(baseEnd) {
+		// The end of the baseline: a vertical line below the label band.
+		x := baseEnd + 0.5*(nextX(all, baseEnd)-baseEnd)
+		l, err := plotter.NewLine(plotter.XYs{{X: x, Y: top.Y.Min}, {X: x, Y: yhi}})
+		if err != nil {
+			return nil, err
+		}
+		l.Color, l.Width, l.Dashes = baseEndColor, vg.Points(1.4), []vg.Length{vg.Points(6), vg.Points(2), vg.Points(1), vg.Points(2)}
+		top.Add(l)
+		leg.Add(fmt.Sprintf("end of baseline (%d sessions)", s.BaselineN), l)
+	}
 	for _, g := range []struct {
 		xy    plotter.XYs
 		name  string
@@ -207,9 +280,11 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		c     color.RGBA
 		r     float64
 	}{
+		{loo, "session, judged leave-one-out", draw.BoxGlyph{}, sessionColor, 2.4},
 		{base, fmt.Sprintf("baseline session (n = %d)", s.BaselineN), draw.RingGlyph{}, sessionColor, 3},
-		{mon, "session", draw.CircleGlyph{}, sessionColor, 2.8},
-		{flag, "flagged; label: rules", draw.PyramidGlyph{}, failColor, 4.2},
+		{fixed, "session, judged on fixed limits", draw.CircleGlyph{}, sessionColor, 2.8},
+		{watch, "watch: a rule (label)", draw.PyramidGlyph{}, watchColor, 4.2},
+		{action, "action: outside tolerance", draw.CrossGlyph{}, failColor, 4.6},
 	} {
 		if len(g.xy) == 0 {
 			continue
@@ -219,38 +294,181 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 			return nil, err
 		}
 		sc.Shape, sc.Color, sc.Radius = g.shape, g.c, vg.Points(g.r)
+		if _, ok := g.shape.(draw.CrossGlyph); ok {
+			sc.GlyphStyle.Shape = thickCross{}
+		}
 		top.Add(sc)
 		leg.Add(g.name, sc)
 	}
-	if len(flag) > 0 {
-		lb, err := plotter.NewLabels(plotter.XYLabels{XYs: flag, Labels: flagText})
+	if len(flagText) > 0 {
+		// Rule labels in a band above every line, staggered over two rows
+		// when neighbours are close, so no label crosses a line or another
+		// label.
+		lb, err := ruleLabels(flagX, flagText, top.Y.Max, yhi, xmax-xmin)
 		if err != nil {
 			return nil, err
 		}
-		for i := range lb.TextStyle {
-			lb.TextStyle[i].Font.Typeface, lb.TextStyle[i].Font.Variant = sans.Typeface, sans.Variant
-			lb.TextStyle[i].Font.Size = vg.Points(8)
-			lb.TextStyle[i].Color = failColor
-			// Upright labels, reading upwards from just above the
-			// point, so those of neighbouring sessions do not overlap.
-			lb.TextStyle[i].Rotation = math.Pi / 2
-			lb.TextStyle[i].XAlign, lb.TextStyle[i].YAlign = draw.XLeft, draw.YCenter
-		}
-		lb.Offset = vg.Point{Y: vg.Points(6)}
 		top.Add(lb)
 	}
-	setRange(top, xmin, xmax, ylo, yhi, 0.14)
 
-	var bot *plot.Plot
-	var legBot plot.Legend
+	panels := []panel{{p: top, leg: &leg}}
 	if ewma {
-		var err error
-		bot, legBot, err = ewmaPlot(s, set, xmin, xmax)
+		bot, legBot, err := ewmaPlot(s, set, xmin, xmax)
 		if err != nil {
 			return nil, err
 		}
+		bot.X.Tick.Marker = dateTicks{blank: true}
+		bot.X.Label.Text = ""
+		panels = append(panels, panel{p: bot, leg: &legBot, h: histEWMA})
 	}
-	return drawChart(top, bot, &leg, &legBot)
+	tp, tleg, err := tempPlot(temps, xmin, xmax)
+	if err != nil {
+		return nil, err
+	}
+	panels = append(panels, panel{p: tp, leg: &tleg, h: histTemp})
+	return drawChart(panels)
+}
+
+// panel is one plot of a chart, its legend and its height (0: the rest).
+type panel struct {
+	p   *plot.Plot
+	leg *plot.Legend
+	h   vg.Length
+}
+
+func at(b []bool, i int) bool { return i < len(b) && b[i] }
+
+func atF(v []float64, i int) float64 {
+	if i < len(v) {
+		return v[i]
+	}
+	return math.NaN()
+}
+
+func medianY(xy plotter.XYs) float64 {
+	v := make([]float64, len(xy))
+	for i, p := range xy {
+		v[i] = p.Y
+	}
+	sort.Float64s(v)
+	return v[len(v)/2]
+}
+
+// nextX is the x of the point after x, or x plus a month at the end.
+func nextX(all plotter.XYs, x float64) float64 {
+	for _, p := range all {
+		if p.X > x {
+			return p.X
+		}
+	}
+	return x + 30*86400
+}
+
+// stretch extends a per-session line by half a gap at both ends (to the
+// axis ends for a single point), so step lines cover their sessions.
+func stretch(xy plotter.XYs, xmin, xmax float64) plotter.XYs {
+	out := make(plotter.XYs, 0, len(xy)+2)
+	out = append(out, plotter.XY{X: xmin, Y: xy[0].Y})
+	out = append(out, xy...)
+	return append(out, plotter.XY{X: xmax, Y: xy[len(xy)-1].Y})
+}
+
+func hline(xmin, xmax, y float64, c color.RGBA, w float64, dashes []vg.Length) (*plotter.Line, error) {
+	l, err := plotter.NewLine(plotter.XYs{{X: xmin, Y: y}, {X: xmax, Y: y}})
+	if err != nil {
+		return nil, err
+	}
+	l.Color, l.Width, l.Dashes = c, vg.Points(w), dashes
+	return l, nil
+}
+
+// ruleLabels places the labels in the band between yhi (above every line)
+// and ytop, in up to three rows: each label goes to the first row whose
+// last label is at least a label's width away, or, when none is, to the
+// row whose last label is farthest.
+func ruleLabels(xs []float64, text []string, ytop, yhi, span float64) (*plotter.Labels, error) {
+	rows := [3]float64{yhi + 0.2*(ytop-yhi), yhi + 0.5*(ytop-yhi), yhi + 0.8*(ytop-yhi)}
+	var xy plotter.XYs
+	last := [3]float64{math.Inf(-1), math.Inf(-1), math.Inf(-1)}
+	// A label of 4 characters at 8 pt is about 0.048 of the data area's
+	// width (about 6 in).
+	minGap := 0.048 * span
+	for i, x := range xs {
+		w := minGap * math.Max(1, float64(len(text[i]))/4)
+		row := -1
+		for r := range rows {
+			if x-last[r] >= w {
+				row = r
+				break
+			}
+		}
+		if row < 0 {
+			row = 0
+			for r := range rows {
+				if last[r] < last[row] {
+					row = r
+				}
+			}
+		}
+		last[row] = x
+		xy = append(xy, plotter.XY{X: x, Y: rows[row]})
+	}
+	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: xy, Labels: text})
+	if err != nil {
+		return nil, err
+	}
+	for i := range lb.TextStyle {
+		lb.TextStyle[i].Font.Typeface, lb.TextStyle[i].Font.Variant = sans.Typeface, sans.Variant
+		lb.TextStyle[i].Font.Size = vg.Points(8)
+		lb.TextStyle[i].Color = watchColor
+		lb.TextStyle[i].XAlign, lb.TextStyle[i].YAlign = draw.XCenter, draw.YCenter
+	}
+	return lb, nil
+}
+
+// tempPlot draws the session temperatures.
+func tempPlot(temps plotter.XYs, xmin, xmax float64) (*plot.Plot, plot.Legend, error) {
+	p := newPlot("", "session date", "°C")
+	p.X.Tick.Marker = dateTicks{}
+	leg := chartLegend()
+	ylo, yhi := math.Inf(1), math.Inf(-1)
+	for _, t := range temps {
+		ylo, yhi = math.Min(ylo, t.Y), math.Max(yhi, t.Y)
+	}
+	if len(temps) > 0 {
+		if err := addTrace(p, &leg, temps, tempColor, 1, fmt.Sprintf("session temperature (%.1f–%.1f °C)", ylo, yhi)); err != nil {
+			return nil, leg, err
+		}
+	}
+	setRange(p, xmin, xmax, ylo, yhi, 0.08)
+	return p, leg, nil
+}
+
+// addTrace draws xy as a line with small dots and names it in leg.
+func addTrace(p *plot.Plot, leg *plot.Legend, xy plotter.XYs, c color.RGBA, width float64, name string) error {
+	l, sc, err := plotter.NewLinePoints(xy)
+	if err != nil {
+		return err
+	}
+	l.Color, l.Width = c, vg.Points(width)
+	sc.Color, sc.Shape, sc.Radius = c, draw.CircleGlyph{}, vg.Points(1.8)
+	p.Add(l, sc)
+	leg.Add(name, l, sc)
+	return nil
+}
+
+// thickCross is an × drawn with heavier lines, readable in greyscale.
+type thickCross struct{}
+
+func (thickCross) DrawGlyph(c *draw.Canvas, sty draw.GlyphStyle, pt vg.Point) {
+	c.SetLineStyle(draw.LineStyle{Color: sty.Color, Width: vg.Points(1.8)})
+	r := sty.Radius
+	var p vg.Path
+	p.Move(vg.Point{X: pt.X - r, Y: pt.Y - r})
+	p.Line(vg.Point{X: pt.X + r, Y: pt.Y + r})
+	p.Move(vg.Point{X: pt.X - r, Y: pt.Y + r})
+	p.Line(vg.Point{X: pt.X + r, Y: pt.Y - r})
+	c.Stroke(p)
 }
 
 func hasEWMA(s *history.Series) bool {
@@ -317,14 +535,9 @@ func ewmaPlot(s *history.Series, set *history.Settings, xmin, xmax float64) (*pl
 		p.Add(l)
 		limits = l
 	}
-	zl, zs, err := plotter.NewLinePoints(z)
-	if err != nil {
+	if err := addTrace(p, &leg, z, sessionColor, 1.2, fmt.Sprintf("EWMA, λ = %g", lam)); err != nil {
 		return nil, leg, err
 	}
-	zl.Color, zl.Width = sessionColor, vg.Points(1.2)
-	zs.Color, zs.Shape, zs.Radius = sessionColor, draw.CircleGlyph{}, vg.Points(1.8)
-	p.Add(zl, zs)
-	leg.Add(fmt.Sprintf("EWMA, λ = %g", lam), zl, zs)
 	if limits != nil {
 		leg.Add("EWMA limits", limits)
 	}
@@ -367,42 +580,40 @@ func setRange(p *plot.Plot, xmin, xmax, ylo, yhi, top float64) {
 	p.Y.Min, p.Y.Max = ylo-0.08*r, yhi+top*r
 }
 
-// drawChart lays out the control chart (and the EWMA panel under it, when
-// bot is not nil) with their data areas aligned, the legends beside them,
-// and returns the SVG.
-func drawChart(top, bot *plot.Plot, legTop, legBot *plot.Legend) ([]byte, error) {
+// drawChart lays out the panels top to bottom with their data areas
+// aligned, the legends beside them, and returns the SVG.
+func drawChart(panels []panel) ([]byte, error) {
 	c := vgsvg.New(histW, histH)
 	dc := draw.New(c)
 	area := dc
 	area.Max.X -= histLegend
 	legX := area.Max.X + vg.Points(10)
-	topC := area
-	if bot == nil {
-		top.Draw(topC)
-		drawLegend(dc, legTop, legX, top.DataCanvas(topC).Max.Y)
-	} else {
-		botC := area
-		topC.Min.Y += histEWMA
-		botC.Max.Y = histEWMA
-		// Align the data areas: the panels' y labels differ in width.
-		for range 2 {
-			dt, db := top.DataCanvas(topC), bot.DataCanvas(botC)
-			if d := dt.Min.X - db.Min.X; d > 0 {
-				botC.Min.X += d
-			} else {
-				topC.Min.X -= d
-			}
-			dt, db = top.DataCanvas(topC), bot.DataCanvas(botC)
-			if d := dt.Max.X - db.Max.X; d > 0 {
-				topC.Max.X -= d
-			} else {
-				botC.Max.X += d
-			}
+	cs := make([]draw.Canvas, len(panels))
+	y := area.Min.Y
+	for i := len(panels) - 1; i >= 0; i-- {
+		cs[i] = area
+		cs[i].Min.Y = y
+		if panels[i].h > 0 {
+			cs[i].Max.Y = y + panels[i].h
+			y += panels[i].h
 		}
-		top.Draw(topC)
-		bot.Draw(botC)
-		drawLegend(dc, legTop, legX, top.DataCanvas(topC).Max.Y)
-		drawLegend(dc, legBot, legX, bot.DataCanvas(botC).Max.Y)
+	}
+	// Align the data areas: the panels' y labels differ in width.
+	for range 2 {
+		left, right := vg.Length(math.Inf(-1)), vg.Length(math.Inf(1))
+		for i, p := range panels {
+			d := p.p.DataCanvas(cs[i])
+			left, right = max(left, d.Min.X), min(right, d.Max.X)
+		}
+		for i, p := range panels {
+			d := p.p.DataCanvas(cs[i])
+			cs[i].Min.X += left - d.Min.X
+			cs[i].Max.X -= d.Max.X - right
+		}
+	}
+	for i, p := range panels {
+		p.p.Draw(cs[i])
+		drawLegend(dc, p.leg, legX, p.p.DataCanvas(cs[i]).Max.Y)
 	}
 	var buf bytes.Buffer
 	if _, err := c.WriteTo(&buf); err != nil {

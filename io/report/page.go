@@ -21,7 +21,29 @@ type Page struct {
 	// order of reference, from the smallest reference to the largest.
 	// Optional.
 	Tolerance map[string]phantom.Tolerance
+	// WarnFraction is the share of its tolerance beyond which a passing
+	// vial is shown as warn; 0 means DefaultWarnFraction, a negative
+	// value switches it off.
+	WarnFraction float64
+	// History holds, per vial and quantity (key HistoryKey(id, q)), why
+	// the stability history flags it (for example "drift −5.0 %/yr"); a
+	// passing vial with an entry is shown as warn. Optional.
+	History map[string]string
 }
+
+// DefaultWarnFraction: a passing vial whose deviation uses more than 80 %
+// of its tolerance is shown as warn — one more step of the usual
+// session-to-session scatter (1–2 %, check-values §4.2) would take a vial
+// with a 5 % tolerance out of it (a choice, common practice).
+const DefaultWarnFraction = 0.8
+
+// Warn is the report's verdict for a vial inside its tolerance that its
+// history flags or whose deviation is beyond WarnFraction of the
+// tolerance.
+const Warn = "warn"
+
+// HistoryKey is the key of Page.History for a vial and quantity.
+func HistoryKey(id, quantity string) string { return id + "\x00" + quantity }
 
 // View is one measured map: the slice the vials were measured on and the
 // regions measured.

@@ -216,6 +216,9 @@ func (b *devBars) Plot(c draw.Canvas, plt *plot.Plot) {
 			y0, y1 := trY(0), trY(d)
 			pts := []vg.Point{{X: x - hw, Y: y0}, {X: x + hw, Y: y0}, {X: x + hw, Y: y1}, {X: x - hw, Y: y1}}
 			c.FillPolygon(verdictColor(b.verdict[i]), c.ClipPolygonY(pts))
+			if b.verdict[i] == phantom.Fail {
+				hatch(&c, x-hw, x+hw, min(y0, y1), max(y0, y1))
+			}
 		}
 		if t := b.tol[i]; !math.IsNaN(t) {
 			ls := draw.LineStyle{Color: color.RGBA{40, 40, 40, 255}, Width: vg.Points(1.2), Dashes: []vg.Length{vg.Points(3), vg.Points(2)}}
@@ -244,6 +247,26 @@ type swatch color.RGBA
 
 func (s swatch) Thumbnail(c *draw.Canvas) {
 	c.FillPolygon(color.RGBA(s), []vg.Point{c.Min, {X: c.Max.X, Y: c.Min.Y}, c.Max, {X: c.Min.X, Y: c.Max.Y}})
+}
+
+// hatchSwatch is the legend thumbnail of a failed vial's bar.
+type hatchSwatch color.RGBA
+
+func (s hatchSwatch) Thumbnail(c *draw.Canvas) {
+	swatch(s).Thumbnail(c)
+	hatch(c, c.Min.X, c.Max.X, c.Min.Y, c.Max.Y)
+}
+
+// hatch outlines the box in black and draws white horizontal stripes
+// across it, so a failed bar differs from a passing one in greyscale
+// print, not by colour alone.
+func hatch(c *draw.Canvas, x0, x1, y0, y1 vg.Length) {
+	white := draw.LineStyle{Color: color.White, Width: vg.Points(1)}
+	for y := y0 + vg.Points(2.5); y < y1-vg.Points(1); y += vg.Points(3.5) {
+		c.StrokeLines(white, c.ClipLinesY([]vg.Point{{X: x0, Y: y}, {X: x1, Y: y}})...)
+	}
+	black := draw.LineStyle{Color: color.Black, Width: vg.Points(1.4)}
+	c.StrokeLines(black, c.ClipLinesY([]vg.Point{{X: x0, Y: y0}, {X: x1, Y: y0}, {X: x1, Y: y1}, {X: x0, Y: y1}, {X: x0, Y: y0}})...)
 }
 
 // dashMark is the legend thumbnail of the tolerance marks.
@@ -287,7 +310,7 @@ func deviationSVG(q string, vials []*phantom.VialQA) ([]byte, error) {
 	zero.Color = color.RGBA{0, 0, 0, 255}
 	p.Add(zero)
 	p.Legend.Add(phantom.Pass, swatch(passColor))
-	p.Legend.Add(phantom.Fail, swatch(failColor))
+	p.Legend.Add(phantom.Fail, hatchSwatch(failColor))
 	p.Legend.Add("± tolerance", dashMark{})
 	p.Legend.Top = true
 	p.Legend.ThumbnailWidth = vg.Points(18)

@@ -228,7 +228,9 @@ func TestWriteStructure(t *testing.T) {
 	s := string(b)
 	for _, want := range []string{
 		"<title>demo phantom – phantom QA 2026-03-02 08:15</title>",
-		`<div class="verdict fail" id="verdict">Session verdict: FAIL<small>18 of 20 vial measurements passed, 1 failed, 1 not measured</small></div>`,
+		`<div class="verdict fail" id="verdict">Session verdict: FAIL<small>18 of 20 vial measurements passed, 0 warn, 1 failed, 1 not measured</small></div>`,
+		// The headline names the failing vial, deviation and tolerance in % and ms.
+		"<li>Failed: A4 T1 &#43;9.0 % (&#43;36.0 ms) against a tolerance of ±5.0 % (±20.0 ms).</li>",
 		mapset.Caution,
 		"MR-3", "1.50 T", "20.4 °C",
 		"<h2>T1</h2>", "<h2>T2</h2>",
@@ -254,7 +256,9 @@ func TestWriteStructure(t *testing.T) {
 		for i, dev := range []float64{t1Dev[k], t2Dev[k]} {
 			_, rest, _ = strings.Cut(rest, "<tr><td>"+id+"</td>")
 			row, _, _ := strings.Cut(rest, "</tr>")
-			want := strings.ReplaceAll(fmt.Sprintf(`<td class="num">%+.1f %%</td>`, 100*dev), "+", "&#43;")
+			// The minus is U+2212 (typographic), the plus escaped; the
+			// deviation in ms follows in brackets.
+			want := strings.ReplaceAll(strings.Replace(fmt.Sprintf(`<td class="num">%+.1f %% (`, 100*dev), "-", "−", 1), "+", "&#43;")
 			if i == 1 && k == 9 {
 				want = `<td class="num">–</td>` // not measured
 			}
@@ -263,7 +267,7 @@ func TestWriteStructure(t *testing.T) {
 			}
 		}
 	}
-	if !strings.Contains(s, `<td class="v-fail">fail</td>`) || !strings.Contains(s, `<td class="v-not-measured">not-measured</td><td>2 usable voxels</td>`) {
+	if !strings.Contains(s, `<td class="v-fail"><span class="mark">✗</span>fail</td>`) || !strings.Contains(s, `<td class="v-not-measured"><span class="mark">–</span>not-measured</td><td>2 usable voxels</td>`) {
 		t.Error("fail and not-measured rows missing")
 	}
 	// Self-contained: no scripts, no external references.
@@ -383,5 +387,56 @@ func TestAspect(t *testing.T) {
 	cfg, err := png.DecodeConfig(bytes.NewReader(m))
 	if err != nil || cfg.Width != previewWidth || cfg.Height != previewWidth {
 		t.Errorf("rendered %dx%d (%v)", cfg.Width, cfg.Height, err)
+	}
+}
+
+// TestWarnVerdict: a passing vial using 90 % of its tolerance, and one
+// flagged by its history, are shown as warn, named in the headline with
+// deviation and tolerance in % and ms; WarnFraction < 0 switches the
+// fraction rule off.
+func TestWarnVerdict(t *testing.T) {
+	p := testPage(false)
+	var near, flagged *phantom.VialQA
+	for i := range p.QA.Vials {
+		r := &p.QA.Vials[i]
+		if r.Verdict != phantom.Pass || !(r.Tolerance > 0) {
+			continue
+		}
+		switch {
+		case near == nil:
+			near = r
+		case flagged == nil:
+			flagged = r
+		}
+	}
+	near.Median = near.Reference + 0.9*near.Tolerance
+	near.Deviation = 100 * (near.Median - near.Reference) / near.Reference
+	p.History = map[string]string{HistoryKey(flagged.ID, flagged.Quantity): "drift −4.0 %/yr"}
+	var b bytes.Buffer
+	if err := Render(&b, p); err != nil {
+		t.Fatal(err)
+	}
+	s := b.String()
+	for _, want := range []string{
+		"16 of 20 vial measurements passed, 2 warn, 1 failed, 1 not measured",
+		"Warn: " + near.ID + " " + near.Quantity + " &#43;" + fmt.Sprintf("%.1f", near.Deviation),
+		"90 % of the tolerance used",
+		"history: drift −4.0 %/yr",
+		`<td class="v-warn"><span class="mark">!</span>warn</td>`,
+	} {
+		if !strings.Contains(s, want) {
+			t.Errorf("report lacks %q", want)
+		}
+	}
+	if strings.Count(s, `class="v-warn"`) != 2 {
+		t.Errorf("%d warn rows, want 2", strings.Count(s, `class="v-warn"`))
+	}
+	p.WarnFraction = -1
+	b.Reset()
+	if err := Render(&b, p); err != nil {
+		t.Fatal(err)
+	}
+	if n := strings.Count(b.String(), `class="v-warn"`); n != 1 {
+		t.Errorf("with the fraction rule off: %d warn rows, want 1 (the history flag)", n)
 	}
 }

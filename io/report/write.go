@@ -11,6 +11,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 
 	"github.com/tauvox/tauvox/io/mapset"
@@ -94,6 +95,8 @@ func writeAtomic(path string, fn func(io.Writer) error) (err error) {
 type pageData struct {
 	Phantom, Scanner, When, Field, Temperature string
 	Verdict, VerdictText, Counts               string
+	Headline                                   []string
+	WarnText                                   string
 	Extrapolated                               bool
 	Caution, Tool, Format                      string
 	Quantities                                 []quantityData
@@ -112,6 +115,7 @@ type quantityData struct {
 
 type rowData struct {
 	ID, Quantity, N, Mean, Median, SD, Reference, Deviation, Tolerance, Verdict, Note string
+	Mark                                                                              string // a shape for the verdict, readable in greyscale
 }
 
 type seriesData struct {
@@ -143,8 +147,23 @@ func build(p *Page) (*pageData, error) {
 	if d.Caution == "" {
 		d.Caution = mapset.Caution
 	}
+	frac := p.WarnFraction
+	if frac == 0 {
+		frac = DefaultWarnFraction
+	}
+	shown := make([]string, len(qa.Vials))
+	for i := range qa.Vials {
+		shown[i] = shownVerdict(&qa.Vials[i], frac, p.History)
+		if shown[i] == Warn && d.Verdict == phantom.Pass {
+			d.Verdict = Warn
+		}
+	}
 	d.VerdictText = strings.ToUpper(strings.ReplaceAll(d.Verdict, "-", " "))
-	d.Counts = counts(qa.Vials)
+	d.Counts = counts(qa.Vials, shown)
+	d.Headline = headlines(qa.Vials, shown, frac, p.History)
+	if frac > 0 {
+		d.WarnText = fmt.Sprintf(" A passing vial is shown as warn when its deviation uses more than %g %% of its tolerance or its stability history flags it.", 100*frac)
+	}
 
 	byQ := map[string][]*phantom.VialQA{}
 	var order []string
@@ -161,7 +180,15 @@ func build(p *Page) (*pageData, error) {
 		r := &qa.Vials[i]
 		addQ(r.Quantity)
 		byQ[r.Quantity] = append(byQ[r.Quantity], r)
-		d.Rows = append(d.Rows, row(r))
+		rd := row(r)
+		if shown[i] == Warn {
+			rd.Verdict = Warn
+			if why := p.History[HistoryKey(r.ID, r.Quantity)]; why != "" {
+				rd.Note = strings.TrimPrefix(rd.Note+"; history: "+why, "; ")
+			}
+		}
+		rd.Mark = verdictMark(rd.Verdict)
+		d.Rows = append(d.Rows, rd)
 	}
 	views := map[string]*View{}
 	for i := range p.Views {
@@ -173,7 +200,13 @@ func build(p *Page) (*pageData, error) {
 	}
 	for k, q := range order {
 		vials := byQ[q]
-		qd := quantityData{Name: orDash(q), Anchor: fmt.Sprint(k + 1), Unit: preview.DefaultUnit(q), Counts: counts(derefs(vials))}
+		var qShown []string
+		for i := range qa.Vials {
+			if qa.Vials[i].Quantity == q {
+				qShown = append(qShown, shown[i])
+			}
+		}
+		qd := quantityData{Name: orDash(q), Anchor: fmt.Sprint(k + 1), Unit: preview.DefaultUnit(q), Counts: counts(derefs(vials), qShown)}
 		if v := views[q]; v != nil {
 			if v.Unit != "" {
 				qd.Unit = v.Unit
@@ -255,25 +288,104 @@ func dataURI(mime string, b []byte) template.URL {
 
 func verdictClass(v string) string {
 	switch v {
-	case phantom.Pass, phantom.Fail:
+	case phantom.Pass, phantom.Fail, Warn:
 		return v
 	}
 	return phantom.NotMeasured
 }
 
-func counts(vials []phantom.VialQA) string {
-	var pass, fail, nm int
-	for _, r := range vials {
-		switch r.Verdict {
+// counts summarises the verdicts shown (shown[i] for vials[i]).
+func counts(vials []phantom.VialQA, shown []string) string {
+	var pass, warn, fail, nm int
+	for i := range vials {
+		switch shown[i] {
 		case phantom.Pass:
 			pass++
+		case Warn:
+			warn++
 		case phantom.Fail:
 			fail++
 		default:
 			nm++
 		}
 	}
-	return fmt.Sprintf("%d of %d vial measurements passed, %d failed, %d not measured", pass, len(vials), fail, nm)
+	return fmt.Sprintf("%d of %d vial measurements passed, %d warn, %d failed, %d not measured", pass, len(vials), warn, fail, nm)
+}
+
+// shownVerdict is the verdict the report shows for r: warn for a passing
+// vial beyond frac of its tolerance (frac > 0) or flagged by its history.
+func shownVerdict(r *phantom.VialQA, frac float64, hist map[string]string) string {
+	if r.Verdict != phantom.Pass {
+		return r.Verdict
+	}
+	if hist[HistoryKey(r.ID, r.Quantity)] != "" {
+		return Warn
+	}
+	if frac > 0 && r.Tolerance > 0 && math.Abs(r.Median-r.Reference) > frac*r.Tolerance {
+		return Warn
+	}
+	return phantom.Pass
+}
+
+// verdictMark is a shape that tells the verdicts apart without colour.
+func verdictMark(v string) string {
+	switch v {
+	case phantom.Pass:
+		return "✓"
+	case Warn:
+		return "!"
+	case phantom.Fail:
+		return "✗"
+	}
+	return "–"
+}
+
+// headlines name the failing and warned vials with their deviation and
+// tolerance in percent and in ms.
+func headlines(vials []phantom.VialQA, shown []string, frac float64, hist map[string]string) []string {
+	var fail, warn []string
+	for i := range vials {
+		r := &vials[i]
+		if shown[i] != phantom.Fail && shown[i] != Warn {
+			continue
+		}
+		txt := fmt.Sprintf("%s %s %s (%s ms) against a tolerance of ±%s (±%s ms)", display(r.ID, 24), display(r.Quantity, 12),
+			pctText(r.Deviation), signedNum(r.Median-r.Reference), pctText(100 * r.Tolerance / r.Reference)[len("+"):], num(r.Tolerance, 1, ""))
+		if shown[i] == phantom.Fail {
+			fail = append(fail, txt)
+			continue
+		}
+		if why := hist[HistoryKey(r.ID, r.Quantity)]; why != "" {
+			txt += "; history: " + why
+		} else {
+			txt += fmt.Sprintf("; %.0f %% of the tolerance used", 100*math.Abs(r.Median-r.Reference)/r.Tolerance)
+		}
+		warn = append(warn, txt)
+	}
+	var out []string
+	if len(fail) > 0 {
+		out = append(out, "Failed: "+strings.Join(fail, "; ")+".")
+	}
+	if len(warn) > 0 {
+		out = append(out, "Warn: "+strings.Join(warn, "; ")+".")
+	}
+	return out
+}
+
+// pctText is a signed percentage with one decimal (U+2212 for minus).
+func pctText(v float64) string {
+	if !finite(v) {
+		return "–"
+	}
+	return strings.Replace(fmt.Sprintf("%+.1f %%", v), "-", "−", 1)
+}
+
+// signedNum is a signed number with one decimal (U+2212 for minus).
+func signedNum(v float64) string {
+	if !finite(v) {
+		return "–"
+	}
+	return strings.Replace(fmt.Sprintf("%+.1f", v), "-", "−", 1)
 }
 
 func row(r *phantom.VialQA) rowData {
@@ -286,11 +398,14 @@ func row(r *phantom.VialQA) rowData {
 	if r.Reference > 0 {
 		rd.Reference = num(r.Reference, 1, "") + " ± " + num(r.RefUncPct, 1, " %")
 		if rd.Verdict != phantom.NotMeasured {
-			rd.Deviation = fmt.Sprintf("%+.1f %%", r.Deviation)
+			rd.Deviation = pctText(r.Deviation) + " (" + signedNum(r.Median-r.Reference) + " ms)"
 		}
 	}
 	if r.Tolerance > 0 {
-		rd.Tolerance = "± " + num(r.Tolerance, 1, "")
+		rd.Tolerance = "± " + num(r.Tolerance, 1, " ms")
+		if r.Reference > 0 {
+			rd.Tolerance = "± " + num(100*r.Tolerance/r.Reference, 1, " %") + " (± " + num(r.Tolerance, 1, " ms") + ")"
+		}
 	}
 	return rd
 }
@@ -360,7 +475,7 @@ func protocol(ps []phantom.Protocol) string {
 				txt = append(txt, fmt.Sprintf("… (%d values)", len(vals)))
 				break
 			}
-			txt = append(txt, fmt.Sprintf("%g", v))
+			txt = append(txt, strconv.FormatFloat(v, 'g', 6, 64))
 		}
 		parts = append(parts, f.name+" "+strings.Join(txt, ", ")+f.unit)
 	}

@@ -264,7 +264,10 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 	for k, v := range extra {
 		side[k] = v
 	}
-	put := func(key string, get func(volume.Acquisition) float64, scale float64) {
+	// div converts ms to s by division, not by multiplying with 1e-3: the
+	// division is correctly rounded, so 700 ms is written 0.7, not
+	// 0.7000000000000001 (and 0.7 s reads back as exactly 700 ms).
+	put := func(key string, get func(volume.Acquisition) float64, div float64) {
 		vals := volume.Values(nil, im.Acq, get)
 		if len(vals) == 0 || math.IsNaN(vals[0]) {
 			return
@@ -279,18 +282,18 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 			}
 		}
 		if same {
-			side[key] = vals[0] * scale
+			side[key] = vals[0] / div
 			return
 		}
 		out := make([]float64, len(vals))
 		for i, v := range vals {
-			out[i] = v * scale
+			out[i] = v / div
 		}
 		side[key] = out
 	}
-	put("EchoTime", func(a volume.Acquisition) float64 { return a.EchoTime }, 1e-3)
-	put("InversionTime", func(a volume.Acquisition) float64 { return a.InversionTime }, 1e-3)
-	put("RepetitionTime", func(a volume.Acquisition) float64 { return a.RepetitionTime }, 1e-3)
+	put("EchoTime", func(a volume.Acquisition) float64 { return a.EchoTime }, 1000)
+	put("InversionTime", func(a volume.Acquisition) float64 { return a.InversionTime }, 1000)
+	put("RepetitionTime", func(a volume.Acquisition) float64 { return a.RepetitionTime }, 1000)
 	put("FlipAngle", func(a volume.Acquisition) float64 { return a.FlipAngle }, 1)
 	if f := im.Source.FieldStrength; f > 0 {
 		side["MagneticFieldStrength"] = f

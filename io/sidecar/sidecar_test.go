@@ -287,3 +287,12 @@ func FuzzRead(f *testing.F) {
 		}
 	})
 }
+
+// TestTidy: rounding residue goes, strings and short numbers stay.
+func TestTidy(t *testing.T) {
+	in := `{"a": 700.0000000000001, "b": [7.699999999999999, -0.7000000000000001], "s": "1.00000000000000001 \"2.3000000000000003\"", "c": 12, "d": 0.9407126783277835, "e": 1e-7, "f": 95.66499999999999, "g": 1.2345678901234567e-9}`
+	want := `{"a": 700, "b": [7.7, -0.7], "s": "1.00000000000000001 \"2.3000000000000003\"", "c": 12, "d": 0.940712678328, "e": 1e-7, "f": 95.665, "g": 1.23456789012e-09}`
+	if got := string(Tidy([]byte(in))); got != want {
+		t.Errorf("Tidy\n got %s\nwant %s", got, want)
+	}
+}

@@ -229,8 +229,9 @@ func TestWesternElectricRules(t *testing.T) {
 // TestEWMALimitFactor: the asymptotic EWMA limit factor √(λ/(2−λ)) is
 // 0.3333 for λ = 0.2 (check-values §2.4 [C]).
 func TestEWMALimitFactor(t *testing.T) {
-	s := &Series{Value: make([]float64, 200), BaselineSD: 1}
-	s.ewma(&Settings{L: 1})
+	s := &Series{Value: make([]float64, 200), InBaseline: make([]bool, 200)}
+	s.Floor = 1
+	s.ewma(&Settings{L: 1}, math.NaN(), 0)
 	if w := s.EWMAHigh[199]; math.Abs(w-0.3333) > 5e-5 {
 		t.Errorf("asymptotic half-width %g, want 0.3333", w)
 	}

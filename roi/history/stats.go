@@ -1,26 +1,76 @@
 package history
 
 import (
+	"fmt"
 	"math"
 	"sort"
+	"strings"
+	"sync"
 	"time"
 
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
-// Baseline selects the in-control sessions the limits come from: the first
-// N sessions (default 12 when both are zero), or those between From and To
-// inclusive when From is set. Limits need a long baseline: 20–25 in-control
-// sessions are recommended (check-values §4.1, common practice); a short
-// one underestimates σ and raises false alarms.
+// Baseline selects the in-control sessions the fixed limits come from:
+// the first N sessions (default DefaultBaseline when both are zero), or
+// those between From and To inclusive when From is set. Until a series
+// has that many sessions it is judged leave-one-out (see Settings).
 type Baseline struct {
 	N        int
 	From, To time.Time
 }
 
+// Defaults of Settings, chosen with the false-alarm simulation in
+// falsealarm_test.go (docs/validation.md, "Stability charts").
+const (
+	// DefaultBaseline is the baseline length: 12 sessions, a year of
+	// monthly QA. Limits need a long baseline (20–25 in-control sessions
+	// are recommended, check-values §4.1, common practice); until it is
+	// complete each session is judged against all the others.
+	DefaultBaseline = 12
+	// DefaultMinSessions is the fewest finite sessions a series needs
+	// before any rule judges it: with fewer the scatter cannot be told
+	// from a change.
+	DefaultMinSessions = 5
+	// DefaultMinLimit is the smallest half-width of the ±3 SD control
+	// limits, in percentage points of deviation: 3, so the SD the rules
+	// use is at least 1 %, the session-to-session repeatability phantom
+	// programmes report for good sequences (CoV < 1–2 %, [Captur2020],
+	// check-values §4.2). A change smaller than that is what a repeat scan
+	// of the same phantom shows, not a scanner problem.
+	DefaultMinLimit = 3
+	// DefaultHorizon is how far ahead a significant drift is projected
+	// (at the end of its 95 % interval nearest zero) to decide whether it
+	// crosses the tolerance: one year, the usual interval of a scanner's
+	// annual acceptance check (common practice).
+	DefaultHorizon = 1.0
+)
+
+// DefaultRules are the rules that flag a session unless Settings.Rules
+// says otherwise: 1 (beyond 3 SD), 2 (2 of 3 beyond 2 SD), 5 (EWMA) and 6
+// (drift). Rules 3 and 4 are computed when asked for but off by default:
+// with them the in-control rate is above 1 in 100 sessions even with
+// known σ (the run rules are meant for setting up a chart, Phase I;
+// routine monitoring relies on the 3 SD test, ISO 7870-2 §8.2.7 as cited
+// in check-values §4.1), see the simulation table in docs/validation.md.
+var DefaultRules = []int{1, 2, RuleEWMA, RuleDrift}
+
 // Settings of the stability statistics; the zero value is right.
 type Settings struct {
 	Baseline Baseline
+	// MinSessions is the fewest finite sessions to judge a series;
+	// default DefaultMinSessions (at least 3).
+	MinSessions int
+	// MinLimit is the smallest ±3 SD limit half-width in percentage
+	// points; default DefaultMinLimit. Negative means no user floor (the
+	// measurement's own floor still applies).
+	MinLimit float64
+	// Rules lists the rules that flag (1–4 Western Electric, RuleEWMA,
+	// RuleDrift); nil means DefaultRules.
+	Rules []int
+	// Horizon is the projection of a drift, in years; default
+	// DefaultHorizon.
+	Horizon float64
 	// Lambda is the EWMA weight; default 0.2 (the usual 0.2–0.3, NIST/
 	// SEMATECH e-Handbook §6.3.2.4).
 	Lambda float64
@@ -34,10 +84,88 @@ type Settings struct {
 	MinDrift float64
 }
 
+func (set *Settings) baselineN() int {
+	if set.Baseline.N > 0 {
+		return set.Baseline.N
+	}
+	return DefaultBaseline
+}
+
+func (set *Settings) minSessions() int {
+	if set.MinSessions > 0 {
+		return max(3, set.MinSessions)
+	}
+	return DefaultMinSessions
+}
+
+func (set *Settings) minLimit() float64 {
+	switch {
+	case set.MinLimit < 0:
+		return 0
+	case set.MinLimit == 0:
+		return DefaultMinLimit
+	}
+	return set.MinLimit
+}
+
+func (set *Settings) horizon() float64 {
+	if set.Horizon > 0 {
+		return set.Horizon
+	}
+	return DefaultHorizon
+}
+
+func (set *Settings) rules() []int {
+	if set.Rules == nil {
+		return DefaultRules
+	}
+	return set.Rules
+}
+
+// RuleOn reports whether rule k flags sessions under these settings.
+func (set *Settings) RuleOn(k int) bool {
+	for _, r := range set.rules() {
+		if r == k {
+			return true
+		}
+	}
+	return false
+}
+
 // Rule numbers beyond the four Western Electric rules.
 const (
 	RuleEWMA  = 5 // EWMA statistic beyond its limits
 	RuleDrift = 6 // significant linear drift of at least MinDrift per year
+)
+
+// Modes say how a session was judged (Series.Mode).
+const (
+	// ModeTooFew: the series has fewer than MinSessions finite sessions;
+	// nothing is judged.
+	ModeTooFew = "too-few"
+	// ModeLeaveOneOut: judged against the median and scaled MAD of the
+	// series' other sessions (all of them while the baseline is
+	// incomplete; the other baseline sessions for a baseline session).
+	ModeLeaveOneOut = "leave-one-out"
+	// ModeFixed: judged against the fixed limits of the complete
+	// baseline (routine, Phase II monitoring).
+	ModeFixed = "fixed-baseline"
+	// ModeNoValue: the session has no finite value.
+	ModeNoValue = "no-value"
+)
+
+// Findings of a series, most urgent first (Series.Finding).
+const (
+	// FindingAction: the last session is outside the vial's tolerance,
+	// or a significant drift crosses the tolerance within the horizon.
+	FindingAction = "action"
+	// FindingWatch: a statistical signal (a rule) inside tolerance, or an
+	// earlier session outside tolerance.
+	FindingWatch = "watch"
+	// FindingOK: judged, nothing found.
+	FindingOK = "ok"
+	// FindingTooFew: not enough sessions to judge (never a pass).
+	FindingTooFew = "too-few"
 )
 
 // Series is the story of one scanner × vial × quantity.
@@ -46,33 +174,71 @@ type Series struct {
 	Points                  []Point
 	// Value is what the statistics use per point: the deviation from the
 	// reference (percent) or, without a reference, the percent difference
-	// from the baseline mean of the median.
+	// from the baseline median of the median.
 	Value    []float64
 	Relative bool // Value is relative to the baseline (no reference)
-	// Baseline statistics of Value.
+	// Baseline statistics of Value: the number of finite baseline
+	// sessions, their median (BaselineMean, the centre line) and their
+	// robust SD (1.4826·MAD, before the floor).
 	BaselineN    int
 	BaselineMean float64
 	BaselineSD   float64
-	// Rules[i] lists the Western Electric rules (1–4) that point i
-	// completes. Baseline points set the limits and are not judged
-	// (routine, Phase II monitoring); windows may reach back into them.
+	// Complete is set when the baseline has all its sessions (fixed
+	// limits judge the sessions after it).
+	Complete bool
+	// Sessions counts the finite values; MinSessions is the number
+	// needed to judge. Finding is FindingTooFew when Sessions <
+	// MinSessions.
+	Sessions, MinSessions int
+	// Floor is the smallest SD the rules use (percentage points): the
+	// largest of the median standard error of the vial (median over
+	// sessions of 1.2533·SD/√n, relative to the reference), the
+	// reference uncertainty and MinLimit/3. FloorFrom names which.
+	Floor     float64
+	FloorFrom string
+	// Per point: Mode (ModeTooFew, ModeLeaveOneOut, ModeFixed or
+	// ModeNoValue), the centre and SD that judged it (NaN when not
+	// judged; SD at least Floor), the tolerance in percent of the
+	// reference (NaN when none) and whether the point is outside it.
+	Mode    []string
+	Centre  []float64
+	SD      []float64
+	TolPct  []float64
+	Outside []bool
+	// Rules[i] lists the rules (1–4, of those switched on) that point i
+	// completes.
 	Rules [][]int
 	// InBaseline marks the baseline points.
 	InBaseline []bool
-	// EWMA statistic and its limits per point; EWMAOut marks points beyond
-	// them.
+	// EWMA statistic and its limits per point (NaN until the baseline is
+	// complete); EWMAOut marks points after the baseline beyond them.
 	EWMA, EWMALow, EWMAHigh []float64
 	EWMAOut                 []bool
 	// Drift by least squares against time: slope in percentage points per
 	// year, its 95 % confidence interval (Student t with n − 2 degrees of
 	// freedom), NaN with fewer than 3 points or a zero time span.
 	Slope, SlopeLow, SlopeHigh float64
-	// Drifting is set when the slope's 95 % interval excludes zero and
-	// |slope| ≥ MinDrift.
+	// Drifting is set when the slope's 95 % interval excludes zero,
+	// |slope| ≥ MinDrift and the series has MinSessions sessions.
 	Drifting bool
+	// CrossYears is, for a drifting series with a tolerance, the time in
+	// years from the last session until the fitted line reaches the
+	// tolerance at the interval's end nearest zero (0 when already
+	// beyond; +Inf when the slope points inwards); NaN otherwise.
+	CrossYears float64
 	// Violations lists the distinct rules hit, in order: 1–4 Western
 	// Electric, RuleEWMA, RuleDrift.
 	Violations []int
+	// Finding is FindingAction, FindingWatch, FindingOK or FindingTooFew;
+	// Reasons say why, one short phrase each.
+	Finding string
+	Reasons []string
+}
+
+// Flagged reports whether point i carries a rule or lies outside the
+// tolerance (an action or watch at that session).
+func (s *Series) Flagged(i int) bool {
+	return len(s.Rules[i]) > 0 || s.EWMAOut[i] || s.Outside[i]
 }
 
 // year is the length of a mean Gregorian year.
@@ -100,26 +266,32 @@ func Analyse(points []Point, set *Settings) []*Series {
 	return out
 }
 
-func (s *Series) baselineIndex(b Baseline) []int {
+// baselineIndex returns the baseline points and whether the baseline is
+// complete.
+func (s *Series) baselineIndex(set *Settings) ([]int, bool) {
 	var idx []int
+	b := set.Baseline
 	if !b.From.IsZero() {
+		after := false
 		for i, p := range s.Points {
+			if math.IsNaN(s.rawValue(i)) {
+				continue
+			}
 			if !p.Time.Before(b.From) && (b.To.IsZero() || !p.Time.After(b.To)) {
 				idx = append(idx, i)
+			} else if !b.To.IsZero() && p.Time.After(b.To) {
+				after = true
 			}
 		}
-		return idx
+		return idx, after && len(idx) >= set.minSessions()
 	}
-	n := b.N
-	if n == 0 {
-		n = 12
-	}
+	n := set.baselineN()
 	for i := range s.Points {
 		if len(idx) < n && !math.IsNaN(s.rawValue(i)) {
 			idx = append(idx, i)
 		}
 	}
-	return idx
+	return idx, len(idx) == n
 }
 
 // rawValue is the deviation when there is one, else the median.
@@ -139,53 +311,98 @@ func (s *Series) analyse(set *Settings) {
 			break
 		}
 	}
-	base := s.baselineIndex(set.Baseline)
+	base, complete := s.baselineIndex(set)
 	s.Value = make([]float64, n)
 	for i := range s.Points {
 		s.Value[i] = s.rawValue(i)
 	}
 	if s.Relative {
-		var m float64
-		k := 0
-		for _, i := range base {
-			if v := s.Value[i]; !math.IsNaN(v) {
-				m += v
-				k++
-			}
-		}
-		m /= float64(k)
+		m := median(s.Value, base, -1, nil)
 		for i, v := range s.Value {
 			s.Value[i] = 100 * (v - m) / m
 		}
 	}
-	s.BaselineMean, s.BaselineSD, s.BaselineN = meanSD(s.Value, base)
 	s.InBaseline = make([]bool, n)
 	for _, i := range base {
 		s.InBaseline[i] = true
 	}
-	s.Rules = westernElectric(s.Value, s.BaselineMean, s.BaselineSD)
-	for i := range s.Rules {
-		if s.InBaseline[i] {
-			s.Rules[i] = nil
+	s.Mode, s.Centre, s.SD, s.TolPct = make([]string, n), nanSlice(n), nanSlice(n), nanSlice(n)
+	s.Outside, s.Rules = make([]bool, n), make([][]int, n)
+	var finite []int
+	for i, v := range s.Value {
+		if math.IsNaN(v) {
+			s.Mode[i] = ModeNoValue
+			continue
+		}
+		finite = append(finite, i)
+		p := s.Points[i]
+		if !s.Relative && p.Reference > 0 && p.Tolerance > 0 {
+			s.TolPct[i] = 100 * p.Tolerance / p.Reference
+			s.Outside[i] = math.Abs(v) > s.TolPct[i]
 		}
 	}
-	s.ewma(set)
+	s.Sessions, s.MinSessions = len(finite), set.minSessions()
+	s.Floor, s.FloorFrom = s.floor(set)
+	var scratch []float64
+	s.BaselineMean = median(s.Value, base, -1, &scratch)
+	s.BaselineSD = madSD(s.Value, base, -1, s.BaselineMean, &scratch)
+	s.BaselineN = len(base)
+	s.Complete = complete && s.Sessions >= s.MinSessions
+	// Judge each finite point: leave-one-out among all (baseline
+	// incomplete) or among the baseline (a baseline point), else against
+	// the fixed limits.
+	fixedSD, baseSD, baseK := math.NaN(), math.NaN(), 0
+	if s.Complete {
+		fixedSD = limitSD(s.Value, base, -1, s.BaselineMean, s.Floor, &scratch)
+		baseSD, baseK = poolSD(s.Value, base, -1, s.BaselineMean, &scratch)
+	}
+	for _, i := range finite {
+		switch {
+		case s.Sessions < s.MinSessions:
+			s.Mode[i] = ModeTooFew
+		case s.Complete && !s.InBaseline[i]:
+			s.Mode[i] = ModeFixed
+			s.Centre[i], s.SD[i] = s.BaselineMean, fixedSD
+		default:
+			pool := finite
+			if s.Complete {
+				pool = base
+			}
+			s.Mode[i] = ModeLeaveOneOut
+			c := median(s.Value, pool, i, &scratch)
+			s.Centre[i] = c
+			s.SD[i] = limitSD(s.Value, pool, i, c, s.Floor, &scratch)
+		}
+	}
+	z := nanSlice(n)
+	for _, i := range finite {
+		if s.SD[i] > 0 {
+			z[i] = (s.Value[i] - s.Centre[i]) / s.SD[i]
+		}
+	}
+	for i, r := range westernElectricZ(z) {
+		for _, k := range r {
+			if set.RuleOn(k) {
+				s.Rules[i] = append(s.Rules[i], k)
+			}
+		}
+	}
+	s.ewma(set, baseSD, baseK)
 	s.Slope, s.SlopeLow, s.SlopeHigh = drift(s.Points, s.Value)
 	minDrift := set.MinDrift
 	if minDrift == 0 {
 		minDrift = 1
 	}
-	s.Drifting = (s.SlopeLow > 0 || s.SlopeHigh < 0) && math.Abs(s.Slope) >= minDrift
+	s.Drifting = set.RuleOn(RuleDrift) && s.Sessions >= s.MinSessions &&
+		(s.SlopeLow > 0 || s.SlopeHigh < 0) && math.Abs(s.Slope) >= minDrift
 	var seen [RuleDrift + 1]bool
 	for _, r := range s.Rules {
 		for _, k := range r {
 			seen[k] = true
 		}
 	}
-	for i, o := range s.EWMAOut {
-		if o && !s.InBaseline[i] {
-			seen[RuleEWMA] = true
-		}
+	for _, o := range s.EWMAOut {
+		seen[RuleEWMA] = seen[RuleEWMA] || o
 	}
 	seen[RuleDrift] = s.Drifting
 	for k, hit := range seen {
@@ -193,30 +410,286 @@ func (s *Series) analyse(set *Settings) {
 			s.Violations = append(s.Violations, k)
 		}
 	}
+	s.judge(set, finite)
 }
 
-func meanSD(v []float64, idx []int) (mean, sd float64, n int) {
-	var sum float64
-	for _, i := range idx {
-		if !math.IsNaN(v[i]) {
-			sum += v[i]
-			n++
+// judge sets CrossYears, Finding and Reasons.
+func (s *Series) judge(set *Settings, finite []int) {
+	s.CrossYears = math.NaN()
+	if s.Sessions < s.MinSessions {
+		s.Finding = FindingTooFew
+		s.Reasons = []string{fmt.Sprintf("not enough sessions (%d of %d)", s.Sessions, s.MinSessions)}
+		return
+	}
+	last := finite[len(finite)-1]
+	action, watch := []string(nil), []string(nil)
+	if s.Outside[last] {
+		action = append(action, fmt.Sprintf("last session %s outside the tolerance ±%.1f %%", signedPct(s.Value[last]), s.TolPct[last]))
+	}
+	if s.Drifting && finiteF(s.TolPct[last]) {
+		s.CrossYears = s.crossing(last)
+		h := set.horizon()
+		txt := fmt.Sprintf("drift %s/yr", signedPct(s.Slope))
+		if s.CrossYears <= h {
+			action = append(action, fmt.Sprintf("%s reaches the tolerance ±%.1f %% within %s", txt, s.TolPct[last], horizonText(h)))
+		} else {
+			watch = append(watch, txt+" (rule 6)")
+		}
+	} else if s.Drifting {
+		watch = append(watch, fmt.Sprintf("drift %s/yr (rule 6)", signedPct(s.Slope)))
+	}
+	outside := 0
+	for _, i := range finite[:len(finite)-1] {
+		if s.Outside[i] {
+			outside++
 		}
 	}
-	if n == 0 {
-		return math.NaN(), math.NaN(), 0
+	if outside > 0 {
+		watch = append(watch, fmt.Sprintf("%d earlier session(s) outside tolerance", outside))
 	}
-	mean = sum / float64(n)
-	if n < 2 {
-		return mean, math.NaN(), n
-	}
-	var ss float64
-	for _, i := range idx {
-		if !math.IsNaN(v[i]) {
-			ss += (v[i] - mean) * (v[i] - mean)
+	var rules []int
+	for _, k := range s.Violations {
+		if k != RuleDrift {
+			rules = append(rules, k)
 		}
 	}
-	return mean, math.Sqrt(ss / float64(n-1)), n
+	if len(rules) > 0 {
+		var t []string
+		for _, k := range rules {
+			t = append(t, fmt.Sprint(k))
+		}
+		watch = append(watch, "rule "+strings.Join(t, ", "))
+	}
+	switch {
+	case len(action) > 0:
+		s.Finding, s.Reasons = FindingAction, append(action, watch...)
+	case len(watch) > 0:
+		s.Finding, s.Reasons = FindingWatch, watch
+	default:
+		s.Finding = FindingOK
+	}
+}
+
+func horizonText(h float64) string {
+	if m := h * 12; math.Abs(m-math.Round(m)) < 1e-9 && m < 24 {
+		return fmt.Sprintf("%d months", int(math.Round(m)))
+	}
+	return fmt.Sprintf("%g years", h)
+}
+
+// crossing returns the years from the last point until the drift line,
+// at the end of the slope's 95 % interval nearest zero, reaches the
+// tolerance on the side it heads to.
+func (s *Series) crossing(last int) float64 {
+	b := s.SlopeHigh // nearest zero for a falling series
+	if s.Slope > 0 {
+		b = s.SlopeLow
+	}
+	at := s.fitted(s.Points[last].Time)
+	tol := math.Copysign(s.TolPct[last], b)
+	if b == 0 || !finiteF(at) {
+		return math.Inf(1)
+	}
+	if math.Abs(at) >= s.TolPct[last] && math.Signbit(at) == math.Signbit(b) {
+		return 0
+	}
+	t := (tol - at) / b
+	if t < 0 {
+		return math.Inf(1)
+	}
+	return t
+}
+
+// fitted is the drift line's value at t.
+func (s *Series) fitted(t time.Time) float64 {
+	var mt, mv float64
+	k := 0
+	t0 := s.Points[0].Time
+	for i, p := range s.Points {
+		if !math.IsNaN(s.Value[i]) && !p.Time.IsZero() {
+			mt += float64(p.Time.Sub(t0)) / float64(year)
+			mv += s.Value[i]
+			k++
+		}
+	}
+	if k == 0 {
+		return math.NaN()
+	}
+	mt, mv = mt/float64(k), mv/float64(k)
+	return mv + s.Slope*(float64(t.Sub(t0))/float64(year)-mt)
+}
+
+// floor returns the smallest SD of the rules and where it came from.
+func (s *Series) floor(set *Settings) (float64, string) {
+	f, from := set.minLimit()/3, "limit floor"
+	var se, unc []float64
+	for i, p := range s.Points {
+		if math.IsNaN(s.Value[i]) || !(p.Reference > 0) {
+			continue
+		}
+		if p.N > 0 && p.SD > 0 {
+			// Standard error of a median, √(π/2)·SD/√n (large-sample,
+			// normal data; Kendall & Stuart, from memory), in percent.
+			se = append(se, 100*1.2533*p.SD/math.Sqrt(float64(p.N))/p.Reference)
+		}
+		if p.RefUncPct > 0 {
+			unc = append(unc, p.RefUncPct)
+		}
+	}
+	if v := medianOf(se); v > f {
+		f, from = v, "standard error of the vial median"
+	}
+	if v := medianOf(unc); v > f {
+		f, from = v, "reference uncertainty"
+	}
+	return f, from
+}
+
+// limitSD is the SD the rules use for a point judged against the values
+// of v over idx without skip, centred on their median c:
+//
+//	max(s·√(1 + π/(2k))·t(k−1)/3, floor)
+//
+// s is the SD of those values after setting aside any beyond 3.5 robust
+// SDs (1.4826·MAD) of c, so one excursion in the pool does not widen the
+// limits of the others; k is the number kept. √(1 + π/(2k)) widens it for
+// the uncertainty of the median centre (its variance is about π/2·σ²/k for
+// normal data, from memory), and t(k−1)/3, with t(ν) the Student-t
+// quantile of Φ(3) = 0.99865, for the uncertainty of s: a new in-control
+// value then lies beyond 3 such SDs as rarely as a normal value beyond 3σ
+// (the prediction interval, e.g. Hahn & Meeker, Statistical Intervals,
+// 1991, ch. 4, from memory). The floor is a known SD and is not widened.
+func limitSD(v []float64, idx []int, skip int, c, floor float64, scratch *[]float64) float64 {
+	sd, k := poolSD(v, idx, skip, c, scratch)
+	if k < 2 {
+		return floor
+	}
+	return math.Max(sd*math.Sqrt(1+math.Pi/(2*float64(k)))*tFactor(k-1), floor)
+}
+
+// poolSD is the SD of v over idx without skip, trimmed as limitSD says,
+// and the number of values kept.
+func poolSD(v []float64, idx []int, skip int, c float64, scratch *[]float64) (float64, int) {
+	mad := math.NaN() // no trimming in small pools: their MAD is too unsure
+	if len(idx) > trimFrom {
+		mad = madSD(v, idx, skip, c, scratch)
+	}
+	var sum, ss float64
+	k := 0
+	for _, i := range idx {
+		x := v[i]
+		if i == skip || math.IsNaN(x) || (mad > 0 && math.Abs(x-c) > trimAt*mad) {
+			continue
+		}
+		sum += x
+		k++
+	}
+	if k < 2 {
+		return math.NaN(), k
+	}
+	m := sum / float64(k)
+	for _, i := range idx {
+		x := v[i]
+		if i == skip || math.IsNaN(x) || (mad > 0 && math.Abs(x-c) > trimAt*mad) {
+			continue
+		}
+		ss += (x - m) * (x - m)
+	}
+	return math.Sqrt(ss / float64(k-1)), k
+}
+
+var (
+	tOnce  sync.Once
+	tTable [201]float64
+)
+
+// tFactor is t(ν)/3, the Student-t quantile of Φ(3) over 3 (1 beyond 200
+// degrees of freedom, where it is within 1.5 % of 1).
+func tFactor(nu int) float64 {
+	tOnce.Do(func() {
+		p := distuv.UnitNormal.CDF(3)
+		for n := 1; n < len(tTable); n++ {
+			tTable[n] = distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n)}.Quantile(p) / 3
+		}
+	})
+	if nu < 1 {
+		return math.Inf(1)
+	}
+	if nu >= len(tTable) {
+		return 1
+	}
+	return tTable[nu]
+}
+
+func nanSlice(n int) []float64 {
+	v := make([]float64, n)
+	for i := range v {
+		v[i] = math.NaN()
+	}
+	return v
+}
+
+func finiteF(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// median returns the median of v over idx without index skip (−1 for
+// none), ignoring NaN; scratch, when not nil, is reused.
+func median(v []float64, idx []int, skip int, scratch *[]float64) float64 {
+	var buf []float64
+	if scratch != nil {
+		buf = (*scratch)[:0]
+	}
+	for _, i := range idx {
+		if i != skip && !math.IsNaN(v[i]) {
+			buf = append(buf, v[i])
+		}
+	}
+	if scratch != nil {
+		*scratch = buf
+	}
+	return medianOf(buf)
+}
+
+// medianOf sorts x and returns its median (NaN when empty).
+func medianOf(x []float64) float64 {
+	if len(x) == 0 {
+		return math.NaN()
+	}
+	sort.Float64s(x)
+	h := len(x) / 2
+	if len(x)%2 == 1 {
+		return x[h]
+	}
+	return (x[h-1] + x[h]) / 2
+}
+
+// madSD is 1.4826 times the median absolute deviation from c of v over
+// idx without skip: a robust SD, consistent for normal data (Hampel 1974;
+// the constant is 1/Φ⁻¹(3/4), from memory).
+func madSD(v []float64, idx []int, skip int, c float64, scratch *[]float64) float64 {
+	var buf []float64
+	if scratch != nil {
+		buf = (*scratch)[:0]
+	}
+	for _, i := range idx {
+		if i != skip && !math.IsNaN(v[i]) {
+			buf = append(buf, math.Abs(v[i]-c))
+		}
+	}
+	if scratch != nil {
+		*scratch = buf
+	}
+	if len(buf) < 2 {
+		return math.NaN()
+	}
+	return 1.4826 * medianOf(buf)
+}
+
+func signedPct(v float64) string {
+	s := fmt.Sprintf("%+.1f %%", v)
+	if s == "-0.0 %" {
+		s = "+0.0 %"
+	}
+	return strings.Replace(s, "-", "−", 1)
 }
 
 // westernElectric returns, per point, the Western Electric rules it
@@ -231,15 +704,26 @@ func meanSD(v []float64, idx []int) (mean, sd float64, n int) {
 // Points with a NaN value are skipped (the window runs over the others).
 // With σ NaN or zero (too short a baseline) no rule is evaluated.
 func westernElectric(v []float64, mu, sigma float64) [][]int {
-	out := make([][]int, len(v))
-	if !(sigma > 0) || math.IsNaN(mu) {
-		return out
+	z := make([]float64, len(v))
+	for i, x := range v {
+		z[i] = math.NaN()
+		if sigma > 0 && !math.IsNaN(mu) {
+			z[i] = (x - mu) / sigma
+		}
 	}
+	return westernElectricZ(z)
+}
+
+// westernElectricZ applies the rules to values already in units of σ
+// from their centre line (each point may have its own centre and σ);
+// NaN points are skipped.
+func westernElectricZ(zs []float64) [][]int {
+	out := make([][]int, len(zs))
 	var z []float64
 	var at []int
-	for i, x := range v {
+	for i, x := range zs {
 		if !math.IsNaN(x) {
-			z = append(z, (x-mu)/sigma)
+			z = append(z, x)
 			at = append(at, i)
 		}
 	}
@@ -285,10 +769,17 @@ func appendOnce(r []int, k int) []int {
 	return append(r, k)
 }
 
-// ewma computes z_i = λx_i + (1−λ)z_{i−1}, z_0 = baseline mean, with the
+// ewma computes z_i = λx_i + (1−λ)z_{i−1}, z_0 = baseline centre, with the
 // limits μ ± Lσ·√(λ/(2−λ)·[1 − (1−λ)^{2i}]) (NIST/SEMATECH e-Handbook of
-// Statistical Methods §6.3.2.4; check-values §4.1).
-func (s *Series) ewma(set *Settings) {
+// Statistical Methods §6.3.2.4; check-values §4.1). σ and μ come from the
+// baseline (sd and k values kept, see poolSD), so the limits also carry
+// the centre's uncertainty, which averaging does not shrink:
+//
+//	half-width = L·max(sd·t(k−1)/3·√(f_i + π/(2k)), floor·√f_i),  f_i = λ/(2−λ)·[1 − (1−λ)^{2i}]
+//
+// It runs only once the baseline is complete; points after the baseline
+// beyond the limits are marked.
+func (s *Series) ewma(set *Settings, sd float64, k int) {
 	lam, L := set.Lambda, set.L
 	if lam == 0 {
 		lam = 0.2
@@ -297,20 +788,27 @@ func (s *Series) ewma(set *Settings) {
 		L = 3
 	}
 	n := len(s.Value)
-	s.EWMA, s.EWMALow, s.EWMAHigh = make([]float64, n), make([]float64, n), make([]float64, n)
+	s.EWMA, s.EWMALow, s.EWMAHigh = nanSlice(n), nanSlice(n), nanSlice(n)
 	s.EWMAOut = make([]bool, n)
+	if math.IsNaN(s.BaselineMean) || !(sd > 0 || s.Floor > 0) {
+		return
+	}
 	z := s.BaselineMean
-	k := 0
-	for i, x := range s.Value {
-		if math.IsNaN(x) || !(s.BaselineSD > 0) {
-			s.EWMA[i], s.EWMALow[i], s.EWMAHigh[i] = math.NaN(), math.NaN(), math.NaN()
+	i := 0
+	for j, x := range s.Value {
+		if math.IsNaN(x) {
 			continue
 		}
-		k++
+		i++
 		z = lam*x + (1-lam)*z
-		w := L * s.BaselineSD * math.Sqrt(lam/(2-lam)*(1-math.Pow(1-lam, 2*float64(k))))
-		s.EWMA[i], s.EWMALow[i], s.EWMAHigh[i] = z, s.BaselineMean-w, s.BaselineMean+w
-		s.EWMAOut[i] = z < s.EWMALow[i] || z > s.EWMAHigh[i]
+		f := lam / (2 - lam) * (1 - math.Pow(1-lam, 2*float64(i)))
+		w := s.Floor * math.Sqrt(f)
+		if sd > 0 && k >= 2 {
+			w = math.Max(w, sd*tFactor(k-1)*math.Sqrt(f+math.Pi/(2*float64(k))))
+		}
+		w *= L
+		s.EWMA[j], s.EWMALow[j], s.EWMAHigh[j] = z, s.BaselineMean-w, s.BaselineMean+w
+		s.EWMAOut[j] = set.RuleOn(RuleEWMA) && !s.InBaseline[j] && (z < s.EWMALow[j] || z > s.EWMAHigh[j])
 	}
 }
 
@@ -357,3 +855,13 @@ func drift(ps []Point, v []float64) (slope, lo, hi float64) {
 	tq := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 2)}.Quantile(0.975)
 	return slope, slope - tq*se, slope + tq*se
 }
+
+// Trimming of the pools in limitSD: values beyond trimAt robust SDs of the
+// median are set aside in pools of more than trimFrom values (in smaller
+// ones the MAD itself is too unsure and trimming made the limits narrow:
+// 1.3–1.8 % of in-control sessions flagged at 3 % scatter with 6–12
+// sessions, against 0.3–0.5 % without; falsealarm_test.go).
+const (
+	trimAt   = 5.0
+	trimFrom = 10
+)

@@ -10,6 +10,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"sort"
 	"strings"
 	"time"
 
@@ -394,6 +395,7 @@ type Point struct {
 	Reference   float64 // NaN when none
 	Deviation   float64 // percent; NaN when no reference
 	Tolerance   float64
+	RefUncPct   float64 // reference uncertainty, percent; NaN when not recorded
 	Verdict     string
 	Field       float64
 	Temperature float64
@@ -403,7 +405,7 @@ type Point struct {
 // scanner, vial, quantity and time.
 func (s *Store) Points(ctx context.Context, scanner string) ([]Point, error) {
 	rows, err := s.db.QueryContext(ctx, `SELECT s.id, s.scanner, s.acquired, r.vial, r.quantity, r.n, r.mean, r.median, r.sd,
-		r.reference, r.deviation_pct, r.tolerance, r.verdict, s.field_t, s.temperature_c
+		r.reference, r.deviation_pct, r.tolerance, r.reference_uncertainty_pct, r.verdict, s.field_t, s.temperature_c
 		FROM results r JOIN sessions s ON s.id = r.session_id
 		WHERE ? = '' OR s.scanner = ?
 		ORDER BY s.scanner, r.vial, r.quantity, s.acquired, s.id`, scanner, scanner)
@@ -414,9 +416,9 @@ func (s *Store) Points(ctx context.Context, scanner string) ([]Point, error) {
 	var out []Point
 	for rows.Next() {
 		var p Point
-		var mean, median, sd, ref, dev, tol sql.NullFloat64
+		var mean, median, sd, ref, dev, tol, unc sql.NullFloat64
 		if err := rows.Scan(&p.SessionID, &p.Scanner, &p.Acquired, &p.Vial, &p.Quantity, &p.N, &mean, &median, &sd,
-			&ref, &dev, &tol, &p.Verdict, &p.Field, &p.Temperature); err != nil {
+			&ref, &dev, &tol, &unc, &p.Verdict, &p.Field, &p.Temperature); err != nil {
 			return nil, s.wrap(err)
 		}
 		f := func(n sql.NullFloat64) float64 {
@@ -425,7 +427,7 @@ func (s *Store) Points(ctx context.Context, scanner string) ([]Point, error) {
 			}
 			return math.NaN()
 		}
-		p.Mean, p.Median, p.SD, p.Reference, p.Deviation, p.Tolerance = f(mean), f(median), f(sd), f(ref), f(dev), f(tol)
+		p.Mean, p.Median, p.SD, p.Reference, p.Deviation, p.Tolerance, p.RefUncPct = f(mean), f(median), f(sd), f(ref), f(dev), f(tol), f(unc)
 		p.Time = parseAcquired(p.Acquired)
 		out = append(out, p)
 	}
@@ -454,4 +456,58 @@ func (s *Store) Version(ctx context.Context) (int, error) {
 	var v int
 	err := s.db.QueryRowContext(ctx, "PRAGMA user_version").Scan(&v)
 	return v, s.wrap(err)
+}
+
+// PointsOf returns the results of a session as Points recorded by Add
+// would read back (no reference: NaN reference and deviation; a vial not
+// measured: NaN deviation), without a session id.
+func PointsOf(qa *phantom.QA) []Point {
+	s := qa.Session
+	acq := Acquired(s)
+	var out []Point
+	for _, v := range qa.Vials {
+		p := Point{Scanner: s.Scanner, Acquired: acq, Time: parseAcquired(acq), Vial: v.ID, Quantity: v.Quantity, N: v.N,
+			Mean: v.Mean, Median: v.Median, SD: v.SD, Reference: v.Reference, Deviation: v.Deviation, Tolerance: v.Tolerance,
+			RefUncPct: v.RefUncPct, Verdict: v.Verdict, Field: s.Field, Temperature: s.Temperature}
+		if !(v.Reference > 0) {
+			p.Reference, p.Deviation = math.NaN(), math.NaN()
+		}
+		if v.Verdict == phantom.NotMeasured {
+			p.Deviation = math.NaN()
+		}
+		if !(v.Tolerance > 0) {
+			p.Tolerance = math.NaN()
+		}
+		if !(v.RefUncPct > 0) {
+			p.RefUncPct = math.NaN()
+		}
+		out = append(out, p)
+	}
+	return out
+}
+
+// WithSession returns the recorded points of qa's scanner with the
+// session of qa added (replacing a recorded session at the same time),
+// ordered as Points orders them: the history a report of that session is
+// judged against.
+func WithSession(recorded []Point, qa *phantom.QA) []Point {
+	acq := Acquired(qa.Session)
+	var out []Point
+	for _, p := range recorded {
+		if p.Scanner == qa.Session.Scanner && p.Acquired != acq {
+			out = append(out, p)
+		}
+	}
+	out = append(out, PointsOf(qa)...)
+	sort.SliceStable(out, func(i, j int) bool {
+		a, b := out[i], out[j]
+		if a.Vial != b.Vial {
+			return a.Vial < b.Vial
+		}
+		if a.Quantity != b.Quantity {
+			return a.Quantity < b.Quantity
+		}
+		return a.Acquired < b.Acquired
+	})
+	return out
 }
