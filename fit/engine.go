@@ -226,12 +226,27 @@ func (wk *worker) voxel(v int, maps *Maps) {
 		res.fail(Masked)
 	case wk.thr > 0 && !(peak >= wk.thr) && bad != (1<<uint(wk.nt))-1:
 		res.fail(Masked)
+	case bad != (1<<uint(wk.nt))-1 && !wk.signal(bad):
+		res.fail(NoSignal)
+	case wk.opt.B1 != nil && !(wk.opt.B1[v] >= MinB1 && wk.opt.B1[v] <= MaxB1):
+		res.fail(BadB1)
 	case bad == 0:
 		wk.fitter.Fit(res, wk.y, wk.cov(v))
 	default:
 		wk.fitSubset(v, bad)
 	}
 	wk.store(v, maps)
+}
+
+// signal reports whether some finite sample of the voxel in wk.y (bad
+// marks the non-finite ones) differs from zero.
+func (wk *worker) signal(bad uint64) bool {
+	for t := 0; t < wk.nt; t++ {
+		if bad&(1<<uint(t)) == 0 && wk.y[t] != 0 {
+			return true
+		}
+	}
+	return false
 }
 
 func (wk *worker) cov(v int) Covariates {

@@ -8,11 +8,11 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"sort"
 	"strconv"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -49,7 +49,7 @@ const maxRegions = 100000
 // or a JSON list of objects with those keys (chosen by the first
 // non-blank byte).
 func ReadList(path string) ([]Spec, error) {
-	b, err := os.ReadFile(path)
+	b, err := regular.ReadFile(path)
 	if err != nil {
 		return nil, err
 	}

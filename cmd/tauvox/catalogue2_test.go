@@ -1,0 +1,188 @@
+package main
+
+import (
+	"database/sql"
+	"encoding/binary"
+	"os"
+	"path/filepath"
+	"strings"
+	"syscall"
+	"testing"
+	"time"
+)
+
+// withDeadline runs a tauvox command in-process and fails the test, rather
+// than hanging it, when the command does not return within d: every case
+// below blocked for ever before inputs were opened without blocking
+// (internal/regular).
+func withDeadline(t *testing.T, d time.Duration, args ...string) (int, string, string) {
+	t.Helper()
+	type res struct {
+		code   int
+		so, se string
+	}
+	done := make(chan res, 1)
+	go func() {
+		c, so, se := tauvox(t, args...)
+		done <- res{c, so, se}
+	}()
+	select {
+	case r := <-done:
+		return r.code, r.so, r.se
+	case <-time.After(d):
+		t.Fatalf("tauvox %s: still running after %v (blocked on a FIFO?)", strings.Join(args, " "), d)
+	}
+	return 0, "", ""
+}
+
+// TestNonRegularInputs: a named pipe (FIFO) where tauvox expects a file —
+// the NIfTI input, its sidecar, a file inside a scanned DICOM folder or a
+// BIDS dataset, the history database, a qa.json, a phantom definition, a
+// region list — never blocks (opening a FIFO with no writer waits for one:
+// POSIX open(2)). A named input is refused with exit 2 and one line naming
+// it; a FIFO met while walking a folder is skipped with a note. Nothing is
+// written.
+func TestNonRegularInputs(t *testing.T) {
+	f := newFixtures(t)
+	mkfifo := func(p string) string {
+		t.Helper()
+		os.MkdirAll(filepath.Dir(p), 0o755)
+		if err := syscall.Mkfifo(p, 0o644); err != nil {
+			t.Skip("no FIFOs here:", err)
+		}
+		return p
+	}
+	niiFIFO := mkfifo(f.path("pipe/t2.nii.gz"))
+	// The sidecar is the FIFO, the image a real series.
+	z, _ := os.ReadFile(f.nii)
+	sideImg := f.write(t, "sidepipe/t2.nii.gz", z)
+	sideFIFO := mkfifo(f.path("sidepipe/t2.json"))
+	// A DICOM folder holding the series and a FIFO.
+	dcm := copyTree(t, f.dcm)
+	dcmFIFO := mkfifo(filepath.Join(dcm, "zz-pipe.dcm"))
+	// A BIDS dataset with a FIFO as one subject's image.
+	bids := copyTree(t, filepath.Join("..", "..", "testdata", "bids"))
+	imgs, _ := filepath.Glob(filepath.Join(bids, "sub-02", "ses-1", "anat", "*.nii.gz"))
+	if len(imgs) == 0 {
+		t.Fatal("no sub-02 image in the committed BIDS dataset")
+	}
+	os.Remove(imgs[0])
+	bidsFIFO := mkfifo(imgs[0])
+	dbFIFO := mkfifo(f.path("db.pipe"))
+	qaFIFO := mkfifo(f.path("qa.pipe"))
+	defFIFO := mkfifo(f.path("def.pipe"))
+	roiFIFO := mkfifo(f.path("rois.pipe"))
+	outs := f.path("outs")
+	os.Mkdir(outs, 0o755)
+
+	cases := []struct {
+		name string
+		args []string
+		want []string
+	}{
+		{"NIfTI input", []string{"fit", niiFIFO, "--model", "t2", "--te", "10:10:160", "--out", "OUT"}, []string{niiFIFO, "is a named pipe (FIFO), not a NIfTI file"}},
+		{"sidecar", []string{"fit", sideImg, "--model", "t2", "--out", "OUT"}, []string{sideFIFO, "is a named pipe (FIFO), not a sidecar file"}},
+		{"history --db (add)", []string{"history", "add", "--db", dbFIFO, f.qa}, []string{dbFIFO, "is a named pipe (FIFO), not a regular file"}},
+		{"history --db (list)", []string{"history", "list", "--db", dbFIFO}, []string{dbFIFO, "is a named pipe (FIFO), not a regular file"}},
+		{"qa.json", []string{"history", "add", "--db", "OUT", qaFIFO}, []string{qaFIFO, "is a named pipe (FIFO), not a regular file"}},
+		{"phantom definition", []string{"phantom", f.maps, "--def", defFIFO, "--temperature", "20", "--date", "2026-05-01", "--out", "OUT"}, []string{defFIFO, "is a named pipe (FIFO), not a regular file"}},
+		{"region list", []string{"roi", f.maps, "--rois", roiFIFO, "--out", "OUT"}, []string{roiFIFO, "is a named pipe (FIFO), not a regular file"}},
+	}
+	for _, c := range cases {
+		refused(t, f, outs, 20*time.Second, c.name, c.args, c.want)
+	}
+
+	// A FIFO as one subject's image in a BIDS dataset: batch fails that
+	// series by name (exit 1, as for any failed series) and fits the others.
+	var stdout string
+	code, _, stderr := withDeadline(t, 60*time.Second, "batch", bids, "--out", filepath.Join(outs, "bids"), "--quiet")
+	if code != 1 || !strings.Contains(stderr, bidsFIFO[len(bids):]) || !strings.Contains(stderr, "is a named pipe (FIFO), not a NIfTI file") ||
+		!strings.Contains(stderr, "1 of 3 series failed") {
+		t.Errorf("batch with a FIFO: exit %d: %s", code, stderr)
+	}
+
+	// A FIFO inside a DICOM folder: scan notes it and goes on; fit fits
+	// the series beside it.
+	code, stdout, stderr = withDeadline(t, 20*time.Second, "scan", dcm)
+	if code != 0 || !strings.Contains(stdout, dcmFIFO) || !strings.Contains(stdout, "is a named pipe (FIFO), not a regular file") {
+		t.Errorf("scan with a FIFO: exit %d\n%s%s", code, stdout, stderr)
+	}
+	code, _, stderr = withDeadline(t, 60*time.Second, "fit", dcm, "--model", "t2", "--out", filepath.Join(outs, "dcm"), "--quiet", "--no-preview")
+	if code != 0 {
+		t.Errorf("fit of a DICOM folder holding a FIFO: exit %d: %s", code, stderr)
+	}
+}
+
+// TestSecondCatalogue holds the cases of the second bad-input catalogue
+// (docs/robustness.md) that are not about special files: each gives exit
+// code 2, one line naming the file and the problem, and changes nothing.
+func TestSecondCatalogue(t *testing.T) {
+	f := newFixtures(t)
+	// RescaleSlope (0028,1053) is DS: text in a 2-byte-length explicit-VR
+	// element (PS3.5 §7.1.2). The simulator writes a slope per image; its
+	// digits are overwritten in place (padding with spaces keeps the length).
+	slope := func(v string) func(t *testing.T, b []byte) {
+		return func(t *testing.T, b []byte) {
+			i := dicomElement(t, b, 0x0028, 0x1053, "DS")
+			n := int(binary.LittleEndian.Uint16(b[i+6:]))
+			if len(v) > n {
+				t.Fatalf("slope %q longer than the element (%d bytes)", v, n)
+			}
+			copy(b[i+8:i+8+n], v+strings.Repeat(" ", n-len(v)))
+		}
+	}
+	zero := f.dicomWith(t, "d_slope0", slope("0"))
+	nan := f.dicomWith(t, "d_slopenan", slope("NaN"))
+	negVer := f.path("negver.db")
+	db, err := sql.Open("sqlite", negVer)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := db.Exec("PRAGMA user_version = -1"); err != nil {
+		t.Fatal(err)
+	}
+	db.Close()
+	cases := []struct {
+		name string
+		args []string
+		want []string
+	}{
+		{"RescaleSlope 0", []string{"fit", zero, "--model", "t2", "--out", "OUT"}, []string{"RescaleSlope (0028,1053) is 0"}},
+		{"RescaleSlope NaN", []string{"fit", nan, "--model", "t2", "--out", "OUT"}, []string{"RescaleSlope (0028,1053) is NaN"}},
+		{"schema version -1 (add)", []string{"history", "add", "--db", negVer, f.qa}, []string{negVer, "schema version -1 is not one tauvox writes"}},
+		{"schema version -1 (list)", []string{"history", "list", "--db", negVer}, []string{negVer, "schema version -1 is not one tauvox writes"}},
+	}
+	outs := f.path("outs")
+	os.Mkdir(outs, 0o755)
+	for _, c := range cases {
+		refused(t, f, outs, 60*time.Second, c.name, c.args, c.want)
+	}
+}
+
+// refused runs one catalogue case: OUT in args becomes a fresh path under
+// outs; the command must end within d with exit code 2 and one line on
+// stderr holding every want, and leave every file under f.root as it was.
+func refused(t *testing.T, f *fixtures, outs string, d time.Duration, name string, args, want []string) {
+	t.Helper()
+	out := filepath.Join(outs, strings.ReplaceAll(name, " ", "_"))
+	a := make([]string, len(args))
+	for i, s := range args {
+		a[i] = strings.ReplaceAll(s, "OUT", out)
+	}
+	before := snapshot(t, f.root)
+	code, _, stderr := withDeadline(t, d, a...)
+	if code != 2 || strings.Count(strings.TrimRight(stderr, "\n"), "\n") != 0 {
+		t.Errorf("%s: exit %d, want 2 and one line: %q", name, code, stderr)
+	}
+	for _, w := range want {
+		if !strings.Contains(stderr, w) {
+			t.Errorf("%s: %q lacks %q", name, stderr, w)
+		}
+	}
+	if d := diffSnapshots(before, snapshot(t, f.root)); len(d) > 0 {
+		t.Errorf("%s: files changed: %v", name, d)
+	}
+	if testing.Verbose() {
+		t.Logf("%-26s | %s", name, strings.TrimSpace(strings.ReplaceAll(stderr, f.root, "…")))
+	}
+}
