@@ -92,6 +92,9 @@ func RunTo(ctx context.Context, dst *Maps, im *volume.Image, m Model, opt *Optio
 	if _, err := m.NewFitter(im.Acq); err != nil {
 		return nil, err
 	}
+	if err := CheckWorkers(opt.Workers); err != nil {
+		return nil, err
+	}
 	workers := opt.Workers
 	if workers <= 0 {
 		workers = runtime.NumCPU()
@@ -193,6 +196,24 @@ func newWorker(m Model, im *volume.Image, opt *Options, thr float64) (*worker, e
 		min:     m.MinPoints(),
 		slab:    make([]float32, nt*chunk),
 	}, nil
+}
+
+// WorkersPerCPU bounds the worker count: each worker holds its own
+// workspace and slab (tens of KiB to a few MiB), and more workers than a
+// small multiple of the CPUs only add memory and switching, never speed
+// (the engine is CPU-bound).
+const WorkersPerCPU = 16
+
+// CheckWorkers accepts a worker count of 0 (one per CPU) up to
+// WorkersPerCPU per CPU, and refuses anything else in one line.
+func CheckWorkers(n int) error {
+	if n < 0 {
+		return errors.New("--workers must be positive")
+	}
+	if lim := WorkersPerCPU * runtime.NumCPU(); n > lim {
+		return fmt.Errorf("--workers %d is above the limit of %d (%d per CPU on this machine's %d CPUs)", n, lim, WorkersPerCPU, runtime.NumCPU())
+	}
+	return nil
 }
 
 // load copies the samples of voxels lo…hi−1 into the slab.

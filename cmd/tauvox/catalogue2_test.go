@@ -3,12 +3,16 @@ package main
 import (
 	"database/sql"
 	"encoding/binary"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
 	"syscall"
 	"testing"
 	"time"
+
+	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/io/volume"
 )
 
 // withDeadline runs a tauvox command in-process and fails the test, rather
@@ -142,6 +146,34 @@ func TestSecondCatalogue(t *testing.T) {
 		t.Fatal(err)
 	}
 	db.Close()
+	// A label image on the maps' grid holding one label above 2^24, and a
+	// region list of 100,000 spheres each covering the whole image.
+	bigLabel := f.path("labels.nii.gz")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t2", "--out", f.path("labsim"), "--matrix", "32", "--slices", "2"); code != 0 {
+		t.Fatal(e)
+	}
+	// Maps of 32×32×2 voxels: 100,000 spheres over all of them hold 204.8
+	// million voxel indices, three times roi.MaxRegionVoxels.
+	bigMaps := f.path("bigmaps")
+	if code, _, e := tauvox(t, "fit", filepath.Join(f.path("labsim"), "t2.nii.gz"), "--model", "t2", "--out", bigMaps, "--quiet", "--no-preview"); code != 0 {
+		t.Fatal(e)
+	}
+	ser, err := nifti.Read(filepath.Join(f.path("labsim"), "t2.nii.gz"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	lab := volume.New(ser.Dims[0], ser.Dims[1], ser.Dims[2], 1)
+	lab.Affine = ser.Affine
+	lab.Data[5] = 1<<24 + 2
+	if err := nifti.Write(bigLabel, lab, nil); err != nil {
+		t.Fatal(err)
+	}
+	var sb strings.Builder
+	sb.WriteString("name,x,y,z,radius,space\n")
+	for i := 0; i < 100000; i++ {
+		fmt.Fprintf(&sb, "s%d,16,16,1,1000,voxel\n", i)
+	}
+	manySpheres := f.write(t, "spheres.csv", []byte(sb.String()))
 	cases := []struct {
 		name string
 		args []string
@@ -151,6 +183,11 @@ func TestSecondCatalogue(t *testing.T) {
 		{"RescaleSlope NaN", []string{"fit", nan, "--model", "t2", "--out", "OUT"}, []string{"RescaleSlope (0028,1053) is NaN"}},
 		{"schema version -1 (add)", []string{"history", "add", "--db", negVer, f.qa}, []string{negVer, "schema version -1 is not one tauvox writes"}},
 		{"schema version -1 (list)", []string{"history", "list", "--db", negVer}, []string{negVer, "schema version -1 is not one tauvox writes"}},
+		{"--workers 100000000 (fit)", []string{"fit", f.nii, "--model", "t2", "--workers", "100000000", "--out", "OUT"}, []string{"--workers 100000000 is above the limit of", "per CPU"}},
+		{"--workers 100000000 (batch)", []string{"batch", filepath.Join("..", "..", "testdata", "bids"), "--workers", "100000000", "--out", "OUT"}, []string{"--workers 100000000 is above the limit of"}},
+		{"simulate 1024×1024×256", []string{"simulate", "--kind", "t2", "--matrix", "1024", "--slices", "256", "--out", "OUT"}, []string{"a 1024×1024×256 series of 16 volumes needs 16.0 GiB in memory", "above the limit of 2.0 GiB"}},
+		{"label value above 2^24", []string{"roi", bigMaps, "--rois", bigLabel, "--out", "OUT"}, []string{bigLabel, "is above 16777216"}},
+		{"many large spheres", []string{"roi", bigMaps, "--rois", manySpheres, "--out", "OUT"}, []string{manySpheres, "voxels in all", "the limit"}},
 	}
 	outs := f.path("outs")
 	os.Mkdir(outs, 0o755)

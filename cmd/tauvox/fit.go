@@ -144,8 +144,8 @@ func runFit(ctx context.Context, args []string, e *env) error {
 		return fmt.Errorf("--model is required (see --help)")
 	case a.out == "":
 		return fmt.Errorf("--out is required (see --help)")
-	case a.workers < 0:
-		return fmt.Errorf("--workers must be positive")
+	case fit.CheckWorkers(a.workers) != nil:
+		return fit.CheckWorkers(a.workers)
 	case a.noise != "gaussian" && a.noise != "rician":
 		return fmt.Errorf("--noise must be gaussian or rician")
 	case a.sigma < 0 || math.IsNaN(a.sigma):

@@ -261,6 +261,13 @@ func simulateInto(st pather, a *simArgs) ([]string, error) {
 			o.put(&acq[i], o.l.vals[i])
 		}
 	}
+	// The series is made in memory as float32; refuse before allocating
+	// what tauvox could not read back (nifti.DefaultMaxBytes bounds one
+	// image read, 2 GiB).
+	if need := int64(a.matrix) * int64(a.matrix) * int64(a.slices) * int64(len(acq)) * 4; need > nifti.DefaultMaxBytes {
+		return nil, fmt.Errorf("a %d×%d×%d series of %d volumes needs %.1f GiB in memory (float32), above the limit of %.1f GiB for one image; use a smaller --matrix or fewer --slices",
+			a.matrix, a.matrix, a.slices, len(acq), float64(need)/(1<<30), float64(nifti.DefaultMaxBytes)/(1<<30))
+	}
 	sc := a.scene()
 	for id := range a.drift {
 		found := false
