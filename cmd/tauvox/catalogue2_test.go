@@ -223,3 +223,87 @@ func refused(t *testing.T, f *fixtures, outs string, d time.Duration, name strin
 		t.Logf("%-26s | %s", name, strings.TrimSpace(strings.ReplaceAll(stderr, f.root, "…")))
 	}
 }
+
+// TestOutputAlias: an --out that reaches the input's folder by another
+// path — a symbolic link, or a bind mount (when this process may mount:
+// root in a mount namespace that allows it) — is refused by file identity
+// (device and inode), so --force cannot replace the folder holding the
+// input; the input survives a full fit command.
+func TestOutputAlias(t *testing.T) {
+	f := newFixtures(t)
+	in := filepath.Join(f.root, "in")
+	z, _ := os.ReadFile(f.nii)
+	series := f.write(t, "in/t2.nii.gz", z)
+	f.write(t, "in/t2.json", []byte(`{"EchoTime": [0.01,0.02,0.03,0.04,0.05,0.06,0.07,0.08,0.09,0.1,0.11,0.12,0.13,0.14,0.15,0.16]}`))
+	link := filepath.Join(f.root, "link")
+	if err := os.Symlink(in, link); err != nil {
+		t.Fatal(err)
+	}
+	aliases := []string{link}
+	bind := filepath.Join(f.root, "bind")
+	os.Mkdir(bind, 0o755)
+	if err := syscall.Mount(in, bind, "", syscall.MS_BIND, ""); err == nil {
+		defer syscall.Unmount(bind, 0)
+		aliases = append(aliases, bind)
+	} else {
+		t.Logf("bind mount not possible here (%v): checked through the symbolic link only", err)
+	}
+	for _, a := range aliases {
+		code, _, stderr := tauvox(t, "fit", series, "--model", "t2", "--out", a, "--force", "--quiet")
+		if code != 2 || !strings.Contains(stderr, "--out contains the input "+series) {
+			t.Errorf("--out %s: exit %d: %s", a, code, stderr)
+		}
+		if _, err := os.Stat(series); err != nil {
+			t.Fatalf("--out %s: the input is gone", a)
+		}
+	}
+}
+
+// TestOutputAppearsMidRun: a folder created at --out while fit runs (a
+// second fit to the same --out, a user's mkdir) is not replaced: fit ends
+// with exit 2 and one line naming the folder, and the folder keeps what
+// was put there. The folder is made by a goroutine as soon as fit's
+// temporary folder appears.
+func TestOutputAppearsMidRun(t *testing.T) {
+	f := newFixtures(t)
+	out := f.path("race")
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for i := 0; i < 20000; i++ {
+			if m, _ := filepath.Glob(filepath.Join(f.root, ".race.tmp-*")); len(m) > 0 {
+				os.Mkdir(out, 0o755)
+				os.WriteFile(filepath.Join(out, "mine.txt"), []byte("user data"), 0o644)
+				return
+			}
+			time.Sleep(100 * time.Microsecond)
+		}
+	}()
+	code, _, stderr := withDeadline(t, 60*time.Second, "fit", f.nii, "--model", "t2", "--method", "nlls", "--out", out, "--quiet")
+	<-done
+	b, err := os.ReadFile(filepath.Join(out, "mine.txt"))
+	if err != nil || string(b) != "user data" {
+		t.Fatalf("the folder made during the run lost its file (%v); fit exit %d: %s", err, code, stderr)
+	}
+	if code != 2 || !strings.Contains(stderr, out+": changed while tauvox ran (a folder appeared there)") || strings.Count(strings.TrimRight(stderr, "\n"), "\n") != 0 {
+		t.Errorf("exit %d: %q", code, stderr)
+	}
+	if m, _ := filepath.Glob(filepath.Join(f.root, ".race.*")); len(m) > 0 {
+		t.Errorf("left %v", m)
+	}
+}
+
+// TestEmptyOutputAccepted: an existing empty folder (made by the user in
+// advance, or by a cluster job script) is accepted as --out without
+// --force and filled.
+func TestEmptyOutputAccepted(t *testing.T) {
+	f := newFixtures(t)
+	out := f.path("ready")
+	os.Mkdir(out, 0o755)
+	if code, _, stderr := tauvox(t, "fit", f.nii, "--model", "t2", "--out", out, "--quiet", "--no-preview"); code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if _, err := os.Stat(filepath.Join(out, "T2map.nii.gz")); err != nil {
+		t.Error(err)
+	}
+}

@@ -274,7 +274,7 @@ func fitInMemory(ctx context.Context, a *fitArgs, e *env) error {
 		}
 		return fmt.Errorf("%s: model %s: %v%s", a.series, model.Name(), err, hint)
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}
@@ -612,7 +612,7 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 	if err != nil {
 		return err
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}

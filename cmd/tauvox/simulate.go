@@ -14,7 +14,6 @@ import (
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/dicom"
-	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/volume"
@@ -201,7 +200,7 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 	if math.Abs(a.tilt) >= 60 {
 		return fmt.Errorf("--tilt must be below 60°")
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}
