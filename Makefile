@@ -71,7 +71,8 @@ FUZZ_TARGETS := \
 	./io/dicom/:FuzzSeries \
 	./roi/:FuzzParseList \
 	./roi/phantom/:FuzzParse \
-	./roi/history/:FuzzParseQA
+	./roi/history/:FuzzParseQA \
+	./roi/history/:FuzzOpen
 fuzz:
 	@set -e; for t in $(FUZZ_TARGETS); do \
 		pkg=$${t%%:*}; fn=$${t##*:}; \

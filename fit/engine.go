@@ -92,6 +92,9 @@ func RunTo(ctx context.Context, dst *Maps, im *volume.Image, m Model, opt *Optio
 	if _, err := m.NewFitter(im.Acq); err != nil {
 		return nil, err
 	}
+	if err := CheckWorkers(opt.Workers); err != nil {
+		return nil, err
+	}
 	workers := opt.Workers
 	if workers <= 0 {
 		workers = runtime.NumCPU()
@@ -195,6 +198,24 @@ func newWorker(m Model, im *volume.Image, opt *Options, thr float64) (*worker, e
 	}, nil
 }
 
+// WorkersPerCPU bounds the worker count: each worker holds its own
+// workspace and slab (tens of KiB to a few MiB), and more workers than a
+// small multiple of the CPUs only add memory and switching, never speed
+// (the engine is CPU-bound).
+const WorkersPerCPU = 16
+
+// CheckWorkers accepts a worker count of 0 (one per CPU) up to
+// WorkersPerCPU per CPU, and refuses anything else in one line.
+func CheckWorkers(n int) error {
+	if n < 0 {
+		return errors.New("--workers must be positive")
+	}
+	if lim := WorkersPerCPU * runtime.NumCPU(); n > lim {
+		return fmt.Errorf("--workers %d is above the limit of %d (%d per CPU on this machine's %d CPUs)", n, lim, WorkersPerCPU, runtime.NumCPU())
+	}
+	return nil
+}
+
 // load copies the samples of voxels lo…hi−1 into the slab.
 func (wk *worker) load(lo, hi int) {
 	wk.lo = lo
@@ -226,12 +247,27 @@ func (wk *worker) voxel(v int, maps *Maps) {
 		res.fail(Masked)
 	case wk.thr > 0 && !(peak >= wk.thr) && bad != (1<<uint(wk.nt))-1:
 		res.fail(Masked)
+	case bad != (1<<uint(wk.nt))-1 && !wk.signal(bad):
+		res.fail(NoSignal)
+	case wk.opt.B1 != nil && !(wk.opt.B1[v] >= MinB1 && wk.opt.B1[v] <= MaxB1):
+		res.fail(BadB1)
 	case bad == 0:
 		wk.fitter.Fit(res, wk.y, wk.cov(v))
 	default:
 		wk.fitSubset(v, bad)
 	}
 	wk.store(v, maps)
+}
+
+// signal reports whether some finite sample of the voxel in wk.y (bad
+// marks the non-finite ones) differs from zero.
+func (wk *worker) signal(bad uint64) bool {
+	for t := 0; t < wk.nt; t++ {
+		if bad&(1<<uint(t)) == 0 && wk.y[t] != 0 {
+			return true
+		}
+	}
+	return false
 }
 
 func (wk *worker) cov(v int) Covariates {

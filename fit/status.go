@@ -17,12 +17,29 @@ const (
 	NotConverged Status = 3
 	// OutOfBounds: the estimate fell outside the model's plausible range.
 	OutOfBounds Status = 4
+	// NoSignal: no finite sample differs from zero (an empty voxel, or a
+	// series of zeros). Nothing can be estimated from it; fitting would only
+	// return the solver's starting point.
+	NoSignal Status = 5
+	// BadB1: the voxel's B1 map value is not finite or outside
+	// [MinB1, MaxB1], so a model that needs it has nothing to correct with.
+	BadB1 Status = 6
 )
 
 // NumStatus is one more than the largest Status value.
-const NumStatus = 5
+const NumStatus = 7
 
-var statusNames = [NumStatus]string{"ok", "masked", "too-few-points", "not-converged", "out-of-bounds"}
+var statusNames = [NumStatus]string{"ok", "masked", "too-few-points", "not-converged", "out-of-bounds", "no-signal", "bad-b1"}
+
+// MinB1 and MaxB1 bound a usable relative transmit field (flip angle
+// achieved / flip angle set). Measured B1 maps of the head and body at 1.5
+// and 3 T lie well inside 0.3–2 (common practice); a value of 0 or below
+// is no measurement at all (a masked or failed B1 voxel), and one beyond
+// 2.5 is more likely a map in percent or in degrees than a real field.
+const (
+	MinB1 = 0.05
+	MaxB1 = 2.5
+)
 
 // String returns the short name of the status, as used in provenance files.
 func (s Status) String() string {

@@ -8,11 +8,11 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"sort"
 	"strconv"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -45,11 +45,22 @@ type Region struct {
 // maxRegions bounds a region list.
 const maxRegions = 100000
 
+// MaxRegionVoxels bounds the voxel indices all regions of one call to
+// Spheres may hold together (8 bytes each: 512 MiB), checked while the
+// regions are made so that a list of many large spheres is refused before
+// it exhausts memory.
+const MaxRegionVoxels = 1 << 26
+
+// maxLabel is the largest label value a label image may carry: samples are
+// float32, which hold every whole number up to 2^24 exactly (IEEE 754
+// binary32, 24-bit significand) and no longer tell 2^24+1 from 2^24.
+const maxLabel = 1 << 24
+
 // ReadList reads a region list: CSV with the header name,x,y,z,radius,space
 // or a JSON list of objects with those keys (chosen by the first
 // non-blank byte).
 func ReadList(path string) ([]Spec, error) {
-	b, err := os.ReadFile(path)
+	b, err := regular.ReadFile(path)
 	if err != nil {
 		return nil, err
 	}
@@ -165,9 +176,15 @@ func parseCSV(b []byte) ([]Spec, error) {
 // with the smallest voxel size). A region that holds no voxel of the image
 // (outside it, or eroded away) is an error naming it.
 func Spheres(im *volume.Image, specs []Spec, erode float64) ([]Region, error) {
+	return spheres(im, specs, erode, MaxRegionVoxels)
+}
+
+// spheres is Spheres with the voxel limit given.
+func spheres(im *volume.Image, specs []Spec, erode float64, limit int) ([]Region, error) {
 	vs := im.Affine.VoxelSize()
 	minVox := math.Min(vs[0], math.Min(vs[1], vs[2]))
 	var out []Region
+	total := 0
 	for _, s := range specs {
 		c := [3]float64{s.X, s.Y, s.Z}
 		r := s.Radius
@@ -180,9 +197,12 @@ func Spheres(im *volume.Image, specs []Spec, erode float64) ([]Region, error) {
 		if !(r > 0) {
 			return nil, fmt.Errorf("region %q: radius %g mm leaves nothing after --erode %g mm", s.Name, r+erode, erode)
 		}
-		idx := Sphere(im, c, r)
+		idx := sphere(im, c, r, limit-total)
 		if len(idx) == 0 {
 			return nil, fmt.Errorf("region %q at (%g, %g, %g) %s holds no voxel of the image", s.Name, s.X, s.Y, s.Z, s.Space)
+		}
+		if total += len(idx); total > limit {
+			return nil, fmt.Errorf("the regions up to %q hold more than %d voxels in all (each voxel counted once per region it lies in), the limit; use fewer or smaller regions", s.Name, limit)
 		}
 		out = append(out, Region{Name: s.Name, Index: idx, Center: c})
 	}
@@ -220,7 +240,13 @@ func Labels(im, labels *volume.Image, erode float64) ([]Region, error) {
 					}
 					f = labels.Data[ai+lx*(bi+ly*ci)]
 				}
-				if f > 0 && f == float32(math.Round(float64(f))) && f < 1<<24 {
+				switch {
+				case f == 0 || f < 0:
+				case f != float32(math.Round(float64(f))):
+					return nil, fmt.Errorf("label value %g at voxel (%d, %d, %d) is not a whole number: not a label image (resampled with interpolation?)", f, i, j, k)
+				case f > maxLabel:
+					return nil, fmt.Errorf("label value %g at voxel (%d, %d, %d) is above %d, the largest label whose neighbours float32 samples still tell apart", f, i, j, k, maxLabel)
+				default:
 					lab[v] = int(f)
 				}
 			}

@@ -86,6 +86,12 @@ func quantile(x []float64, p float64) float64 {
 // centres lie within radius mm of the scanner position c (RAS mm). The
 // search is bounded to the sphere's box, clipped to the image.
 func Sphere(im *volume.Image, c [3]float64, radius float64) []int {
+	return sphere(im, c, radius, math.MaxInt)
+}
+
+// sphere is Sphere stopping once more than limit voxels are found (it then
+// returns limit+1 of them, enough to tell the caller the limit is passed).
+func sphere(im *volume.Image, c [3]float64, radius float64, limit int) []int {
 	inv, ok := im.Affine.Inverse()
 	if !ok {
 		return nil
@@ -106,6 +112,9 @@ func Sphere(im *volume.Image, c [3]float64, radius float64) []int {
 				x, y, z := im.Affine.Apply(float64(i), float64(j), float64(k))
 				dx, dy, dz := x-c[0], y-c[1], z-c[2]
 				if dx*dx+dy*dy+dz*dz <= r2 {
+					if len(idx) > limit {
+						return idx
+					}
 					idx = append(idx, i+im.Dims[0]*(j+im.Dims[1]*k))
 				}
 			}

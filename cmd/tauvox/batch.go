@@ -97,8 +97,8 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 		return fmt.Errorf("--out is required (see --help)")
 	case a.jobs < 1:
 		return fmt.Errorf("--jobs must be at least 1")
-	case a.workers < 0:
-		return fmt.Errorf("--workers must be positive")
+	case fit.CheckWorkers(a.workers) != nil:
+		return fit.CheckWorkers(a.workers)
 	}
 	a.root = pos[0]
 	a.modelOf = map[string]string{}

@@ -42,7 +42,7 @@ verdict table and the drift table.`, e)
 	if sessions < 3 || sessions > 36 {
 		return fmt.Errorf("--sessions must be 3…36")
 	}
-	st, err := mapset.NewStage(out, force)
+	st, err := newStage(e, out, force)
 	if err != nil {
 		return err
 	}

@@ -88,7 +88,7 @@ func runExport(ctx context.Context, args []string, e *env) error {
 			}
 		}
 	}
-	st, err := mapset.NewStage(out, force)
+	st, err := newStage(e, out, force)
 	if err != nil {
 		return err
 	}

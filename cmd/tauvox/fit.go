@@ -144,8 +144,8 @@ func runFit(ctx context.Context, args []string, e *env) error {
 		return fmt.Errorf("--model is required (see --help)")
 	case a.out == "":
 		return fmt.Errorf("--out is required (see --help)")
-	case a.workers < 0:
-		return fmt.Errorf("--workers must be positive")
+	case fit.CheckWorkers(a.workers) != nil:
+		return fit.CheckWorkers(a.workers)
 	case a.noise != "gaussian" && a.noise != "rician":
 		return fmt.Errorf("--noise must be gaussian or rician")
 	case a.sigma < 0 || math.IsNaN(a.sigma):
@@ -274,7 +274,7 @@ func fitInMemory(ctx context.Context, a *fitArgs, e *env) error {
 		}
 		return fmt.Errorf("%s: model %s: %v%s", a.series, model.Name(), err, hint)
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}
@@ -612,7 +612,7 @@ func fitStream(ctx context.Context, a *fitArgs, e *env) (err error) {
 	if err != nil {
 		return err
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}

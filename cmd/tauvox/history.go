@@ -13,6 +13,7 @@ import (
 	"strings"
 	"text/tabwriter"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/roi/history"
@@ -85,7 +86,7 @@ func historyAdd(ctx context.Context, args []string, e *env) error {
 	// Read and check every file before touching the database.
 	data := make([][]byte, len(pos))
 	for i, p := range pos {
-		b, err := os.ReadFile(p)
+		b, err := regular.ReadFile(p)
 		if err != nil {
 			return err
 		}

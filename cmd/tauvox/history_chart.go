@@ -8,7 +8,6 @@ import (
 	"path/filepath"
 	"time"
 
-	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/report"
 
 	"github.com/tauvox/tauvox/roi/history"
@@ -125,7 +124,7 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}

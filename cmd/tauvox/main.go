@@ -134,8 +134,12 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	return 2
 }
 
+// oneLine folds s into one line of printable text: every error line and
+// every table cell taken from a file goes through it, so that escape
+// sequences in a file (a phantom name, a scanner name) never reach the
+// terminal (printable, as scan uses).
 func oneLine(s string) string {
-	return strings.Join(strings.Fields(s), " ")
+	return printable(strings.Join(strings.Fields(s), " "))
 }
 
 func usage(w io.Writer) {

@@ -268,8 +268,9 @@ func TestBadInput(t *testing.T) {
 		m.Data[i] = 1
 	}
 	nifti.Write(mask, m, nil)
-	exists := filepath.Join(dir, "exists")
+	exists := filepath.Join(dir, "exists") // not empty: an empty folder is accepted as --out
 	os.Mkdir(exists, 0o755)
+	os.WriteFile(filepath.Join(exists, "notes.txt"), []byte("a user's file"), 0o644)
 	notNifti := write("notes.nii", []byte("hello, this is not an image at all, but it is long enough to be read as one................................................................................................................................................................................................................................................................................................................................"))
 
 	cases := []struct {
@@ -320,7 +321,7 @@ func TestBadInput(t *testing.T) {
 			t.Errorf("%s: temporary folder left: %v", c.name, left)
 		}
 	}
-	if entries, _ := os.ReadDir(exists); len(entries) != 0 {
+	if entries, _ := os.ReadDir(exists); len(entries) != 1 {
 		t.Error("existing output folder was touched")
 	}
 }

@@ -118,7 +118,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if err != nil {
 		return err
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}

@@ -6,6 +6,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+
+	"github.com/tauvox/tauvox/io/mapset"
 )
 
 // checkOutput refuses an output path (folder or file) that would mix with
@@ -33,15 +35,45 @@ func checkOutput(out string, inputs ...string) error {
 		st, statErr := os.Stat(p)
 		isDir := statErr == nil && st.IsDir()
 		switch {
-		case o == p:
+		case o == p || sameFile(o, p):
 			return fmt.Errorf("%s: --out is the input %s; choose another output", out, in)
-		case isDir && within(o, p):
+		case isDir && (within(o, p) || insideByID(o, p)):
 			return fmt.Errorf("%s: --out lies inside the input folder %s (a later scan of it would read the outputs as input); choose a folder outside it", out, in)
-		case within(p, o):
+		case within(p, o) || insideByID(p, o):
 			return fmt.Errorf("%s: --out contains the input %s (replacing it would delete the input); choose a folder that does not hold the inputs", out, in)
 		}
 	}
 	return nil
+}
+
+// sameFile reports whether paths a and b both exist and are the same file
+// or folder (device and inode: through bind mounts and hard links too).
+func sameFile(a, b string) bool {
+	sa, err := os.Stat(a)
+	if err != nil {
+		return false
+	}
+	sb, err := os.Stat(b)
+	return err == nil && os.SameFile(sa, sb)
+}
+
+// insideByID reports whether an existing folder above p (p itself
+// excluded) is the folder dir by device and inode, so that another path to
+// the same folder (a bind mount, an alias the strings do not show) is
+// caught as well.
+func insideByID(p, dir string) bool {
+	sd, err := os.Stat(dir)
+	if err != nil || !sd.IsDir() {
+		return false
+	}
+	for cur := filepath.Dir(p); ; cur = filepath.Dir(cur) {
+		if st, err := os.Stat(cur); err == nil && os.SameFile(st, sd) {
+			return true
+		}
+		if filepath.Dir(cur) == cur {
+			return false
+		}
+	}
 }
 
 // within reports whether path p lies strictly inside folder dir (both
@@ -72,4 +104,18 @@ func resolvePath(p string) (string, error) {
 		rest = filepath.Join(filepath.Base(cur), rest)
 		cur = parent
 	}
+}
+
+// newStage starts an output folder (mapset.NewStage) and prints, as notes,
+// what it did to the leftovers of an earlier run of the same output that
+// was killed (an interrupted replacement rolled back or finished).
+func newStage(e *env, out string, force bool) (*mapset.Stage, error) {
+	st, err := mapset.NewStage(out, force)
+	if err != nil {
+		return nil, err
+	}
+	for _, n := range st.Notes() {
+		fmt.Fprintln(e.stderr, "tauvox: note: "+printable(n))
+	}
+	return st, nil
 }

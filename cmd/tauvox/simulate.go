@@ -14,7 +14,6 @@ import (
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/dicom"
-	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/volume"
@@ -201,7 +200,7 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 	if math.Abs(a.tilt) >= 60 {
 		return fmt.Errorf("--tilt must be below 60°")
 	}
-	st, err := mapset.NewStage(a.out, a.force)
+	st, err := newStage(e, a.out, a.force)
 	if err != nil {
 		return err
 	}
@@ -260,6 +259,13 @@ func simulateInto(st pather, a *simArgs) ([]string, error) {
 		for i := range acq {
 			o.put(&acq[i], o.l.vals[i])
 		}
+	}
+	// The series is made in memory as float32; refuse before allocating
+	// what tauvox could not read back (nifti.DefaultMaxBytes bounds one
+	// image read, 2 GiB).
+	if need := int64(a.matrix) * int64(a.matrix) * int64(a.slices) * int64(len(acq)) * 4; need > nifti.DefaultMaxBytes {
+		return nil, fmt.Errorf("a %d×%d×%d series of %d volumes needs %.1f GiB in memory (float32), above the limit of %.1f GiB for one image; use a smaller --matrix or fewer --slices",
+			a.matrix, a.matrix, a.slices, len(acq), float64(need)/(1<<30), float64(nifti.DefaultMaxBytes)/(1<<30))
 	}
 	sc := a.scene()
 	for id := range a.drift {

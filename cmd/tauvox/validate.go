@@ -73,8 +73,8 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 		return fmt.Errorf("--snr must be positive")
 	case trials < 2 || trials > 10_000_000:
 		return fmt.Errorf("--trials must be 2 to 10000000")
-	case workers < 0:
-		return fmt.Errorf("--workers must be positive")
+	case fit.CheckWorkers(workers) != nil:
+		return fit.CheckWorkers(workers)
 	case noise != "gaussian" && noise != "rician":
 		return fmt.Errorf("--noise must be gaussian or rician")
 	case plotFile != "" && !strings.HasSuffix(strings.ToLower(plotFile), ".svg") && !strings.HasSuffix(strings.ToLower(plotFile), ".png"):

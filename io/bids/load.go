@@ -9,6 +9,7 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
@@ -74,7 +75,7 @@ func Sidecars(root, path string) ([]string, error) {
 func readMerged(paths []string, name string) (*sidecar.Sidecar, error) {
 	merged := map[string]json.RawMessage{}
 	for _, p := range paths {
-		b, err := os.ReadFile(p)
+		b, err := regular.ReadFile(p)
 		if err != nil {
 			return nil, err
 		}

@@ -117,6 +117,20 @@ func TestBrokenInputs(t *testing.T) {
 		}), scan: "sequences nested deeper than 16", kind: &FormatError{}},
 		{name: "unknown transfer syntax", data: fileWith("1.2.3.4.5", nil), scan: `unknown transfer syntax "1.2.3.4.5"`, kind: &UnsupportedError{}},
 		{name: "JPEG-LS", data: fileWith("1.2.840.10008.1.2.4.80", nil), load: "transfer syntax JPEG-LS Lossless Image Compression (1.2.840.10008.1.2.4.80) is compressed", kind: &UnsupportedError{}},
+		// A present RescaleSlope of 0, NaN or Inf, or text that is no
+		// number, cannot scale pixels (PS3.3 C.11.1.1.2 defines the
+		// identity only for an absent Modality LUT): the file is refused,
+		// never read with a slope of 1.
+		{name: "slope 0", data: fileWith(tsExplicitLE, func(d *dataset) { d.ds(0x00281053, 0); d.ds(0x00281052, 0) }),
+			scan: "RescaleSlope (0028,1053) is 0: every pixel would take the intercept's value", kind: &FormatError{}},
+		{name: "slope NaN", data: fileWith(tsExplicitLE, func(d *dataset) { d.str(0x00281053, "DS", "NaN") }),
+			scan: "RescaleSlope (0028,1053) is NaN", kind: &FormatError{}},
+		{name: "slope Inf", data: fileWith(tsExplicitLE, func(d *dataset) { d.str(0x00281053, "DS", "1e999") }),
+			scan: `RescaleSlope (0028,1053) "1e999" is not a finite number`, kind: &FormatError{}},
+		{name: "slope text", data: fileWith(tsExplicitLE, func(d *dataset) { d.str(0x00281053, "DS", "two") }),
+			scan: `RescaleSlope (0028,1053) "two" is not a finite number`, kind: &FormatError{}},
+		{name: "intercept NaN", data: fileWith(tsExplicitLE, func(d *dataset) { d.str(0x00281052, "DS", "nan") }),
+			scan: "RescaleIntercept (0028,1052) is NaN", kind: &FormatError{}},
 		{name: "RLE", data: fileWith("1.2.840.10008.1.2.5", nil), load: "transfer syntax RLE Lossless (1.2.840.10008.1.2.5) is compressed", kind: &UnsupportedError{}},
 		{name: "zero rows", data: fileWith(tsExplicitLE, replace(0x00280010, func(d *dataset) { d.us(0x00280010, 0) })), scan: "impossible matrix 3×0", kind: &FormatError{}},
 		{name: "frames", data: fileWith(tsExplicitLE, func(d *dataset) { d.is(0x00280008, 10000000) }), scan: "impossible NumberOfFrames 10000000", kind: &FormatError{}},

@@ -187,6 +187,9 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	if v, ok := integer(top, tag.EchoNumbers); ok {
 		base.echo = v
 	}
+	if bad := badRescale(top); bad != "" {
+		return nil, formatErr(rf.path, bad, nil)
+	}
 	base.hasIPP = vec(top, tag.ImagePositionPatient, base.ipp[:])
 	base.hasIOP = vec(top, tag.ImageOrientationPatient, base.iop[:])
 	base.hasPS = vec(top, tag.PixelSpacing, base.spacing[:])
@@ -239,6 +242,9 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 			fr.fa = numOr(m, tag.FlipAngle, fr.fa)
 		}
 		if m := macro(tag.PixelValueTransformationSequence); m != nil {
+			if bad := badRescale(m); bad != "" {
+				return nil, formatErr(rf.path, fmt.Sprintf("frame %d: %s", k+1, bad), nil)
+			}
 			fr.slope = numOr(m, tag.RescaleSlope, fr.slope)
 			fr.intercept = numOr(m, tag.RescaleIntercept, fr.intercept)
 		}
@@ -411,6 +417,41 @@ func numOr(elems []*lib.Element, t tag.Tag, def float64) float64 {
 		return v[0]
 	}
 	return def
+}
+
+// badRescale describes a RescaleSlope or RescaleIntercept that is present
+// but cannot scale pixel values: a slope of 0 (every value would become the
+// intercept), a value that is not a finite number, or text that is not a
+// decimal string. Absent or empty values are not an error: PS3.3 C.11.1.1.2
+// makes the identity the meaning of no Modality LUT. Treating a present but
+// invalid slope as 1 would give numbers with no evidence behind them.
+func badRescale(elems []*lib.Element) string {
+	for _, t := range []tag.Tag{tag.RescaleSlope, tag.RescaleIntercept} {
+		name := "RescaleSlope (0028,1053)"
+		if t == tag.RescaleIntercept {
+			name = "RescaleIntercept (0028,1052)"
+		}
+		e := find(elems, t)
+		if e == nil || e.Value == nil {
+			continue
+		}
+		raw := strings.TrimSpace(strings.Trim(str(elems, t), "\x00"))
+		if raw == "" {
+			if _, isText := e.Value.GetValue().([]string); isText {
+				continue
+			}
+		}
+		v := nums(elems, t)
+		switch {
+		case len(v) == 0:
+			return fmt.Sprintf("%s %q is not a finite number", name, raw)
+		case math.IsNaN(v[0]) || math.IsInf(v[0], 0):
+			return fmt.Sprintf("%s is %v: pixel values cannot be scaled", name, v[0])
+		case t == tag.RescaleSlope && v[0] == 0:
+			return name + " is 0: every pixel would take the intercept's value"
+		}
+	}
+	return ""
 }
 
 func integer(elems []*lib.Element, t tag.Tag) (int, bool) {

@@ -6,8 +6,8 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -95,7 +95,7 @@ func readPixels(f *fileInfo, buf []byte, maxBytes int64) ([]byte, error) {
 		return nil, formatErr(path, fmt.Sprintf("pixel data has %d bytes but %d frames of %d×%d samples of %d bits need %d",
 			vl, f.nFrames, f.cols, f.rows, 8*bytesPerSample(f), need), nil)
 	}
-	file, err := os.Open(path)
+	file, err := regular.Open(path)
 	if err != nil {
 		return nil, &fileError{path, "open", err}
 	}
@@ -134,8 +134,8 @@ func readPixels(f *fileInfo, buf []byte, maxBytes int64) ([]byte, error) {
 // decode converts one frame of stored samples to rescaled float32.
 func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
 	slope, icpt := fr.slope, fr.intercept
-	if math.IsNaN(slope) || slope == 0 {
-		slope = 1 // absent (or an invalid zero): identity, PS3.3 C.11.1.1.2
+	if math.IsNaN(slope) {
+		slope = 1 // absent: identity, PS3.3 C.11.1.1.2 (a present invalid slope is refused by the header reader)
 	}
 	if math.IsNaN(icpt) {
 		icpt = 0

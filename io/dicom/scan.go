@@ -14,6 +14,7 @@ import (
 	"strconv"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -180,6 +181,11 @@ func Scan(paths []string, opt *ScanOptions) (*Catalog, error) {
 		if err != nil {
 			if errors.Is(err, errNotDICOM) {
 				c.Skipped++
+				continue
+			}
+			if errors.Is(err, regular.ErrNotRegular) {
+				c.Skipped++
+				c.problem(path, err) // a FIFO, socket or device: noted, not read
 				continue
 			}
 			c.Unreadable++

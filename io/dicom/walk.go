@@ -7,11 +7,12 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"os"
 	"strings"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 	"github.com/suyashkumar/dicom/pkg/uid"
+
+	"github.com/tauvox/tauvox/internal/regular"
 )
 
 // Transfer syntax UIDs (PS3.5 §10 and Annex A; values as in check-values
@@ -97,8 +98,11 @@ type rawFile struct {
 // element length against the bytes that are there before anything is
 // allocated for it. maxHead caps the bytes read.
 func readHead(path string, maxHead int64) (*rawFile, error) {
-	f, err := os.Open(path)
+	f, err := regular.Open(path)
 	if err != nil {
+		if errors.Is(err, regular.ErrNotRegular) {
+			return nil, err // skipped with a note by the scan, never opened blocking
+		}
 		return nil, &fileError{path, "open", err}
 	}
 	defer f.Close()

@@ -35,3 +35,15 @@ func abandoned(tmp string) bool {
 	defer f.Close() // releases the lock taken below
 	return syscall.Flock(int(f.Fd()), syscall.LOCK_EX|syscall.LOCK_NB) == nil
 }
+
+// owned reports whether the folder dir holds an owner file that a living
+// process keeps locked (a stage being written, or a finished one whose
+// owner has not yet let go).
+func owned(dir string) bool {
+	f, err := os.Open(filepath.Join(dir, ownerFile))
+	if err != nil {
+		return false
+	}
+	defer f.Close()
+	return syscall.Flock(int(f.Fd()), syscall.LOCK_EX|syscall.LOCK_NB) != nil
+}

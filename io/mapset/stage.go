@@ -3,12 +3,21 @@ package mapset
 import (
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
+	"sort"
+	"strings"
+	"syscall"
 )
 
 // ErrExists reports an output folder that exists when Force was not given.
 var ErrExists = errors.New("exists; use --force to replace it")
+
+// ErrChanged reports an output folder that appeared, or was replaced or
+// written into, while the stage was being built: the finished outputs are
+// not moved there, so nothing that appeared is lost.
+var ErrChanged = errors.New("changed while tauvox ran")
 
 // Stage is an output folder under construction.
 type Stage struct {
@@ -16,7 +25,10 @@ type Stage struct {
 	tmp    string
 	force  bool
 	done   bool
-	owner  *os.File // locked owner file inside tmp; nil where locks are unavailable
+	owner  *os.File    // locked owner file inside tmp; nil where locks are unavailable
+	start  os.FileInfo // the target as found at the start (nil: absent)
+	empty  bool        // the target was an empty folder at the start
+	notes  []string
 }
 
 // ownerFile is the file inside a temporary folder whose lock marks the
@@ -24,22 +36,31 @@ type Stage struct {
 const ownerFile = ".tauvox-owner"
 
 // NewStage prepares to write the folder dir: it refuses an existing dir
-// unless force is set, and creates an empty temporary folder beside it.
+// unless force is set or dir is an empty folder, and creates an empty
+// temporary folder beside it. It first tidies what earlier runs for the
+// same output left when they were killed (see Notes).
 func NewStage(dir string, force bool) (*Stage, error) {
 	dir = filepath.Clean(dir)
-	if st, err := os.Stat(dir); err == nil {
-		if !force {
-			return nil, fmt.Errorf("%s: %w", dir, ErrExists)
-		}
-		if !st.IsDir() {
-			return nil, fmt.Errorf("%s: exists and is not a folder", dir)
-		}
-	}
 	parent := filepath.Dir(dir)
 	if err := os.MkdirAll(parent, 0o755); err != nil {
 		return nil, err
 	}
-	sweep(parent, filepath.Base(dir))
+	s := &Stage{target: dir, force: force}
+	s.notes = sweep(parent, filepath.Base(dir))
+	if st, err := os.Lstat(dir); err == nil {
+		empty := st.IsDir() && isEmpty(dir)
+		switch {
+		case !force && !empty && len(s.notes) > 0:
+			return nil, fmt.Errorf("%s: %w (%s)", dir, ErrExists, strings.Join(s.notes, "; "))
+		case !force && !empty:
+			return nil, fmt.Errorf("%s: %w", dir, ErrExists)
+		case !st.IsDir():
+			return nil, fmt.Errorf("%s: exists and is not a folder", dir)
+		}
+		s.start, s.empty = st, empty
+	} else if !errors.Is(err, os.ErrNotExist) {
+		return nil, err
+	}
 	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
 	if err != nil {
 		return nil, err
@@ -55,22 +76,79 @@ func NewStage(dir string, force bool) (*Stage, error) {
 		os.RemoveAll(tmp)
 		return nil, err
 	}
-	s := &Stage{target: dir, tmp: tmp, force: force, owner: owner}
+	s.tmp, s.owner = tmp, owner
 	s.register()
 	return s, nil
 }
 
-// sweep removes the temporary folders of earlier runs for the same output
-// that were abandoned (their process was killed before it could clean
-// up): hidden folders named .NAME.tmp-* whose owner file nobody holds.
-// Folders of runs still writing, and anything not made by a Stage, stay.
-func sweep(parent, name string) {
-	old, _ := filepath.Glob(filepath.Join(parent, "."+name+".tmp-*"))
-	for _, d := range old {
-		if st, err := os.Lstat(d); err == nil && st.IsDir() && abandoned(d) {
-			os.RemoveAll(d)
+// Notes returns what NewStage did to leftovers of earlier, killed runs
+// for the same output (a half-done replacement rolled back or finished),
+// one line each, for the command to print.
+func (s *Stage) Notes() []string { return s.notes }
+
+// isEmpty reports whether the folder dir holds no entry.
+func isEmpty(dir string) bool {
+	f, err := os.Open(dir)
+	if err != nil {
+		return false
+	}
+	defer f.Close()
+	_, err = f.Readdirnames(1)
+	return errors.Is(err, io.EOF)
+}
+
+// sweep tidies what killed runs for the output parent/name left behind:
+//   - temporary folders (.NAME.tmp-*) whose owner file nobody holds are
+//     removed; folders of runs still writing, and anything not made by a
+//     Stage, stay;
+//   - previous outputs set aside by a replacement (.NAME.old-*): when no
+//     run is writing that output, a replacement killed between its two
+//     renames (NAME absent) is rolled back by moving the newest one back
+//     to NAME, and one killed while deleting it (NAME present) is finished
+//     by deleting it.
+//
+// It returns a note for each replacement rolled back or finished.
+func sweep(parent, name string) []string {
+	target := filepath.Join(parent, name)
+	live := held(target)
+	tmps, _ := filepath.Glob(filepath.Join(parent, "."+name+".tmp-*"))
+	for _, d := range tmps {
+		if st, err := os.Lstat(d); err == nil && st.IsDir() {
+			if abandoned(d) {
+				os.RemoveAll(d)
+			} else if owned(d) {
+				live = true
+			}
 		}
 	}
+	if live {
+		return nil
+	}
+	olds, _ := filepath.Glob(filepath.Join(parent, "."+name+".old-*"))
+	type old struct {
+		path string
+		mod  int64
+	}
+	var found []old
+	for _, d := range olds {
+		if st, err := os.Lstat(d); err == nil && st.IsDir() {
+			found = append(found, old{d, st.ModTime().UnixNano()})
+		}
+	}
+	sort.Slice(found, func(i, j int) bool { return found[i].mod > found[j].mod })
+	var notes []string
+	for _, o := range found {
+		if _, err := os.Lstat(target); errors.Is(err, os.ErrNotExist) {
+			if os.Rename(o.path, target) == nil {
+				notes = append(notes, fmt.Sprintf("%s: restored the previous outputs from %s, set aside by a replacement that was interrupted", target, filepath.Base(o.path)))
+				continue
+			}
+		}
+		if os.RemoveAll(o.path) == nil {
+			notes = append(notes, fmt.Sprintf("%s: finished an interrupted replacement (removed the previous outputs left in %s)", target, filepath.Base(o.path)))
+		}
+	}
+	return notes
 }
 
 // release drops the owner file of a finished stage now at dir.
@@ -88,40 +166,76 @@ func (s *Stage) Path(name string) string { return filepath.Join(s.tmp, name) }
 // Target returns the final folder.
 func (s *Stage) Target() string { return s.target }
 
-// Commit moves the finished folder into place, replacing an existing one
-// (Force) only after the new one is complete.
+// Commit moves the finished folder into place. A target absent at the
+// start must still be absent (an atomic rename that never replaces, where
+// the system has one); an empty folder found at the start must still be
+// that folder and empty; a folder to replace (Force) must still be the
+// folder found at the start, and is replaced only after the new one is
+// complete. Otherwise ErrChanged, and nothing at the target is touched.
 func (s *Stage) Commit() error {
 	if s.done {
 		return errors.New("mapset: stage already finished")
 	}
 	s.done = true
 	s.unregister()
-	if _, err := os.Stat(s.target); err == nil {
-		old, err := os.MkdirTemp(filepath.Dir(s.target), "."+filepath.Base(s.target)+".old-")
-		if err != nil {
-			s.release(s.tmp)
-			os.RemoveAll(s.tmp)
-			return err
-		}
-		os.Remove(old)
-		if err := os.Rename(s.target, old); err != nil {
-			s.release(s.tmp)
-			os.RemoveAll(s.tmp)
-			return err
-		}
-		if err := os.Rename(s.tmp, s.target); err != nil {
-			os.Rename(old, s.target)
-			s.release(s.tmp)
-			os.RemoveAll(s.tmp)
-			return err
-		}
-		s.release(s.target)
-		return os.RemoveAll(old)
-	}
-	if err := os.Rename(s.tmp, s.target); err != nil {
+	fail := func(err error) error {
 		s.release(s.tmp)
 		os.RemoveAll(s.tmp)
 		return err
+	}
+	changed := func(what string) error {
+		return fail(fmt.Errorf("%s: %w (%s); it was left as it is and the new outputs were not written", s.target, ErrChanged, what))
+	}
+	now, err := os.Lstat(s.target)
+	switch {
+	case err != nil && !errors.Is(err, os.ErrNotExist):
+		return fail(err)
+	case s.start == nil && err == nil:
+		return changed("a folder appeared there")
+	case s.start != nil && err != nil:
+		return changed("the folder was removed")
+	case s.start != nil && !os.SameFile(s.start, now):
+		return changed("another folder took its place")
+	case s.start != nil && !now.ModTime().Equal(s.start.ModTime()):
+		// The same inode number may be reused by a folder made anew after
+		// the old one was removed; a folder's time of modification changes
+		// whenever an entry is added, removed or renamed in it.
+		return changed("files were added to or removed from it")
+	}
+	switch {
+	case s.start == nil:
+		if err := renameNoReplace(s.tmp, s.target); err != nil {
+			if errors.Is(err, os.ErrExist) {
+				return changed("a folder appeared there")
+			}
+			return fail(err)
+		}
+	case s.empty:
+		// rename(2) replaces an empty folder and fails on one that is
+		// not empty any more (os.Rename refuses any folder: syscall).
+		if err := syscall.Rename(s.tmp, s.target); err != nil {
+			if !isEmpty(s.target) {
+				return changed("files were written into it")
+			}
+			return fail(err)
+		}
+	default:
+		old, err := os.MkdirTemp(filepath.Dir(s.target), "."+filepath.Base(s.target)+".old-")
+		if err != nil {
+			return fail(err)
+		}
+		os.Remove(old)
+		if err := os.Rename(s.target, old); err != nil {
+			return fail(err)
+		}
+		// A kill here leaves the previous outputs in old and the new ones
+		// in tmp; the next stage for this output rolls back (sweep).
+		if err := os.Rename(s.tmp, s.target); err != nil {
+			os.Rename(old, s.target)
+			return fail(err)
+		}
+		s.release(s.target)
+		return os.RemoveAll(old)
 	}
 	s.release(s.target)
 	return nil

@@ -3,6 +3,7 @@ package nifti
 import (
 	"bufio"
 	"encoding/binary"
+	"errors"
 	"fmt"
 	"github.com/klauspost/compress/gzip"
 	"hash/crc32"
@@ -12,6 +13,7 @@ import (
 	"strings"
 	"sync/atomic"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -211,8 +213,16 @@ type stream struct {
 }
 
 func openStream(path string) (*os.File, *stream, error) {
-	f, err := os.Open(path)
+	f, err := regular.Open(path)
 	if err != nil {
+		var nr *regular.NotRegularError
+		if errors.As(err, &nr) {
+			kind := nr.Kind
+			if kind == "folder" {
+				kind = "directory"
+			}
+			return nil, nil, formatErr(path, "is a "+kind+", not a NIfTI file", nil)
+		}
 		return nil, nil, &fileError{path, "cannot open", err}
 	}
 	fi, err := f.Stat()

@@ -11,6 +11,7 @@ import (
 	"regexp"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/volume"
 )
 
@@ -101,8 +102,12 @@ func oneLine(s string) string {
 
 // Read reads and checks the sidecar at path.
 func Read(path string) (*Sidecar, error) {
-	f, err := os.Open(path)
+	f, err := regular.Open(path)
 	if err != nil {
+		var nr *regular.NotRegularError
+		if errors.As(err, &nr) {
+			return nil, &Error{Path: path, Reason: "is a " + nr.Kind + ", not a sidecar file"}
+		}
 		var pe *os.PathError
 		if errors.As(err, &pe) {
 			return nil, &Error{Path: path, Reason: "cannot open", Err: pe.Err}
@@ -410,8 +415,9 @@ func (s *Sidecar) ApplySource(src *volume.Source) {
 }
 
 // ForImage returns the sidecar path of a NIfTI image, x.json for x.nii,
-// x.nii.gz, x.hdr or x.img (case-insensitive extension), and whether that
-// file exists as a regular file.
+// x.nii.gz, x.hdr or x.img (case-insensitive extension), and whether
+// something other than a folder stands there. A FIFO or device counts, so
+// that Read refuses it by name instead of the sidecar seeming absent.
 func ForImage(niftiPath string) (string, bool) {
 	base := niftiPath
 	lower := strings.ToLower(base)
@@ -423,5 +429,5 @@ func ForImage(niftiPath string) (string, bool) {
 	}
 	p := base + ".json"
 	fi, err := os.Stat(p)
-	return p, err == nil && fi.Mode().IsRegular()
+	return p, err == nil && !fi.IsDir()
 }

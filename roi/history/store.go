@@ -16,6 +16,7 @@ import (
 
 	_ "modernc.org/sqlite" // registers the "sqlite" driver
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
@@ -99,6 +100,10 @@ func Open(path string, opt *Options) (*Store, error) {
 	if st, err := os.Stat(path); err == nil && st.IsDir() {
 		return nil, fmt.Errorf("%s: is a folder, not a database file", path)
 	}
+	// SQLite would block for ever opening a FIFO with no writer.
+	if err := regular.Check(path); err != nil {
+		return nil, err
+	}
 	dsn := fmt.Sprintf("file:%s?_pragma=busy_timeout(%d)&_pragma=foreign_keys(1)&_txlock=immediate", path, bt.Milliseconds())
 	if opt.ReadOnly {
 		dsn += "&mode=ro"
@@ -153,6 +158,9 @@ func (s *Store) init(opt *Options) error {
 		if n > 0 {
 			return fmt.Errorf("%s: an SQLite database that is not a tauvox history", s.path)
 		}
+	}
+	if v < 0 {
+		return fmt.Errorf("%s: schema version %d is not one tauvox writes; not a tauvox history database", s.path, v)
 	}
 	if v > SchemaVersion {
 		return fmt.Errorf("%s: schema version %d is newer than this tauvox (%d); upgrade tauvox", s.path, v, SchemaVersion)

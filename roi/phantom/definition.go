@@ -7,9 +7,10 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"os"
 	"sort"
 	"strings"
+
+	"github.com/tauvox/tauvox/internal/regular"
 )
 
 // FormatV1 is the format tag of a phantom definition.
@@ -84,7 +85,7 @@ func DemoJSON() []byte { return append([]byte(nil), demoJSON...) }
 
 // Read reads and checks a phantom definition file.
 func Read(path string) (*Definition, error) {
-	b, err := os.ReadFile(path)
+	b, err := regular.ReadFile(path)
 	if err != nil {
 		return nil, err
 	}
