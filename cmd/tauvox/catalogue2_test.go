@@ -285,7 +285,7 @@ func TestOutputAppearsMidRun(t *testing.T) {
 	if err != nil || string(b) != "user data" {
 		t.Fatalf("the folder made during the run lost its file (%v); fit exit %d: %s", err, code, stderr)
 	}
-	if code != 2 || !strings.Contains(stderr, out+": changed while tauvox ran (a folder appeared there)") || strings.Count(strings.TrimRight(stderr, "\n"), "\n") != 0 {
+	if code != 2 || !strings.Contains(stderr, out+": changed during the run (a folder appeared there)") || strings.Count(strings.TrimRight(stderr, "\n"), "\n") != 0 {
 		t.Errorf("exit %d: %q", code, stderr)
 	}
 	if m, _ := filepath.Glob(filepath.Join(f.root, ".race.*")); len(m) > 0 {

@@ -17,7 +17,7 @@ var ErrExists = errors.New("exists; use --force to replace it")
 // ErrChanged reports an output folder that appeared, or was replaced or
 // written into, while the stage was being built: the finished outputs are
 // not moved there, so nothing that appeared is lost.
-var ErrChanged = errors.New("changed while tauvox ran")
+var ErrChanged = errors.New("changed during the run")
 
 // Stage is an output folder under construction.
 type Stage struct {

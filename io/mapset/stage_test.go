@@ -121,7 +121,7 @@ func TestCommitRaces(t *testing.T) {
 			if got := exists(filepath.Join(out, "T2map.nii.gz")); got == tc.changed {
 				t.Errorf("new outputs written: %v, want %v (%v)", got, !tc.changed, err)
 			}
-			if tc.changed && err != nil && !strings.Contains(err.Error(), out+": changed while tauvox ran") {
+			if tc.changed && err != nil && !strings.Contains(err.Error(), out+": changed during the run") {
 				t.Errorf("message %q", err)
 			}
 			if olds, _ := filepath.Glob(filepath.Join(filepath.Dir(out), ".maps.old-*")); len(olds) > 0 {
