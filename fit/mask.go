@@ -3,7 +3,7 @@ package fit
 import (
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // AutoThreshold returns the automatic masking threshold of a series: half

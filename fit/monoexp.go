@@ -5,7 +5,7 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Method names an estimation method.

@@ -4,7 +4,7 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Shared pieces of the T1 models (InversionRecovery, SaturationRecovery,

@@ -5,7 +5,7 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Dictionary is the estimation method that stops at the best dictionary

@@ -1,12 +1,9 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -16,10 +13,9 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/bids"
 	"github.com/tauvox/tauvox/io/mapset"
-	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
 )
 
 const batchSummary = `Fits every relaxometry series of a BIDS dataset and writes the maps as a
@@ -97,7 +93,7 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 	}
 	a.root = pos[0]
 	a.modelOf = map[string]string{}
-	for s, m := range bids.DefaultModels {
+	for s, m := range fit.DefaultSuffixes() {
 		a.modelOf[s] = m
 	}
 	for _, kv := range a.models {
@@ -124,22 +120,15 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 
 // batchJob is one series of the plan.
 type batchJob struct {
-	c        *bids.Collection
-	model    fit.Model
-	labelled bool   // the relaxometry maps carry desc-<SUFFIX> (see bids.DerivativeName)
-	dir      string // output folder of the series
+	pub   bids.Publication
+	c     *bids.Collection
+	model fit.Model
 }
 
-func (j *batchJob) name(stem, ext string) string {
-	return bids.DerivativeName(j.c.Base, j.c.Suffix, stem, ext, j.labelled)
-}
+func (j *batchJob) name(stem, ext string) string { return j.pub.Name(stem, ext) }
 
-func (j *batchJob) provenancePath() string {
-	return filepath.Join(j.dir, j.name("provenance", ".json"))
-}
-
-// stems returns the output stems of a fit with the model, as io/mapset
-// names them.
+// stems returns the output stems of a fit with the model, as the
+// pipeline names them.
 func stems(m fit.Model) []string {
 	var s []string
 	for _, p := range m.Outputs() {
@@ -164,7 +153,7 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 	if len(ds.Collections) == 0 {
 		return fmt.Errorf("%s: no %s series found", a.root, strings.Join(suffixes, ", "))
 	}
-	if err := checkDerivative(a.out); err != nil {
+	if err := bids.CheckDerivative(a.out); err != nil {
 		return err
 	}
 	// Plan: one job per collection; relaxometry maps that two series of
@@ -176,11 +165,13 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 		if err != nil {
 			return err
 		}
-		j := &batchJob{c: c, model: m, dir: filepath.Join(a.out, filepath.FromSlash(c.Dir))}
+		info, _ := fit.Lookup(m.Name())
+		j := &batchJob{c: c, model: m, pub: bids.Publication{Collection: c, Dir: filepath.Join(a.out, filepath.FromSlash(c.Dir)),
+			Stems: stems(m), Reference: info.Reference}}
 		jobs = append(jobs, j)
 		for _, s := range stems(m) {
 			if bids.IsQuantityMap(s) {
-				k := filepath.Join(j.dir, j.name(s, ""))
+				k := filepath.Join(j.pub.Dir, j.name(s, ""))
 				claims[k] = append(claims[k], j)
 			}
 		}
@@ -188,7 +179,7 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 	for _, js := range claims {
 		if len(js) > 1 {
 			for _, j := range js {
-				j.labelled = true
+				j.pub.Labelled = true
 			}
 		}
 	}
@@ -202,7 +193,7 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 					state = "fit (" + why + ")"
 				}
 			}
-			fmt.Fprintf(e.stdout, "%s\t%s\t%d files\t%s → %s\n", j.c.ID(), j.model.Name(), len(j.c.Files), state, filepath.Join(j.dir, j.name(j.primary(), ".nii.gz")))
+			fmt.Fprintf(e.stdout, "%s\t%s\t%d files\t%s → %s\n", j.c.ID(), j.model.Name(), len(j.c.Files), state, filepath.Join(j.pub.Dir, j.name(j.primary(), ".nii.gz")))
 		}
 		return nil
 	}
@@ -246,25 +237,6 @@ func (j *batchJob) primary() string {
 	return j.model.Outputs()[0].Map
 }
 
-// checkDerivative refuses an output folder that holds a dataset not made
-// by tauvox.
-func checkDerivative(dir string) error {
-	b, err := os.ReadFile(filepath.Join(dir, "dataset_description.json"))
-	if errors.Is(err, os.ErrNotExist) {
-		return nil
-	} else if err != nil {
-		return err
-	}
-	var d bids.Description
-	if err := json.Unmarshal(b, &d); err != nil {
-		return fmt.Errorf("%s: dataset_description.json: %v", dir, err)
-	}
-	if d.DatasetType != "derivative" || len(d.GeneratedBy) == 0 || d.GeneratedBy[0].Name != "tauvox" {
-		return fmt.Errorf("%s: holds a dataset not made by tauvox (dataset_description.json); give another --out", dir)
-	}
-	return nil
-}
-
 func (a *batchArgs) say(e *env, failed bool, format string, args ...any) {
 	a.mu.Lock()
 	defer a.mu.Unlock()
@@ -303,32 +275,37 @@ func (a *batchArgs) runJob(ctx context.Context, j *batchJob, workers int, e *env
 		return
 	}
 	a.say(e, false, "%s: %s/%s → %s (%s; %.2f s)", j.c.ID(), j.model.Name(), j.model.Method(),
-		filepath.Join(j.dir, j.name(j.primary(), ".nii.gz")), statusLine(counts), time.Since(t0).Seconds())
+		filepath.Join(j.pub.Dir, j.name(j.primary(), ".nii.gz")), statusLine(counts), time.Since(t0).Seconds())
 }
 
-// batchSettings are the settings recorded for (and compared on) a series.
-// The worker count is recorded in the provenance but not compared: the
-// maps do not depend on it.
-func (j *batchJob) settings() map[string]any {
-	return map[string]any{
-		"model": j.model.Name(), "method": j.model.Method(), "suffix": j.c.Suffix,
-		"threshold": 0.0, "no_mask": false, "skip_echoes": 0, "offset": false, "noise": "gaussian",
-		"solver": "dedicated", "source": j.c.ID(), "labelled": j.labelled,
-	}
+// config returns the pipeline's settings for the job: the model's
+// defaults, the automatic mask, and where the maps are staged.
+func (j *batchJob) config(workers int) *pipeline.Config {
+	return &pipeline.Config{Series: "", Spec: fit.Spec{Model: j.model.Name()}, Workers: workers,
+		Out: j.workDir(), Force: true, NoPreview: true, Version: version(),
+		Hint:  " (the sidecars give the parameters)",
+		Extra: map[string]any{"suffix": j.c.Suffix, "source": j.c.ID(), "labelled": j.pub.Labelled}}
 }
 
-// batchProvenance is provenance.json of io/mapset with the BIDS names of
-// the outputs.
+// workDir is the hidden folder beside the outputs where the maps are
+// written before Publish gives them their BIDS names.
+func (j *batchJob) workDir() string {
+	return filepath.Join(j.pub.Dir, ".tauvox-"+j.c.Base.String()+"_"+j.c.Suffix)
+}
+
+// batchProvenance is the part of a published provenance that resuming
+// compares.
 type batchProvenance struct {
-	mapset.Provenance
-	BIDSSource string `json:"bids_source"`
+	Outputs  []string             `json:"outputs"`
+	Settings map[string]any       `json:"settings"`
+	Inputs   []mapset.InputRecord `json:"inputs"`
 }
 
 // finished reports whether the series' outputs exist and its provenance
 // records the same inputs (path relative to the dataset and SHA-256) and
 // settings; otherwise it says why not.
 func (j *batchJob) finished(a *batchArgs) (bool, string) {
-	b, err := os.ReadFile(j.provenancePath())
+	b, err := os.ReadFile(j.pub.ProvenancePath())
 	if err != nil {
 		return false, "not fitted yet"
 	}
@@ -337,11 +314,11 @@ func (j *batchJob) finished(a *batchArgs) (bool, string) {
 		return false, "provenance unreadable"
 	}
 	for _, o := range p.Outputs {
-		if _, err := os.Stat(filepath.Join(j.dir, o)); err != nil {
+		if _, err := os.Stat(filepath.Join(j.pub.Dir, o)); err != nil {
 			return false, "output " + o + " missing"
 		}
 	}
-	if !sameSettings(p.Settings, j.settings()) {
+	if !sameSettings(p.Settings, j.config(0).Settings(j.model, 0)) {
 		return false, "settings changed"
 	}
 	want, err := j.inputRecords()
@@ -416,161 +393,24 @@ func sameSettings(a, b map[string]any) bool {
 	return norm(a) == norm(b)
 }
 
-// estimationReference cites the method of each model for the
-// EstimationReference key of the sidecars (the sources of docs/methods.md
-// and check-values §6).
-var estimationReference = map[string]string{
-	"t2":     "Mono-exponential fit of a multi-echo spin-echo train (Carr & Purcell 1954; Meiboom & Gill 1958); see tauvox docs/methods.md",
-	"t2star": "Mono-exponential fit of a multi-echo gradient-echo train (common practice); see tauvox docs/methods.md",
-	"t1-ir":  "Barral JK et al. A robust methodology for in vivo T1 mapping. Magn Reson Med 2010;64(4):1057-1067. doi:10.1002/mrm.22497",
-	"t1-vfa": "Fram EK et al. Magn Reson Imaging 1987;5(3):201-208; Deoni SCL, Rutt BK, Peters TM. Magn Reson Med 2003;49:515-526",
-}
-
-// fitJob loads, fits and writes one series: the maps are written by
-// io/mapset into a hidden work folder beside the outputs, then renamed to
-// their BIDS names (sidecars rewritten with the BIDS keys), the
-// provenance last, so that a series counts as finished only when every
-// file is in place.
+// fitJob loads, fits and writes one series through the pipeline into a
+// hidden work folder beside the outputs, then publishes the files under
+// their BIDS names (bids.Publish; the provenance last).
 func (a *batchArgs) fitJob(ctx context.Context, j *batchJob, workers int) ([fit.NumStatus]int, error) {
 	var counts [fit.NumStatus]int
-	t0 := time.Now()
 	im, inputs, err := j.c.Load()
 	if err != nil {
 		return counts, err
 	}
-	if im.Volumes() < 2 {
-		return counts, fmt.Errorf("holds %d volume; a relaxation fit needs several", im.Volumes())
-	}
-	if _, err := j.model.NewFitter(im.Acq); err != nil {
-		return counts, fmt.Errorf("model %s: %v (the sidecars give the parameters)", j.model.Name(), err)
-	}
-	tLoad := time.Since(t0)
-	t1 := time.Now()
-	maps, err := fit.Run(ctx, im, j.model, &fit.Options{Workers: workers})
+	cfg := j.config(workers)
+	cfg.Image, cfg.Inputs = im, inputs
+	sum, err := pipeline.Run(ctx, cfg, nil)
 	if err != nil {
 		return counts, err
 	}
-	tFit := time.Since(t1)
-	if err := os.MkdirAll(j.dir, 0o755); err != nil {
+	defer os.RemoveAll(cfg.Out)
+	if err := bids.Publish(cfg.Out, &j.pub, im, inputs); err != nil {
 		return counts, err
 	}
-	work := filepath.Join(j.dir, ".tauvox-"+j.c.Base.String()+"_"+j.c.Suffix)
-	st, err := mapset.NewStage(work, true)
-	if err != nil {
-		return counts, err
-	}
-	defer st.Abort()
-	settings := j.settings()
-	settings["workers"] = workers
-	info := &mapset.Info{Model: j.model.Name(), Method: j.model.Method(), Version: version(), Settings: settings,
-		Inputs: inputs, Source: im.Source, Acq: im.Acq,
-		Timings: map[string]float64{"load": tLoad.Seconds(), "fit": tFit.Seconds()}}
-	if _, err := mapset.Write(st, maps, im, info); err != nil {
-		return counts, err
-	}
-	if err := st.Commit(); err != nil {
-		return counts, err
-	}
-	defer os.RemoveAll(work)
-	if err := j.publish(work, im, inputs); err != nil {
-		return counts, err
-	}
-	return maps.Counts, nil
-}
-
-// publish moves the files of the work folder to their BIDS names.
-func (j *batchJob) publish(work string, im *volume.Image, inputs []series.Input) error {
-	prov := j.provenancePath()
-	if err := os.Remove(prov); err != nil && !errors.Is(err, os.ErrNotExist) {
-		return err
-	}
-	var sources []string
-	for _, in := range inputs {
-		sources = append(sources, bids.URI("raw", j.c.Root, in.Path))
-	}
-	acqKeys := acquisitionKeys(im)
-	var outputs []string
-	for _, stem := range stems(j.model) {
-		src := filepath.Join(work, stem+".nii.gz")
-		dst := j.name(stem, ".nii.gz")
-		if err := os.Rename(src, filepath.Join(j.dir, dst)); err != nil {
-			return err
-		}
-		b, err := os.ReadFile(filepath.Join(work, stem+".json"))
-		if err != nil {
-			return err
-		}
-		var meta map[string]any
-		if err := json.Unmarshal(b, &meta); err != nil {
-			return fmt.Errorf("%s.json: %v", stem, err)
-		}
-		meta["Sources"] = sources
-		if r, ok := estimationReference[j.model.Name()]; ok {
-			meta["EstimationReference"] = r
-		}
-		for k, v := range acqKeys {
-			meta[k] = v
-		}
-		side := j.name(stem, ".json")
-		if err := writeJSON(filepath.Join(j.dir, side), meta); err != nil {
-			return err
-		}
-		outputs = append(outputs, dst, side)
-	}
-	b, err := os.ReadFile(filepath.Join(work, "provenance.json"))
-	if err != nil {
-		return err
-	}
-	var p batchProvenance
-	if err := json.Unmarshal(b, &p.Provenance); err != nil {
-		return fmt.Errorf("provenance.json: %v", err)
-	}
-	p.Outputs = outputs
-	p.BIDSSource = j.c.ID()
-	return writeJSON(prov, p)
-}
-
-func writeJSON(path string, v any) error {
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetEscapeHTML(false)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(v); err != nil {
-		return err
-	}
-	return series.WriteFileAtomic(path, buf.Bytes())
-}
-
-// acquisitionKeys returns the BIDS acquisition keys of the series for the
-// map sidecars (check-values §3.6: times in s, varying values as arrays).
-func acquisitionKeys(im *volume.Image) map[string]any {
-	out := map[string]any{}
-	put := func(key string, scale float64, get func(volume.Acquisition) float64) {
-		var vals []float64
-		distinct := map[float64]bool{}
-		for _, a := range im.Acq {
-			v := get(a)
-			if math.IsNaN(v) {
-				return
-			}
-			vals = append(vals, v*scale)
-			distinct[v] = true
-		}
-		if len(vals) == 0 {
-			return
-		}
-		if len(distinct) == 1 {
-			out[key] = vals[0]
-		} else {
-			out[key] = vals
-		}
-	}
-	put("EchoTime", 1e-3, func(a volume.Acquisition) float64 { return a.EchoTime })
-	put("InversionTime", 1e-3, func(a volume.Acquisition) float64 { return a.InversionTime })
-	put("RepetitionTime", 1e-3, func(a volume.Acquisition) float64 { return a.RepetitionTime })
-	put("FlipAngle", 1, func(a volume.Acquisition) float64 { return a.FlipAngle })
-	if f := im.Source.FieldStrength; f > 0 {
-		out["MagneticFieldStrength"] = f
-	}
-	return out
+	return sum.Counts, nil
 }

@@ -10,6 +10,8 @@ import (
 	"path/filepath"
 	"time"
 
+	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
@@ -77,8 +79,8 @@ verdict table and the drift table.`, e)
 				return err
 			}
 			fitDir := st.Path(filepath.Join(dir, "fit-"+j.kind))
-			a := &fitArgs{series: filepath.Join(sub, j.kind+".nii.gz"), out: fitDir, model: j.model, noise: j.noise, quiet: true}
-			if err := fitSeries(ctx, a, quiet); err != nil {
+			c := &pipeline.Config{Series: filepath.Join(sub, j.kind+".nii.gz"), Out: fitDir, Spec: fit.Spec{Model: j.model}, Rician: j.noise == "rician"}
+			if err := fitSeries(ctx, c, true, quiet); err != nil {
 				return err
 			}
 			fits = append(fits, fitDir)

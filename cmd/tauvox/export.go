@@ -2,16 +2,14 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
 	"os"
-	"path/filepath"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/preview"
 )
 
 const exportSummary = `Writes each map of a fit output folder (or a BIDS derivative folder) as a
@@ -105,7 +103,7 @@ func runExport(ctx context.Context, args []string, e *env) error {
 		if err != nil {
 			return err
 		}
-		q, unit := mapQuantity(folder.Maps[stem], stem)
+		q, unit := pipeline.MapQuantity(folder.Maps[stem], stem)
 		if strings.HasSuffix(stem, "fitquality") {
 			q, unit = "fitquality", "ratio" // R² of the fit, not the rate R2
 		}
@@ -130,25 +128,6 @@ func runExport(ctx context.Context, args []string, e *env) error {
 		fmt.Fprintf(e.stdout, "wrote %d parametric map%s into %s: %s\n", len(stems), map[bool]string{true: "", false: "s"}[len(stems) == 1], out, strings.Join(stems, ", "))
 	}
 	return nil
-}
-
-// mapQuantity returns the quantity and unit of a map from its sidecar
-// (Quantity, Units), else from its name (T2map → T2, BIDS suffix last).
-func mapQuantity(path, stem string) (string, string) {
-	var meta struct{ Quantity, Units string }
-	side := strings.TrimSuffix(strings.TrimSuffix(path, ".gz"), ".nii") + ".json"
-	if b, err := os.ReadFile(side); err == nil && json.Unmarshal(b, &meta) == nil && meta.Quantity != "" {
-		if meta.Units == "" {
-			meta.Units = preview.DefaultUnit(meta.Quantity)
-		}
-		return meta.Quantity, meta.Units
-	}
-	q := stem
-	if i := strings.LastIndexByte(q, '_'); i >= 0 && !strings.HasSuffix(q, "_sd") {
-		q = q[i+1:]
-	}
-	q = strings.TrimSuffix(filepath.Base(q), "map")
-	return q, preview.DefaultUnit(q)
 }
 
 // chooseMaps returns the map stems of folder (read from dir) named in the

@@ -17,8 +17,8 @@ import (
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi/phantom"
+	"github.com/tauvox/tauvox/volume"
 )
 
 type phantomArgs struct {

@@ -14,8 +14,8 @@ import (
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // roiMap is one map to summarise.

@@ -17,7 +17,7 @@ import (
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // scanEntry is one series found by scan.

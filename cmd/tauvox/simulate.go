@@ -17,11 +17,12 @@ import (
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi/phantom"
+	"github.com/tauvox/tauvox/volume"
 )
 
-// kind is a simulated acquisition with its default protocol.
+// kind is a simulated acquisition with its default protocol: a model's
+// Simulate entry in the registry.
 type kind struct {
 	name, summary string
 	seq           fit.Sequence
@@ -29,48 +30,20 @@ type kind struct {
 	acq           func() []volume.Acquisition
 }
 
-func protocol(n int, set func(i int, a *volume.Acquisition)) []volume.Acquisition {
-	acq := make([]volume.Acquisition, n)
-	for i := range acq {
-		acq[i] = volume.Unknown()
-		set(i, &acq[i])
+// kinds lists the registered models the simulator can make a series for.
+func kinds() []kind {
+	var ks []kind
+	for _, m := range fit.Models() {
+		if p := m.Simulate; p != nil {
+			ks = append(ks, kind{name: m.Name, summary: p.Summary, seq: p.Seq, model: m.Name, acq: p.Acq})
+		}
 	}
-	return acq
-}
-
-var kinds = []kind{
-	{"t2", "multi-echo spin echo, 16 echoes TE 10…160 ms, TR 4000 ms", fit.SeqSpinEcho, "t2", func() []volume.Acquisition {
-		return protocol(16, func(i int, a *volume.Acquisition) {
-			a.EchoTime, a.RepetitionTime, a.FlipAngle = 10*float64(i+1), 4000, 90
-		})
-	}},
-	{"t2star", "multi-echo gradient echo, 12 echoes TE 3…36 ms, TR 60 ms, 20°", fit.SeqGradientEcho, "t2star", func() []volume.Acquisition {
-		return protocol(12, func(i int, a *volume.Acquisition) {
-			a.EchoTime, a.RepetitionTime, a.FlipAngle = 3*float64(i+1), 60, 20
-		})
-	}},
-	{"t1-ir", "inversion recovery spin echo, 8 TIs 50…3200 ms, TR 8000 ms, TE 10 ms", fit.SeqInversionRecovery, "t1-ir", func() []volume.Acquisition {
-		ti := []float64{50, 100, 200, 400, 700, 1100, 1800, 3200}
-		return protocol(len(ti), func(i int, a *volume.Acquisition) {
-			a.InversionTime, a.RepetitionTime, a.EchoTime, a.FlipAngle = ti[i], 8000, 10, 90
-		})
-	}},
-	{"t1-vfa", "spoiled gradient echo, flip angles 2…30°, TR 15 ms, TE 2 ms", fit.SeqGradientEcho, "t1-vfa", func() []volume.Acquisition {
-		fa := []float64{2, 5, 10, 15, 20, 30}
-		return protocol(len(fa), func(i int, a *volume.Acquisition) {
-			a.FlipAngle, a.RepetitionTime, a.EchoTime = fa[i], 15, 2
-		})
-	}},
-	{"t1-sr", "saturation recovery, 7 TRs 100…6400 ms, TE 10 ms", fit.SeqSaturationRecovery, "t1-sr", func() []volume.Acquisition {
-		return protocol(7, func(i int, a *volume.Acquisition) {
-			a.RepetitionTime, a.EchoTime, a.FlipAngle = 100*math.Pow(2, float64(i)), 10, 90
-		})
-	}},
+	return ks
 }
 
 func findKind(name string) (kind, error) {
 	var names []string
-	for _, k := range kinds {
+	for _, k := range kinds() {
 		if k.name == name {
 			return k, nil
 		}
@@ -132,7 +105,7 @@ type simArgs struct {
 
 func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	var b strings.Builder
-	for _, k := range kinds {
+	for _, k := range kinds() {
 		fmt.Fprintf(&b, "  %-7s %s\n", k.name, k.summary)
 	}
 	fs := newFlags("simulate", "--kind K --out DIR [options]",
@@ -303,7 +276,7 @@ func simulateInto(st pather, a *simArgs) ([]string, error) {
 	var files []string
 	if a.format == "dicom" {
 		seq := map[fit.Sequence]string{fit.SeqSpinEcho: "SE", fit.SeqGradientEcho: "GR", fit.SeqInversionRecovery: "IR", fit.SeqSaturationRecovery: "SE"}[k.seq]
-		opt := &dicom.WriteOptions{Enhanced: a.enhanced, Description: im.Source.Description, SeriesNumber: 1 + len(kinds),
+		opt := &dicom.WriteOptions{Enhanced: a.enhanced, Description: im.Source.Description, SeriesNumber: 1 + len(kinds()),
 			Sequence: seq, Manufacturer: "tauvox simulator", StationName: im.Source.Scanner, FieldStrength: a.field,
 			PhantomName: "TAUVOX^DEMO", AcquiredAt: when}
 		if err := dicom.WriteSeries(st.Path(k.name), im, opt); err != nil {

@@ -15,7 +15,7 @@ import (
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/sidecar"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 const validateSummary = `Monte Carlo study of a model and protocol: for every true time constant,

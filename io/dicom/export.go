@@ -10,7 +10,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // sopParametricMap is Parametric Map Storage (check-values §3.3, from the

@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // testdata is the folder of the files written by pydicom 2.3.1 with

@@ -14,7 +14,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // implementationUID identifies tauvox as the writer in the file meta

@@ -15,7 +15,7 @@ import (
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Info describes the fit whose maps are written.

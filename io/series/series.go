@@ -13,7 +13,7 @@ import (
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/sidecar"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Overrides are acquisition parameters given by the user (ms, degrees).
@@ -29,11 +29,8 @@ type Overrides struct {
 	KeepIdentifiers bool
 }
 
-// Input describes one file read to make a series.
-type Input struct {
-	Path string
-	Role string // "series", "sidecar"
-}
+// Input describes one file read to make a series (volume.Input).
+type Input = volume.Input
 
 // IsNIfTI reports whether a path names a NIfTI file by its extension.
 func IsNIfTI(path string) bool {
@@ -218,34 +215,48 @@ func SkipEchoes(im *volume.Image, n int) (*volume.Image, error) {
 	if n == 0 {
 		return im, nil
 	}
-	nt := im.Volumes()
+	vols, acq, err := KeepVolumes(im.Acq, n)
+	if err != nil {
+		return nil, err
+	}
+	out := &volume.Image{Dims: im.Dims, Affine: im.Affine, Source: im.Source, Acq: acq}
+	out.Dims[3] = len(vols)
+	out.Data = make([]float32, 0, im.Voxels()*len(vols))
+	for _, t := range vols {
+		out.Data = append(out.Data, im.Volume(t)...)
+	}
+	return out, nil
+}
+
+// KeepVolumes returns the volumes that remain when the n of shortest echo
+// time are left out (in volume order) and their protocol: the rule of
+// SkipEchoes, for readers that fetch the volumes themselves.
+func KeepVolumes(acq []volume.Acquisition, n int) ([]int, []volume.Acquisition, error) {
+	nt := len(acq)
 	if n < 0 || n >= nt {
-		return nil, fmt.Errorf("cannot skip %d of %d echoes", n, nt)
+		return nil, nil, fmt.Errorf("cannot skip %d of %d echoes", n, nt)
 	}
 	order := make([]int, nt)
 	for i := range order {
 		order[i] = i
-		if math.IsNaN(im.Acq[i].EchoTime) {
-			return nil, fmt.Errorf("cannot skip echoes: echo time of volume %d is unknown", i+1)
+		if math.IsNaN(acq[i].EchoTime) {
+			return nil, nil, fmt.Errorf("cannot skip echoes: echo time of volume %d is unknown", i+1)
 		}
 	}
-	sort.SliceStable(order, func(a, b int) bool { return im.Acq[order[a]].EchoTime < im.Acq[order[b]].EchoTime })
-	drop := map[int]bool{}
+	sort.SliceStable(order, func(x, y int) bool { return acq[order[x]].EchoTime < acq[order[y]].EchoTime })
+	drop := make([]bool, nt)
 	for _, t := range order[:n] {
 		drop[t] = true
 	}
-	out := &volume.Image{Dims: im.Dims, Affine: im.Affine, Source: im.Source}
-	out.Dims[3] = nt - n
-	nv := im.Voxels()
-	out.Data = make([]float32, 0, nv*(nt-n))
-	for t := 0; t < nt; t++ {
-		if drop[t] {
-			continue
+	var vols []int
+	var kept []volume.Acquisition
+	for t := range acq {
+		if !drop[t] {
+			vols = append(vols, t)
+			kept = append(kept, acq[t])
 		}
-		out.Data = append(out.Data, im.Volume(t)...)
-		out.Acq = append(out.Acq, im.Acq[t])
 	}
-	return out, nil
+	return vols, kept, nil
 }
 
 // SidecarName returns the sidecar path of a NIfTI path (x.nii.gz → x.json).
@@ -264,36 +275,8 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 	for k, v := range extra {
 		side[k] = v
 	}
-	put := func(key string, get func(volume.Acquisition) float64, scale float64) {
-		vals := volume.Values(nil, im.Acq, get)
-		if len(vals) == 0 || math.IsNaN(vals[0]) {
-			return
-		}
-		same := true
-		for _, v := range vals {
-			if math.IsNaN(v) {
-				return
-			}
-			if v != vals[0] {
-				same = false
-			}
-		}
-		if same {
-			side[key] = vals[0] * scale
-			return
-		}
-		out := make([]float64, len(vals))
-		for i, v := range vals {
-			out[i] = v * scale
-		}
-		side[key] = out
-	}
-	put("EchoTime", func(a volume.Acquisition) float64 { return a.EchoTime }, 1e-3)
-	put("InversionTime", func(a volume.Acquisition) float64 { return a.InversionTime }, 1e-3)
-	put("RepetitionTime", func(a volume.Acquisition) float64 { return a.RepetitionTime }, 1e-3)
-	put("FlipAngle", func(a volume.Acquisition) float64 { return a.FlipAngle }, 1)
-	if f := im.Source.FieldStrength; f > 0 {
-		side["MagneticFieldStrength"] = f
+	for k, v := range sidecar.Keys(im.Acq, im.Source.FieldStrength) {
+		side[k] = v
 	}
 	if im.Source.Scanner != "" {
 		side["StationName"] = im.Source.Scanner

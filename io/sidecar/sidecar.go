@@ -11,7 +11,7 @@ import (
 	"regexp"
 	"strings"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // MaxSize is the largest sidecar Read accepts, in bytes. Sidecars are a
@@ -424,4 +424,40 @@ func ForImage(niftiPath string) (string, bool) {
 	p := base + ".json"
 	fi, err := os.Stat(p)
 	return p, err == nil && fi.Mode().IsRegular()
+}
+
+// Keys returns the BIDS acquisition keys of a protocol for a sidecar
+// (BIDS common metadata: EchoTime, InversionTime and RepetitionTime in
+// seconds, FlipAngle in degrees; check-values §3.6): a number when every
+// volume has the same value, a list when it varies, left out when any
+// volume's value is unknown; MagneticFieldStrength (T) when field > 0.
+func Keys(acq []volume.Acquisition, field float64) map[string]any {
+	out := map[string]any{}
+	put := func(key string, scale float64, get func(volume.Acquisition) float64) {
+		var vals []float64
+		same := true
+		for _, a := range acq {
+			v := get(a)
+			if math.IsNaN(v) {
+				return
+			}
+			vals = append(vals, v*scale)
+			same = same && v == get(acq[0])
+		}
+		switch {
+		case len(vals) == 0:
+		case same:
+			out[key] = vals[0]
+		default:
+			out[key] = vals
+		}
+	}
+	put("EchoTime", 1e-3, func(a volume.Acquisition) float64 { return a.EchoTime })
+	put("InversionTime", 1e-3, func(a volume.Acquisition) float64 { return a.InversionTime })
+	put("RepetitionTime", 1e-3, func(a volume.Acquisition) float64 { return a.RepetitionTime })
+	put("FlipAngle", 1, func(a volume.Acquisition) float64 { return a.FlipAngle })
+	if field > 0 {
+		out["MagneticFieldStrength"] = field
+	}
+	return out
 }

@@ -7,7 +7,7 @@ import (
 	"sort"
 
 	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Placement is where a phantom lies in an image: its centre in scanner
