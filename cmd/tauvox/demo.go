@@ -10,11 +10,12 @@ import (
 	"path/filepath"
 	"time"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/report"
-	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -99,10 +100,10 @@ verdict table and the drift table.`, e)
 			return fmt.Errorf("%s: qa.json: %v", qaDir, err)
 		}
 		b = append(b, '\n')
-		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.json"), b); err != nil {
+		if err := output.WriteFile(filepath.Join(qaDir, "qa.json"), b); err != nil {
 			return err
 		}
-		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
+		if err := output.WriteFile(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
 			return err
 		}
 		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance); err != nil {
@@ -152,6 +153,6 @@ verdict table and the drift table.`, e)
 		fmt.Fprintln(e.stdout, "rules were violated: see", filepath.Join(out, "history", "index.html"))
 	}
 	fmt.Fprintln(e.stdout, "\nevery report and the charts:", filepath.Join(out, "index.html"))
-	fmt.Fprintln(e.stdout, "\n"+mapset.Caution)
+	fmt.Fprintln(e.stdout, "\n"+output.Caution)
 	return nil
 }

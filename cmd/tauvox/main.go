@@ -22,9 +22,10 @@ import (
 	"os"
 	"os/signal"
 	"runtime/debug"
-	"strings"
 	"sync"
 	"syscall"
+
+	"github.com/tauvox/tauvox/output"
 )
 
 func main() {
@@ -134,9 +135,8 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	return 2
 }
 
-func oneLine(s string) string {
-	return strings.Join(strings.Fields(s), " ")
-}
+// oneLine is the shared one-line form of an error message (output.Message).
+func oneLine(s string) string { return output.Message(s) }
 
 func usage(w io.Writer) {
 	fmt.Fprintln(w, "tauvox: quantitative relaxation-time maps (T1, T2, T2*) from MR series.")

@@ -11,6 +11,8 @@ import (
 	"path/filepath"
 	"strings"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
@@ -120,7 +122,7 @@ differs). One CSV row per region × map, with a unit column.`, e)
 	} else {
 		b = roiCSV(rows)
 	}
-	if err := series.WriteFileAtomic(out, b); err != nil {
+	if err := output.WriteFile(out, b); err != nil {
 		return err
 	}
 	fmt.Fprintf(e.stdout, "wrote %s: %d regions × %d maps\n", out, len(rows)/max(1, len(maps)), len(maps))

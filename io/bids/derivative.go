@@ -8,7 +8,7 @@ import (
 	"path/filepath"
 	"strings"
 
-	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/output"
 )
 
 // quantityMaps are the BIDS qMRI map suffixes (check-values §3.6) that
@@ -127,7 +127,7 @@ func WriteDescription(dir, raw, version string) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return err
 	}
-	if err := series.WriteFileAtomic(path, b); err != nil {
+	if err := output.WriteFile(path, b); err != nil {
 		return fmt.Errorf("%s: %v", path, err)
 	}
 	return nil

@@ -8,6 +8,8 @@ import (
 	"os"
 	"path/filepath"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/volume"
@@ -102,7 +104,7 @@ func writeJSON(path string, v any) error {
 	if err != nil {
 		return err
 	}
-	return series.WriteFileAtomic(path, b)
+	return output.WriteFile(path, b)
 }
 
 // encodeJSON indents v with two spaces, leaves <, > and & as they are, and

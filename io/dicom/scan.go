@@ -14,6 +14,8 @@ import (
 	"strconv"
 	"strings"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/volume"
 )
 
@@ -568,9 +570,9 @@ func (c *Catalog) Lookup(id string) (*Series, error) {
 		ids = append(ids, s.ID)
 	}
 	if len(hits) > 1 {
-		return nil, fmt.Errorf("dicom: %q names %d series; choose one of %s", oneLine(id), len(hits), strings.Join(ids, ", "))
+		return nil, fmt.Errorf("dicom: %q names %d series; choose one of %s", output.Line(id), len(hits), strings.Join(ids, ", "))
 	}
-	return nil, fmt.Errorf("dicom: no series %q in the scan (found %s)", oneLine(id), strings.Join(ids, ", "))
+	return nil, fmt.Errorf("dicom: no series %q in the scan (found %s)", output.Line(id), strings.Join(ids, ", "))
 }
 
 // Load reads the pixel data of the series with the given ID (see Lookup)

@@ -12,6 +12,8 @@ import (
 	"sync"
 	"time"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
@@ -72,7 +74,9 @@ type Protocol struct {
 }
 
 // Caution is the statement every output carries.
-const Caution = "tauvox is a quality-assurance and research tool, not a medical device; clinical decisions follow local regulations and licensed practice."
+//
+// Deprecated: use output.Caution; this is the same constant.
+const Caution = output.Caution
 
 func num(v float64) *float64 {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
@@ -332,7 +336,7 @@ func (w *Writer) Close() ([]string, error) {
 		wg.Add(1)
 		go func(i int) {
 			defer wg.Done()
-			errs[i] = series.WriteFileAtomic(w.st.Path(name), data)
+			errs[i] = output.WriteFile(w.st.Path(name), data)
 		}(i)
 		i++
 	}

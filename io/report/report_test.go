@@ -13,7 +13,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/output"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
@@ -60,7 +60,7 @@ func testQA(hostile bool) *phantom.QA {
 		Format:  phantom.QAFormat,
 		Tool:    phantom.Tool{Name: "tauvox", Version: "0.0.0-test"},
 		Session: phantom.Session{Scanner: "MR-3", Date: "2026-03-02", Time: "08:15", Field: 1.5, Temperature: 20.4, Phantom: "demo phantom"},
-		Caution: mapset.Caution,
+		Caution: output.Caution,
 	}
 	if hostile {
 		qa.Session.Scanner = hostileScanner
@@ -228,7 +228,7 @@ func TestWriteStructure(t *testing.T) {
 	for _, want := range []string{
 		"<title>demo phantom – phantom QA 2026-03-02 08:15</title>",
 		`<div class="verdict fail" id="verdict">Session verdict: FAIL<small>18 of 20 vial measurements passed, 1 failed, 1 not measured</small></div>`,
-		mapset.Caution,
+		output.Caution,
 		"MR-3", "1.50 T", "20.4 °C",
 		"<h2>T1</h2>", "<h2>T2</h2>",
 		"reference ± max(5 % of the reference, 5 ms)",

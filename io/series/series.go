@@ -10,6 +10,8 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/sidecar"
@@ -291,34 +293,10 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 	if err != nil {
 		return err
 	}
-	return WriteFileAtomic(SidecarName(path), append(b, '\n'))
+	return output.WriteFile(SidecarName(path), append(b, '\n'))
 }
 
-// WriteFileAtomic writes b to a temporary file beside path and renames it
-// into place, so readers never see a partial file.
-func WriteFileAtomic(path string, b []byte) error {
-	dir, base := filepath.Split(path)
-	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
-	if err != nil {
-		return err
-	}
-	tmp := f.Name()
-	err = f.Chmod(0o644) // CreateTemp makes 0600
-	if err == nil {
-		_, err = f.Write(b)
-	}
-	if err == nil {
-		err = f.Sync()
-	}
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
-	if err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	return nil
-}
+// WriteFileAtomic writes b to path atomically.
+//
+// Deprecated: use output.WriteFile, which it calls.
+func WriteFileAtomic(path string, b []byte) error { return output.WriteFile(path, b) }

@@ -11,6 +11,8 @@ import (
 	"regexp"
 	"strings"
 
+	"github.com/tauvox/tauvox/output"
+
 	"github.com/tauvox/tauvox/volume"
 )
 
@@ -70,34 +72,22 @@ type Error struct {
 
 func (e *Error) Error() string {
 	var b strings.Builder
-	b.WriteString(oneLine(e.Path))
+	b.WriteString(output.Line(e.Path))
 	b.WriteString(": ")
 	if e.Key != "" {
-		b.WriteString(oneLine(e.Key))
+		b.WriteString(output.Line(e.Key))
 		b.WriteString(": ")
 	}
-	b.WriteString(oneLine(e.Reason))
+	b.WriteString(output.Line(e.Reason))
 	if e.Err != nil {
 		b.WriteString(": ")
-		b.WriteString(oneLine(e.Err.Error()))
+		b.WriteString(output.Line(e.Err.Error()))
 	}
 	return b.String()
 }
 
 // Unwrap returns the underlying cause, or nil.
 func (e *Error) Unwrap() error { return e.Err }
-
-func oneLine(s string) string {
-	if !strings.ContainsAny(s, "\n\r\t\x00") {
-		return s
-	}
-	return strings.Map(func(r rune) rune {
-		if r < 0x20 || r == 0x7f {
-			return ' '
-		}
-		return r
-	}, s)
-}
 
 // Read reads and checks the sidecar at path.
 func Read(path string) (*Sidecar, error) {

@@ -15,6 +15,7 @@ import (
 
 	_ "modernc.org/sqlite" // registers the "sqlite" driver
 
+	"github.com/tauvox/tauvox/output"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
@@ -133,7 +134,7 @@ func (s *Store) wrap(err error) error {
 	return fmt.Errorf("%s: %s", s.path, oneLine(msg))
 }
 
-func oneLine(s string) string { return strings.Join(strings.Fields(s), " ") }
+func oneLine(s string) string { return output.Message(s) }
 
 func (s *Store) init(opt *Options) error {
 	ctx := context.Background()
