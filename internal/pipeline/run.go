@@ -104,11 +104,11 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 	sum := &Summary{Model: model.Name(), Method: model.Method(), Voxels: im.Voxels(), Counts: maps.Counts,
 		Workers: c.workers(), Slabs: 1, Fit: time.Since(t1), Sigma: sigma}
 	t2 := time.Now()
-	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: c.Settings(model, sigma),
+	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: c.Settings(model, sigma), StatusNames: statusNames(),
 		Inputs: inputs, Source: im.Source, Acq: im.Acq,
 		Timings: map[string]float64{"load": tLoad.Seconds(), "fit": sum.Fit.Seconds()}}
 	drawn := c.previews(ctx, st, model.Outputs(), wholeMaps(maps, im.Dims, im.Affine))
-	if _, err := mapset.Write(st, maps, im, info); err != nil {
+	if _, err := mapset.Write(st, outputs(model), toSlab(maps), im, info); err != nil {
 		drawn()
 		return nil, err
 	}
@@ -143,4 +143,27 @@ func (c *Config) previews(ctx context.Context, st *mapset.Stage, outs []fit.Para
 	done := make(chan error, 1)
 	go func() { done <- fitPreviews(ctx, st.Path(""), outs, c.Window, inMemory) }()
 	return func() error { return <-done }
+}
+
+// outputs returns the map descriptions of a model's outputs for io/mapset.
+func outputs(m fit.Model) []mapset.Output {
+	var o []mapset.Output
+	for _, p := range m.Outputs() {
+		o = append(o, mapset.Output(p))
+	}
+	return o
+}
+
+// toSlab returns the maps of a fit as io/mapset takes them (sharing them).
+func toSlab(m *fit.Maps) *mapset.Slab {
+	return &mapset.Slab{Values: m.Values, SE: m.SE, R2: m.R2, Status: m.Status, Counts: m.Counts[:], Threshold: m.Threshold}
+}
+
+// statusNames names the fit status codes in code order.
+func statusNames() []string {
+	n := make([]string, fit.NumStatus)
+	for s := range n {
+		n[s] = fit.Status(s).String()
+	}
+	return n
 }

@@ -228,9 +228,9 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	settings := c.Settings(model, sigma)
 	settings["memory_bytes"], settings["slabs"], settings["slices_per_slab"] = c.memory(), nslab, plan.Slices
 	timings := map[string]float64{}
-	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: settings,
+	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: settings, StatusNames: statusNames(),
 		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings, Sums: sums}
-	w, err := mapset.NewWriter(st, model.Outputs(), [3]int{nx, ny, nz}, affine, info)
+	w, err := mapset.NewWriter(st, outputs(model), [3]int{nx, ny, nz}, affine, info)
 	if err != nil {
 		return nil, err
 	}
@@ -300,7 +300,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		}
 		tw := time.Now()
 		maps.Threshold = thr
-		if err = w.Append(maps); err != nil {
+		if err = w.Append(toSlab(maps)); err != nil {
 			return nil, err
 		}
 		tWrite += time.Since(tw)

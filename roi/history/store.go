@@ -16,7 +16,7 @@ import (
 	_ "modernc.org/sqlite" // registers the "sqlite" driver
 
 	"github.com/tauvox/tauvox/output"
-	"github.com/tauvox/tauvox/roi/phantom"
+	phantom "github.com/tauvox/tauvox/roi/qa" // the qa.json types, written by roi/phantom
 )
 
 // SchemaVersion is the schema version this package writes.
