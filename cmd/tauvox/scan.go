@@ -6,13 +6,13 @@ import (
 	"errors"
 	"fmt"
 	"io/fs"
-	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"text/tabwriter"
 	"unicode"
 
+	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
@@ -83,7 +83,7 @@ reason; the scan goes on with the rest.`, e)
 	res := scanResult{Files: cat.Files, Skipped: cat.Skipped, Unreadable: cat.Unreadable, Ignored: cat.Ignored, Problems: cat.Problems}
 	for _, s := range cat.Series {
 		en := scanEntry{ID: s.ID, Format: "dicom", Description: s.Description, Varying: s.Varying, Values: s.Values,
-			Matrix: [2]int{s.Columns, s.Rows}, Slices: s.Slices, Volumes: s.Volumes, Model: s.Model, Problem: s.Problem,
+			Matrix: [2]int{s.Columns, s.Rows}, Slices: s.Slices, Volumes: s.Volumes, Model: suggest(s.Varying, s.Echo), Problem: s.Problem,
 			Notes: s.Notes, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt, Identifiers: s.Identifiers}
 		if f := s.Source.FieldStrength; f > 0 {
 			en.Field = &f
@@ -189,7 +189,9 @@ func niftiEntries(paths []string) []scanEntry {
 			} else if acq, err := s.Acquisitions(en.Volumes); err != nil {
 				en.Problem = err.Error()
 			} else {
-				en.Varying, en.Values, en.Model = varying(acq)
+				if v := volume.Varying(acq); len(v) > 0 {
+					en.Varying, en.Values, en.Model = v[0].Name, v[0].Values, suggest(v[0].Name, "SE")
+				}
 				if s.SeriesDescription != "" {
 					en.Description = s.SeriesDescription
 				}
@@ -210,43 +212,17 @@ func niftiEntries(paths []string) []scanEntry {
 	return out
 }
 
-// varying finds the parameter that varies across volumes and suggests a
-// model (the same rule as the DICOM classification).
-func varying(acq []volume.Acquisition) (string, []float64, string) {
-	type param struct {
-		name, model string
-		get         func(volume.Acquisition) float64
+// suggest returns the registry's model for a series whose parameter
+// varying varies, with echo "SE" or "GR" telling spin from gradient echoes
+// ("" when the headers do not say: no model is suggested for an echo
+// train then).
+func suggest(varying, echo string) string {
+	if varying == "EchoTime" && echo == "" {
+		return ""
 	}
-	for _, p := range []param{
-		{"InversionTime", "t1-ir", func(a volume.Acquisition) float64 { return a.InversionTime }},
-		{"FlipAngle", "t1-vfa", func(a volume.Acquisition) float64 { return a.FlipAngle }},
-		{"EchoTime", "t2", func(a volume.Acquisition) float64 { return a.EchoTime }},
-		{"RepetitionTime", "t1-sr", func(a volume.Acquisition) float64 { return a.RepetitionTime }},
-	} {
-		seen := map[float64]bool{}
-		var vals []float64
-		for _, a := range acq {
-			v := p.get(a)
-			if math.IsNaN(v) {
-				continue
-			}
-			if !seen[v] {
-				seen[v] = true
-				vals = append(vals, v)
-			}
-		}
-		if len(vals) > 1 {
-			sortFloats(vals)
-			return p.name, vals, p.model
-		}
+	seq := fit.SeqSpinEcho
+	if echo == "GR" {
+		seq = fit.SeqGradientEcho
 	}
-	return "", nil, ""
-}
-
-func sortFloats(v []float64) {
-	for i := 1; i < len(v); i++ {
-		for j := i; j > 0 && v[j] < v[j-1]; j-- {
-			v[j], v[j-1] = v[j-1], v[j]
-		}
-	}
+	return fit.Suggest(varying, seq)
 }
