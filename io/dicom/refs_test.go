@@ -105,7 +105,7 @@ func TestScanMix(t *testing.T) {
 	}
 	cases := []struct {
 		key, varying, echo string
-		values              []float64
+		values             []float64
 	}{
 		{"oblique_se", "EchoTime", "SE", []float64{10, 20, 40, 80}},
 		{"gre_implicit", "EchoTime", "GR", []float64{3, 8, 13}},
