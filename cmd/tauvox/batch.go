@@ -2,9 +2,7 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
-	"os"
 	"path/filepath"
 	"runtime"
 	"sort"
@@ -15,7 +13,6 @@ import (
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/bids"
-	"github.com/tauvox/tauvox/io/mapset"
 )
 
 const batchSummary = `Fits every relaxometry series of a BIDS dataset and writes the maps as a
@@ -118,25 +115,6 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 	return batch(ctx, &a, e)
 }
 
-// batchJob is one series of the plan.
-type batchJob struct {
-	pub   bids.Publication
-	c     *bids.Collection
-	model fit.Model
-}
-
-func (j *batchJob) name(stem, ext string) string { return j.pub.Name(stem, ext) }
-
-// stems returns the output stems of a fit with the model, as the
-// pipeline names them.
-func stems(m fit.Model) []string {
-	var s []string
-	for _, p := range m.Outputs() {
-		s = append(s, p.Map, p.Map+"_sd")
-	}
-	return append(s, "fitquality", "status")
-}
-
 func batch(ctx context.Context, a *batchArgs, e *env) error {
 	var suffixes []string
 	for s := range a.modelOf {
@@ -156,44 +134,22 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 	if err := bids.CheckDerivative(a.out); err != nil {
 		return err
 	}
-	// Plan: one job per collection; relaxometry maps that two series of
-	// one folder would both write get desc-<SUFFIX>.
-	var jobs []*batchJob
-	claims := map[string][]*batchJob{}
-	for _, c := range ds.Collections {
-		m, err := fit.New(fit.Spec{Model: a.modelOf[c.Suffix]})
-		if err != nil {
-			return err
-		}
-		info, _ := fit.Lookup(m.Name())
-		j := &batchJob{c: c, model: m, pub: bids.Publication{Collection: c, Dir: filepath.Join(a.out, filepath.FromSlash(c.Dir)),
-			Stems: stems(m), Reference: info.Reference}}
-		jobs = append(jobs, j)
-		for _, s := range stems(m) {
-			if bids.IsQuantityMap(s) {
-				k := filepath.Join(j.pub.Dir, j.name(s, ""))
-				claims[k] = append(claims[k], j)
-			}
-		}
-	}
-	for _, js := range claims {
-		if len(js) > 1 {
-			for _, j := range js {
-				j.pub.Labelled = true
-			}
-		}
+	jobs, err := pipeline.Plan(ds, a.out, a.modelOf)
+	if err != nil {
+		return err
 	}
 	if a.dryRun {
 		for _, j := range jobs {
 			state := "fit"
 			if !a.force {
-				if ok, why := j.finished(a); ok {
+				if ok, why := j.Finished(); ok {
 					state = "finished, skip"
 				} else {
 					state = "fit (" + why + ")"
 				}
 			}
-			fmt.Fprintf(e.stdout, "%s\t%s\t%d files\t%s → %s\n", j.c.ID(), j.model.Name(), len(j.c.Files), state, filepath.Join(j.pub.Dir, j.name(j.primary(), ".nii.gz")))
+			c := j.Pub.Collection
+			fmt.Fprintf(e.stdout, "%s\t%s\t%d files\t%s → %s\n", c.ID(), j.Model.Name(), len(c.Files), state, j.Primary())
 		}
 		return nil
 	}
@@ -214,7 +170,7 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 		}
 		wg.Add(1)
 		sem <- struct{}{}
-		go func(j *batchJob) {
+		go func(j *pipeline.Job) {
 			defer func() { <-sem; wg.Done() }()
 			a.runJob(ctx, j, per, e)
 		}(j)
@@ -232,11 +188,6 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 	return nil
 }
 
-// primary returns the stem of the first output of the job's model.
-func (j *batchJob) primary() string {
-	return j.model.Outputs()[0].Map
-}
-
 func (a *batchArgs) say(e *env, failed bool, format string, args ...any) {
 	a.mu.Lock()
 	defer a.mu.Unlock()
@@ -249,18 +200,19 @@ func (a *batchArgs) say(e *env, failed bool, format string, args ...any) {
 	}
 }
 
-func (a *batchArgs) runJob(ctx context.Context, j *batchJob, workers int, e *env) {
+func (a *batchArgs) runJob(ctx context.Context, j *pipeline.Job, workers int, e *env) {
+	id := j.Pub.Collection.ID()
 	if !a.force {
-		if ok, _ := j.finished(a); ok {
+		if ok, _ := j.Finished(); ok {
 			a.mu.Lock()
 			a.skipped++
 			a.mu.Unlock()
-			a.say(e, false, "%s: up to date (provenance matches), skipped", j.c.ID())
+			a.say(e, false, "%s: up to date (provenance matches), skipped", id)
 			return
 		}
 	}
 	t0 := time.Now()
-	counts, err := a.fitJob(ctx, j, workers)
+	counts, err := j.Run(ctx, workers, version())
 	a.mu.Lock()
 	if err != nil {
 		a.failed++
@@ -270,147 +222,9 @@ func (a *batchArgs) runJob(ctx context.Context, j *batchJob, workers int, e *env
 	a.mu.Unlock()
 	if err != nil {
 		if ctx.Err() == nil {
-			a.say(e, true, "%s: %s", j.c.ID(), oneLine(err.Error()))
+			a.say(e, true, "%s: %s", id, oneLine(err.Error()))
 		}
 		return
 	}
-	a.say(e, false, "%s: %s/%s → %s (%s; %.2f s)", j.c.ID(), j.model.Name(), j.model.Method(),
-		filepath.Join(j.pub.Dir, j.name(j.primary(), ".nii.gz")), statusLine(counts), time.Since(t0).Seconds())
-}
-
-// config returns the pipeline's settings for the job: the model's
-// defaults, the automatic mask, and where the maps are staged.
-func (j *batchJob) config(workers int) *pipeline.Config {
-	return &pipeline.Config{Series: "", Spec: fit.Spec{Model: j.model.Name()}, Workers: workers,
-		Out: j.workDir(), Force: true, NoPreview: true, Version: version(),
-		Hint:  " (the sidecars give the parameters)",
-		Extra: map[string]any{"suffix": j.c.Suffix, "source": j.c.ID(), "labelled": j.pub.Labelled}}
-}
-
-// workDir is the hidden folder beside the outputs where the maps are
-// written before Publish gives them their BIDS names.
-func (j *batchJob) workDir() string {
-	return filepath.Join(j.pub.Dir, ".tauvox-"+j.c.Base.String()+"_"+j.c.Suffix)
-}
-
-// batchProvenance is the part of a published provenance that resuming
-// compares.
-type batchProvenance struct {
-	Outputs  []string             `json:"outputs"`
-	Settings map[string]any       `json:"settings"`
-	Inputs   []mapset.InputRecord `json:"inputs"`
-}
-
-// finished reports whether the series' outputs exist and its provenance
-// records the same inputs (path relative to the dataset and SHA-256) and
-// settings; otherwise it says why not.
-func (j *batchJob) finished(a *batchArgs) (bool, string) {
-	b, err := os.ReadFile(j.pub.ProvenancePath())
-	if err != nil {
-		return false, "not fitted yet"
-	}
-	var p batchProvenance
-	if err := json.Unmarshal(b, &p); err != nil {
-		return false, "provenance unreadable"
-	}
-	for _, o := range p.Outputs {
-		if _, err := os.Stat(filepath.Join(j.pub.Dir, o)); err != nil {
-			return false, "output " + o + " missing"
-		}
-	}
-	if !sameSettings(p.Settings, j.config(0).Settings(j.model, 0)) {
-		return false, "settings changed"
-	}
-	want, err := j.inputRecords()
-	if err != nil {
-		return false, "inputs unreadable"
-	}
-	if len(want) != len(p.Inputs) {
-		return false, "inputs changed"
-	}
-	for i, in := range p.Inputs {
-		if rel(a.root, in.Path) != rel(a.root, want[i].Path) || in.SHA256 != want[i].SHA256 {
-			return false, "inputs changed"
-		}
-	}
-	return true, ""
-}
-
-// rel returns path relative to root when it lies inside, else path.
-func rel(root, path string) string {
-	r, err := filepath.Rel(root, path)
-	if err != nil || strings.HasPrefix(r, "..") {
-		return filepath.ToSlash(path)
-	}
-	return filepath.ToSlash(r)
-}
-
-// inputRecords lists the files a fit of the collection reads, in the
-// order Load reads them, with checksums, without reading the images.
-func (j *batchJob) inputRecords() ([]mapset.InputRecord, error) {
-	var out []mapset.InputRecord
-	seen := map[string]bool{}
-	add := func(p, role string) error {
-		if seen[p] {
-			return nil
-		}
-		seen[p] = true
-		sum, n, err := mapset.Checksum(p)
-		if err != nil {
-			return err
-		}
-		out = append(out, mapset.InputRecord{Path: p, Role: role, SHA256: sum, Bytes: n})
-		return nil
-	}
-	for _, f := range j.c.Files {
-		if err := add(f.Path, "series"); err != nil {
-			return nil, err
-		}
-		scs, err := bids.Sidecars(j.c.Root, f.Path)
-		if err != nil {
-			return nil, err
-		}
-		for _, s := range scs {
-			if err := add(s, "sidecar"); err != nil {
-				return nil, err
-			}
-		}
-	}
-	return out, nil
-}
-
-func sameSettings(a, b map[string]any) bool {
-	norm := func(m map[string]any) string {
-		c := map[string]any{}
-		for k, v := range m {
-			if k != "workers" {
-				c[k] = v
-			}
-		}
-		s, _ := json.Marshal(c)
-		return string(s)
-	}
-	return norm(a) == norm(b)
-}
-
-// fitJob loads, fits and writes one series through the pipeline into a
-// hidden work folder beside the outputs, then publishes the files under
-// their BIDS names (bids.Publish; the provenance last).
-func (a *batchArgs) fitJob(ctx context.Context, j *batchJob, workers int) ([fit.NumStatus]int, error) {
-	var counts [fit.NumStatus]int
-	im, inputs, err := j.c.Load()
-	if err != nil {
-		return counts, err
-	}
-	cfg := j.config(workers)
-	cfg.Image, cfg.Inputs = im, inputs
-	sum, err := pipeline.Run(ctx, cfg, nil)
-	if err != nil {
-		return counts, err
-	}
-	defer os.RemoveAll(cfg.Out)
-	if err := bids.Publish(cfg.Out, &j.pub, im, inputs); err != nil {
-		return counts, err
-	}
-	return sum.Counts, nil
+	a.say(e, false, "%s: %s/%s → %s (%s; %.2f s)", id, j.Model.Name(), j.Model.Method(), j.Primary(), statusLine(counts), time.Since(t0).Seconds())
 }
