@@ -8,10 +8,6 @@ import (
 	"github.com/tauvox/tauvox/volume"
 )
 
-// Dictionary is the estimation method that stops at the best dictionary
-// entry (no polish); see StimulatedEcho.
-const Dictionary Method = "dictionary"
-
 // StimulatedEcho is the stimulated-echo corrected T2 model of a CPMG
 // multi-echo spin echo (Lebel & Wilman 2010, MRM 64:1005): with imperfect
 // refocusing the echoes are not a single exponential, because part of the
