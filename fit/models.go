@@ -19,7 +19,7 @@ var registry = []ModelInfo{
 			return protocol(16, func(i int, a *volume.Acquisition) {
 				a.EchoTime, a.RepetitionTime, a.FlipAngle = 10*float64(i+1), 4000, 90
 			})
-		}},
+		}, Truth: "20:20:300"},
 		make: func(s Spec, meth Method, solver Solver) Model {
 			return &MonoExp{Estimator: meth, Offset: s.Offset, Sigma: s.Sigma, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
 		},
@@ -38,7 +38,7 @@ Outputs: T2map (ms), R2map (1/s), M0map; with --offset, offset.`,
 		Reference: "Mono-exponential fit of a multi-echo gradient-echo train (common practice); see tauvox docs/methods.md",
 		Simulate: &Protocol{Summary: "multi-echo gradient echo, 12 echoes TE 3…36 ms, TR 60 ms, 20°", Seq: SeqGradientEcho, Acq: func() []volume.Acquisition {
 			return protocol(12, func(i int, a *volume.Acquisition) { a.EchoTime, a.RepetitionTime, a.FlipAngle = 3*float64(i+1), 60, 20 })
-		}},
+		}, Truth: "5:5:60"},
 		make: func(s Spec, meth Method, solver Solver) Model {
 			return &MonoExp{Star: true, Estimator: meth, Offset: s.Offset, Sigma: s.Sigma, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
 		},
@@ -59,7 +59,7 @@ Outputs: T2starmap (ms), R2starmap (1/s), M0map; with --offset, offset.`,
 			return protocol(len(ti), func(i int, a *volume.Acquisition) {
 				a.InversionTime, a.RepetitionTime, a.EchoTime, a.FlipAngle = ti[i], 8000, 10, 90
 			})
-		}},
+		}, Truth: "200:200:3000"},
 		make: func(s Spec, meth Method, solver Solver) Model {
 			return &InversionRecovery{Estimator: meth, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
 		},
@@ -77,7 +77,7 @@ Outputs: T1map (ms), R1map (1/s), M0map (= a), inveff (−b/(2a)).`,
 		Simulate: &Protocol{Summary: "spoiled gradient echo, flip angles 2…30°, TR 15 ms, TE 2 ms", Seq: SeqGradientEcho, Acq: func() []volume.Acquisition {
 			fa := []float64{2, 5, 10, 15, 20, 30}
 			return protocol(len(fa), func(i int, a *volume.Acquisition) { a.FlipAngle, a.RepetitionTime, a.EchoTime = fa[i], 15, 2 })
-		}},
+		}, Truth: "200:200:2000"},
 		make: func(s Spec, meth Method, solver Solver) Model {
 			return &VariableFlipAngle{Estimator: meth, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
 		},
@@ -96,7 +96,7 @@ Outputs: T1map (ms), R1map (1/s), M0map.`,
 			return protocol(7, func(i int, a *volume.Acquisition) {
 				a.RepetitionTime, a.EchoTime, a.FlipAngle = 100*math.Pow(2, float64(i)), 10, 90
 			})
-		}},
+		}, Truth: "200:200:3000"},
 		make: func(s Spec, meth Method, solver Solver) Model {
 			return &SaturationRecovery{Efficiency: s.Efficiency, Estimator: meth, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
 		},

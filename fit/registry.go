@@ -74,6 +74,9 @@ type Protocol struct {
 	Summary string
 	Seq     Sequence
 	Acq     func() []volume.Acquisition
+	// Truth is the default range of true values of the model's first
+	// output for `tauvox validate` (ms, a list or start:step:stop).
+	Truth string
 }
 
 // Option is a model-specific setting: the flag that sets it, the key under

@@ -31,11 +31,6 @@ The protocol defaults to the one tauvox simulate uses for the model; --te,
 --ti, --tr, --fa (ms, degrees; lists "10,20" or ranges "start:step:stop")
 replace it. The true values come from --t2, --t2star or --t1 (same syntax).`
 
-// validateDefaults gives each model's default true-value range.
-var validateDefaults = map[string]string{
-	"t2": "20:20:300", "t2star": "5:5:60", "t1-ir": "200:200:3000", "t1-vfa": "200:200:2000", "t1-sr": "200:200:3000",
-}
-
 func runValidate(ctx context.Context, args []string, e *env) error {
 	var (
 		model, method, noise, plotFile string
@@ -46,7 +41,7 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 		te, ti, tr, fa, t2, t2s, t1    listFlag
 	)
 	fs := newFlags("validate", "--model M [--snr S] [--t2 LIST | --t1 LIST] [options]", validateSummary, e)
-	fs.StringVar(&model, "model", "", "signal model: t2, t2star, t1-ir, t1-vfa, t1-sr (required)")
+	fs.StringVar(&model, "model", "", "signal model: "+strings.Join(validModels(), ", ")+" (required)")
 	fs.StringVar(&method, "method", "", "estimation method (default: the model's first)")
 	fs.BoolVar(&efficiency, "efficiency", false, "t1-sr: fit the saturation efficiency")
 	fs.Var(&te, "te", "echo times, ms")
@@ -80,17 +75,20 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 	case plotFile != "" && !strings.HasSuffix(strings.ToLower(plotFile), ".svg") && !strings.HasSuffix(strings.ToLower(plotFile), ".png"):
 		return fmt.Errorf("--plot must name a .svg or .png file")
 	}
-	def, ok := validateDefaults[model]
-	if !ok {
-		return fmt.Errorf("validate supports models t2, t2star, t1-ir, t1-vfa, t1-sr, not %q", model)
+	info, ok := fit.Lookup(model)
+	if !ok || info.Simulate == nil || info.Simulate.Truth == "" {
+		return fmt.Errorf("validate supports models %s, not %q", strings.Join(validModels(), ", "), model)
 	}
-	quantity := map[string]string{"t2": "T2", "t2star": "T2*"}[model]
-	if quantity == "" {
-		quantity = "T1"
+	def := info.Simulate.Truth
+	m0, err := fit.New(fit.Spec{Model: model})
+	if err != nil {
+		return err
 	}
-	truthFlag := map[string]*listFlag{"t2": &t2, "t2star": &t2s}[model]
+	first := m0.Outputs()[0].Name // T2, T2star or T1
+	quantity := strings.Replace(first, "star", "*", 1)
+	truthFlag := map[string]*listFlag{"T2": &t2, "T2star": &t2s, "T1": &t1}[first]
 	if truthFlag == nil {
-		truthFlag = &t1
+		return fmt.Errorf("validate has no flag for the true %s values of model %s", first, model)
 	}
 	for name, f := range map[string]*listFlag{"t2": &t2, "t2star": &t2s, "t1": &t1} {
 		if f.set && f != truthFlag {
@@ -101,11 +99,7 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 	if truth == nil {
 		truth, _ = sidecar.ParseList(def)
 	}
-	k, err := findKind(model)
-	if err != nil {
-		return err
-	}
-	acq := k.acq()
+	acq := info.Simulate.Acq()
 	if te.set || ti.set || tr.set || fa.set {
 		n := 0
 		for _, l := range []*listFlag{&te, &ti, &tr, &fa} {
@@ -322,4 +316,16 @@ func finiteAll(xs ...float64) bool {
 		}
 	}
 	return true
+}
+
+// validModels lists the models validate can study: those with a
+// simulator protocol and a default true-value range in the registry.
+func validModels() []string {
+	var n []string
+	for _, m := range fit.Models() {
+		if m.Simulate != nil && m.Simulate.Truth != "" {
+			n = append(n, m.Name)
+		}
+	}
+	return n
 }
