@@ -59,7 +59,7 @@ func openSlabSource(c *Config, tmpDir string) (*slabSource, error) {
 	return s, nil
 }
 
-// fitStream fits a NIfTI series slab by slab within the --memory budget:
+// runSlabs fits a NIfTI series slab by slab within the --memory budget:
 // a first pass over the slabs finds the automatic threshold (and the noise
 // level for --noise rician without --sigma) when the series holds more
 // than one slab; the second reads, fits and appends each slab to the maps.
