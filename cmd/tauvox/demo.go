@@ -75,8 +75,11 @@ verdict table and the drift table.`, e)
 			if err := mkdirAll(sub); err != nil {
 				return err
 			}
-			ss := &subStage{root: sub}
-			if _, err := simulateInto(ss, &sim); err != nil {
+			s, err := sim.simulation()
+			if err != nil {
+				return err
+			}
+			if _, err := pipeline.Simulate(sub, s); err != nil {
 				return err
 			}
 			fitDir := st.Path(filepath.Join(dir, "fit-"+j.kind))
