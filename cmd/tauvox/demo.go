@@ -10,12 +10,11 @@ import (
 	"path/filepath"
 	"time"
 
-	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/report"
+	"github.com/tauvox/tauvox/output"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )

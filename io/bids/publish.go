@@ -8,10 +8,9 @@ import (
 	"os"
 	"path/filepath"
 
-	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
+	"github.com/tauvox/tauvox/output"
 	"github.com/tauvox/tauvox/volume"
 )
 

@@ -11,7 +11,6 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/volume"
 )
 

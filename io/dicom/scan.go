@@ -15,7 +15,6 @@ import (
 	"strings"
 
 	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/volume"
 )
 

@@ -12,9 +12,8 @@ import (
 	"sync"
 	"time"
 
-	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/output"
 	"github.com/tauvox/tauvox/volume"
 )
 

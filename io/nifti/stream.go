@@ -13,7 +13,6 @@ import (
 
 	"github.com/klauspost/compress/gzip"
 	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/volume"
 )
 

@@ -10,11 +10,10 @@ import (
 	"sort"
 	"strings"
 
-	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/sidecar"
+	"github.com/tauvox/tauvox/output"
 	"github.com/tauvox/tauvox/volume"
 )
 

@@ -12,7 +12,6 @@ import (
 	"strings"
 
 	"github.com/tauvox/tauvox/output"
-
 	"github.com/tauvox/tauvox/volume"
 )
 
