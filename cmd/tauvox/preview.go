@@ -52,7 +52,7 @@ func runPreview(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	stems, err := chooseMaps(folder, pos[0], maps)
+	stems, err := folder.Choose(maps)
 	if err != nil {
 		return err
 	}

@@ -141,3 +141,26 @@ func sidecarUnit(mapPath string) string {
 	}
 	return s.Units
 }
+
+// Choose returns the map stems of the folder named in the comma list
+// maps, or, when it is empty, every map but the standard
+// errors (_sd, BIDS desc-sd) and status.
+func (f *Folder) Choose(maps string) ([]string, error) {
+	var stems []string
+	if maps != "" {
+		for _, s := range strings.Split(maps, ",") {
+			s = strings.TrimSpace(s)
+			if _, ok := f.Maps[s]; !ok {
+				return nil, fmt.Errorf("%s: no map %q (have %s)", f.Dir, s, strings.Join(f.Stems(), ", "))
+			}
+			stems = append(stems, s)
+		}
+		return stems, nil
+	}
+	for _, s := range f.Stems() {
+		if !strings.HasSuffix(s, "_sd") && !strings.HasSuffix(s, "status") && !strings.Contains(s, "desc-sd") && !strings.Contains(s, "sd_") {
+			stems = append(stems, s)
+		}
+	}
+	return stems, nil
+}
