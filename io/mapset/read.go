@@ -96,16 +96,6 @@ func ReadMaps(paths []string) ([]Map, error) {
 			return nil, err
 		}
 		var status []uint8
-		if sp, ok := f.Maps["status"]; ok {
-			s, err := nifti.Read(sp)
-			if err != nil {
-				return nil, err
-			}
-			status = make([]uint8, len(s.Data))
-			for i, v := range s.Data {
-				status[i] = uint8(v)
-			}
-		}
 		for _, stem := range f.Stems() {
 			if stem == "status" || stem == "fitquality" {
 				continue
@@ -114,7 +104,11 @@ func ReadMaps(paths []string) ([]Map, error) {
 			if err != nil {
 				return nil, err
 			}
-			if status != nil && len(status) != im.Voxels() {
+			if status == nil {
+				if status, err = f.Status(im); err != nil {
+					return nil, err
+				}
+			} else if len(status) != im.Voxels() {
 				return nil, fmt.Errorf("%s: the status map and %s lie on different grids", f.Maps["status"], f.Maps[stem])
 			}
 			out = append(out, Map{Name: stem, Path: f.Maps[stem], Unit: sidecarUnit(f.Maps[stem]), Image: im, Status: status})
@@ -163,4 +157,25 @@ func (f *Folder) Choose(maps string) ([]string, error) {
 		}
 	}
 	return stems, nil
+}
+
+// Status reads the folder's status map (nil when it has none) and checks
+// that it lies on the grid of ref, a map of the folder.
+func (f *Folder) Status(ref *volume.Image) ([]uint8, error) {
+	sp, ok := f.Maps["status"]
+	if !ok {
+		return nil, nil
+	}
+	s, err := nifti.Read(sp)
+	if err != nil {
+		return nil, err
+	}
+	if !volume.SameGrid(s, ref, 1e-3) {
+		return nil, fmt.Errorf("%s: the status map and %s lie on different grids", sp, ref.Source.Path)
+	}
+	status := make([]uint8, len(s.Data))
+	for i, v := range s.Data {
+		status[i] = uint8(v)
+	}
+	return status, nil
 }
