@@ -9,7 +9,9 @@ import (
 	"sync"
 	"sync/atomic"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/internal/threshold"
+
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Options controls Run. The zero value fits every voxel above the
@@ -400,13 +402,8 @@ func PlanSlabs(nz int, perSlice, budget int64) SlabPlan {
 // is known. The result equals AutoThreshold of the whole series exactly.
 // The zero value is ready for Peaks.
 type PeakHistogram struct {
-	top   float64
-	h     [otsuBins]float64
-	total float64
+	h threshold.Histogram
 }
-
-// otsuBins is the histogram size of the automatic threshold.
-const otsuBins = 256
 
 // Peaks writes into dst (allocated when nil or short; returned) the
 // largest finite sample of each voxel of im, −Inf when it has none, as
@@ -447,78 +444,18 @@ func MaxInto(peaks, vol []float32) {
 }
 
 // Raise raises the histogram's top to the largest of peaks.
-func (p *PeakHistogram) Raise(peaks []float32) {
-	for _, s := range peaks {
-		if float64(s) > p.top {
-			p.top = float64(s)
-		}
-	}
-}
+func (p *PeakHistogram) Raise(peaks []float32) { p.h.Raise(peaks) }
 
 // Top returns the largest peak seen so far (0 when none is positive).
-func (p *PeakHistogram) Top() float64 { return p.top }
+func (p *PeakHistogram) Top() float64 { return p.h.Top }
 
 // Add bins peaks found by Peaks; call it for every part after all parts
 // have passed through Peaks.
-func (p *PeakHistogram) Add(peaks []float32) {
-	if !(p.top > 0) {
-		return
-	}
-	for _, s := range peaks {
-		v := float64(s)
-		if !(v > 0) {
-			v = 0
-		}
-		b := int(v / p.top * (otsuBins - 1))
-		if b >= otsuBins {
-			b = otsuBins - 1
-		}
-		p.h[b]++
-		p.total++
-	}
-}
+func (p *PeakHistogram) Add(peaks []float32) { p.h.Add(peaks) }
 
 // Threshold returns the automatic threshold: half of Otsu's threshold of
 // the binned peaks, 0 when no sample is positive (as AutoThreshold).
-func (p *PeakHistogram) Threshold() float64 {
-	if !(p.top > 0) {
-		return 0
-	}
-	return otsuHist(&p.h, p.total, p.top) / 2
-}
-
-// otsuHist is the threshold search of otsu on a histogram already made.
-func otsuHist(h *[otsuBins]float64, total, top float64) float64 {
-	const bins = otsuBins
-	var sumAll float64
-	for i, c := range h {
-		sumAll += float64(i) * c
-	}
-	var wB, sumB, best float64
-	bestI, bestJ := 0, 0
-	for i := 0; i < bins; i++ {
-		wB += h[i]
-		if wB == 0 {
-			continue
-		}
-		wF := total - wB
-		if wF == 0 {
-			break
-		}
-		sumB += float64(i) * h[i]
-		mB := sumB / wB
-		mF := (sumAll - sumB) / wF
-		between := wB * wF * (mB - mF) * (mB - mF)
-		switch {
-		case between > best*(1+1e-12):
-			best = between
-			bestI, bestJ = i, i
-		case between >= best*(1-1e-12):
-			bestJ = i
-		}
-	}
-	return (float64(bestI+bestJ)/2 + 1) / (bins - 1) * top
-}
+func (p *PeakHistogram) Threshold() float64 { return p.h.Otsu() / 2 }
 
 // Background accumulates BackgroundSigma over a series seen in parts of
 // whole voxels, in voxel order; the result equals BackgroundSigma of the

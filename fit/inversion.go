@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // InversionRecovery is the three-parameter model of magnitude

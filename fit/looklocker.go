@@ -3,7 +3,7 @@ package fit
 import (
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // LookLocker is the three-parameter apparent-T1 model of a Look-Locker

@@ -1,9 +1,7 @@
 package fit
 
 import (
-	"math"
-
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // AutoThreshold returns the automatic masking threshold of a series: half
@@ -27,25 +25,6 @@ func PeaksThreshold(peaks []float32) float64 {
 	p.Raise(peaks)
 	p.Add(peaks)
 	return p.Threshold()
-}
-
-// OtsuThreshold returns Otsu's threshold (Otsu 1979) of values on a
-// 256-bin histogram over [0, largest finite value], non-positive values in
-// the lowest bin, taken at the middle of the range of bins that maximise the
-// between-class variance (with a clean gap between two classes every bin in
-// the gap maximises it equally). It returns 0 when no value is positive.
-func OtsuThreshold(values []float32) float64 {
-	var p PeakHistogram
-	for _, s := range values {
-		if f := float64(s); f > p.top && !math.IsInf(f, 0) {
-			p.top = f
-		}
-	}
-	if !(p.top > 0) {
-		return 0
-	}
-	p.Add(values)
-	return otsuHist(&p.h, p.total, p.top)
 }
 
 // BackgroundSigma estimates the noise SD σ of the complex channels from

@@ -3,7 +3,7 @@ package fit
 import (
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Param describes one output of a model: a fitted parameter or a quantity

@@ -5,32 +5,7 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
-)
-
-// Method names an estimation method.
-type Method string
-
-// Estimation methods. Not every model offers every method.
-const (
-	LogLinear Method = "loglinear" // weighted linear fit of ln S
-	NLLS      Method = "nlls"      // nonlinear least squares (Levenberg–Marquardt)
-	Linear    Method = "linear"    // closed-form linearisation (DESPOT1 for VFA)
-	RDNLS     Method = "rdnls"     // reduced-dimension search + polish (IR)
-	ARLO      Method = "arlo"      // auto-regression on linear operations (Pei et al. 2015)
-)
-
-// Solver selects the numerical engine of a nonlinear method.
-type Solver int
-
-const (
-	// Dedicated is tauvox's own allocation-free Levenberg–Marquardt solver
-	// (the default).
-	Dedicated Solver = iota
-	// Gonum minimises the same cost with gonum's optimize package (BFGS on
-	// scaled parameters). It is slower and allocates per voxel; it is kept
-	// as an independent cross-check.
-	Gonum
+	"github.com/tauvox/tauvox/volume"
 )
 
 // MonoExp is the mono-exponential decay of a multi-echo series,
@@ -203,7 +178,7 @@ func (m *MonoExp) NewFitter(acq []volume.Acquisition) (Fitter, error) {
 		curve: newMonoExpCurve(te, m.Offset, m.Sigma),
 	}
 	if meth == NLLS && !m.Offset && m.Sigma == 0 && m.Solver == Dedicated {
-		f.fast = &monoExp2{c: &f.curve, set: m.LM, rlo: 1 / (hi * 10), rhi: 1 / (lo / 10)}
+		f.fast = &expLM{c: &f.curve, set: m.LM, rlo: 1 / (hi * 10), rhi: 1 / (lo / 10)}
 	}
 	if meth == NLLS {
 		f.lm = newLM(m.LM, len(te), np)
@@ -304,7 +279,7 @@ type monoExpFitter struct {
 	np     int
 	curve  monoExpCurve
 	lm     *lm
-	fast   *monoExp2 // two-parameter fast path, nil when not applicable
+	fast   *expLM // two-parameter fast path, nil when not applicable
 	solver solver
 	p      [3]float64
 	plo    [3]float64

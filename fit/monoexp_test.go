@@ -10,7 +10,7 @@ import (
 	"gonum.org/v1/gonum/diff/fd"
 	"gonum.org/v1/gonum/floats/scalar"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // echoes returns an Acquisition list with the given echo times.
@@ -351,10 +351,10 @@ func TestMonoExpNoAllocs(t *testing.T) {
 	}
 }
 
-// TestMonoExp2MatchesGeneric: the fused two-parameter solver and the
+// TestExpLMMatchesGeneric: the fused two-parameter solver and the
 // generic Levenberg–Marquardt reach the same minimum (1e-8 relative) on
 // noisy voxels (an internal consistency check).
-func TestMonoExp2MatchesGeneric(t *testing.T) {
+func TestExpLMMatchesGeneric(t *testing.T) {
 	te := spacedTE(16, 10, 10)
 	fast := mustFitter(t, &MonoExp{}, echoes(te)).(*monoExpFitter)
 	gen := mustFitter(t, &MonoExp{}, echoes(te)).(*monoExpFitter)

@@ -5,7 +5,7 @@ import (
 	"math"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // TestNoNumberWithoutData: a voxel with no signal (every finite sample 0),

@@ -2,13 +2,17 @@ package fit
 
 import (
 	"fmt"
+	"math"
+	"slices"
 	"strings"
+
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Spec selects a model and its settings by name, as the command line does.
 // The zero value of every field but Model selects the model's default.
 type Spec struct {
-	Model      string  // "t2", "t2star", "t1-ir", "t1-vfa", "t1-sr", "t1-ll", "t2-epg", "t2-spectrum"
+	Model      string  // a registered model name (see Models)
 	Method     string  // model-specific; "" for the default
 	Offset     bool    // t2, t2star: fit a constant offset
 	Sigma      float64 // t2, t2star, t2-epg: noise SD for the Rician noise-floor model; 0 for none
@@ -29,142 +33,184 @@ type Spec struct {
 	EPGBasis bool
 }
 
-// ModelInfo describes a model for help texts.
+// ModelInfo is a model's entry in the registry: everything the rest of
+// tauvox needs to know about it (help, flag validation, scan's suggestion,
+// batch defaults, BIDS sidecars, the simulator, the docs' model table).
 type ModelInfo struct {
-	Name    string
-	Methods []string // the first is the default
-	Summary string
-	Needs   string // the acquisition parameter that must vary
+	Name    string   // command-line name, e.g. "t2"
+	Methods []string // estimation methods; the first is the default
+	Summary string   // one line: acquisition and equation
+	// Needs is the acquisition parameter that must vary across volumes
+	// (a volume.Acquisition field name: EchoTime, InversionTime,
+	// FlipAngle, RepetitionTime).
+	Needs string
+	// Sequence tells scan which of several models varying the same
+	// parameter to suggest: SeqGradientEcho for gradient-echo trains,
+	// SeqSpinEcho otherwise. Suggest marks the one scan suggests.
+	Sequence Sequence
+	Suggest  bool
+	// Options are the flags of the model-specific settings it takes
+	// (see ModelOptions), beyond the generic --method, --min, --max, --gonum.
+	Options []string
+	// Suffixes are the raw BIDS file-collection suffixes (BIDS
+	// qMRI appendix) that tauvox batch fits with this model by default.
+	Suffixes []string
+	// Reference cites the method for the EstimationReference key of the
+	// BIDS sidecars (the sources of docs/methods.md).
+	Reference string
+	// Simulate, when not nil, is the protocol `tauvox simulate --kind
+	// NAME` writes for the model.
+	Simulate *Protocol
 	// Help is a few lines on the model's equation, assumptions and
 	// outputs, for `tauvox fit --model NAME --help`.
 	Help string
+	// make builds the model; New has checked method and options.
+	make func(s Spec, meth Method, solver Solver) Model
 }
 
-// Models lists the models New knows.
-func Models() []ModelInfo {
-	return []ModelInfo{
-		{Name: "t2", Methods: []string{"nlls", "loglinear"}, Summary: "multi-echo spin echo, S = M0·exp(−TE/T2) [+ c]", Needs: "EchoTime",
-			Help: `S(TE) = M0·exp(−TE/T2) [+ c] (Carr & Purcell 1954; Meiboom & Gill 1958).
-Assumes ideal 180° refocusing: imperfect refocusing adds stimulated echoes and
-biases T2 upwards (use t2-epg, or --offset / --skip-echoes to reduce it).
-nlls: Levenberg–Marquardt from the log-linear start; loglinear: weighted
-linear fit of ln S (biased at low SNR). --sigma fits the Rician mean of the
-magnitude (noise floor of late echoes).
-Outputs: T2map (ms), R2map (1/s), M0map; with --offset, offset.`},
-		{Name: "t2star", Methods: []string{"nlls", "loglinear", "arlo"}, Summary: "multi-echo gradient echo, S = M0·exp(−TE/T2*) [+ c]", Needs: "EchoTime",
-			Help: `S(TE) = M0·exp(−TE/T2*) [+ c], the same decay on gradient echoes.
-nlls and loglinear as for t2; arlo: auto-regression on linear operations
-(Pei et al. 2015), T2* = Σx·d/Σd² from Simpson's rule over pairs of echo
-spacings, closed form, needs ≥ 3 evenly spaced echoes; slightly low on noisy
-data. --sigma fits the Rician noise floor (nlls).
-Outputs: T2starmap (ms), R2starmap (1/s), M0map; with --offset, offset.`},
-		{Name: "t1-ir", Methods: []string{"rdnls", "nlls"}, Summary: "magnitude inversion recovery, |a + b·exp(−TI/T1)|, polarity restored", Needs: "InversionTime",
-			Help: `|S(TI)| = |a + b·exp(−TI/T1)| (Barral et al. 2010): absorbs an imperfect
-inversion and a finite TR. rdnls: grid search on T1 with (a, b) in closed form
-for every polarity split, then Levenberg–Marquardt; nlls: the same start,
-then the magnitude model directly. Samples in any TI order.
-Outputs: T1map (ms), R1map (1/s), M0map (= a), inveff (−b/(2a)).`},
-		{Name: "t1-vfa", Methods: []string{"linear", "nlls"}, Summary: "variable flip angle spoiled gradient echo (DESPOT1), optional B1 map", Needs: "FlipAngle",
-			Help: `S(α) = M0·sin α·(1 − E1)/(1 − E1·cos α), E1 = exp(−TR/T1) (Ernst; Fram et
-al. 1987; Deoni et al. 2003). Assumes ideal spoiling and one TR; the
-effective angle is B1·α with --b1 (ignoring B1 scales T1 by about B1²).
-linear: DESPOT1 regression; nlls: Levenberg–Marquardt from it.
-Outputs: T1map (ms), R1map (1/s), M0map.`},
-		{Name: "t1-sr", Methods: []string{"nlls"}, Summary: "saturation recovery / variable TR, M0·(1 − k·exp(−TR/T1))", Needs: "RepetitionTime",
-			Help: `S(TR) = M0·(1 − k·exp(−TR/T1)), k = 1 for an ideal saturation; with
---efficiency k is fitted. Grid search on T1 with M0 (and k) in closed form,
-then Levenberg–Marquardt.
-Outputs: T1map (ms), R1map (1/s), M0map; with --efficiency, sateff.`},
-		{Name: "t1-ll", Methods: []string{"rdnls"}, Summary: "Look-Locker, |A − B·exp(−t/T1*)|, T1 = T1*·(B/A − 1)", Needs: "InversionTime",
-			Help: `|S(t)| = |A − B·exp(−t/T1*)|, T1 = T1*·(B/A − 1) (Deichmann & Haase
-1992). t is each frame's time after the inversion, read as InversionTime.
-The correction assumes continuous FLASH readouts with TR ≪ T1 (about −1 % at
-T1 1000 ms, TR 5 ms, 10°). Fitted like t1-ir (grid search with polarity
-restoration, then Levenberg–Marquardt); SEs by the delta method.
-Outputs: T1map, T1starmap (ms), llA (A), llBA (B/A; 2 for a perfect inversion).`},
-		{Name: "t2-epg", Methods: []string{"nlls", "dictionary"}, Summary: "stimulated-echo corrected multi-echo spin echo (EPG), fits T2, B1, M0", Needs: "EchoTime",
-			Help: `S_k = M0·EPG_k(T2, T1, B1·α_nominal, ESP): the extended-phase-graph echo
-train of a CPMG (Hennig 1988; Weigel 2015), fitting T2, B1 and M0 (Lebel &
-Wilman 2010); with --b1, B1 is taken from the map and only T2, M0 are fitted.
-Echoes must be TE = k·ESP of one train. T1 fixed (--t1, default 1000 ms),
-α_nominal --refocus (default 180°). No slice profile. The train is symmetric
-about 180°, so B1 is folded to at most 180°/α_nominal. nlls: dictionary
-search over T2 × B1, then Levenberg–Marquardt on the exact EPG with analytic
-derivatives; dictionary: the best entry only. --sigma: Rician noise floor.
-Outputs: T2map (ms), B1map (ratio), M0map.`},
-		{Name: "t2-spectrum", Methods: []string{"nnls"}, Summary: "multi-component T2 spectrum (regularised NNLS), myelin water fraction", Needs: "EchoTime",
-			Help: `y_i = Σ_j s_j·K(t_i; T2_j), s ≥ 0, on 60 log-spaced T2 from 3 ms to 2 s
-(Whittall & MacKay 1989): Lawson–Hanson NNLS with Tikhonov regularisation,
-μ per voxel such that χ² = 1.02·χ²_min. --epg-basis uses EPG echo trains
-with the refocusing angle chosen per voxel by the unregularised misfit
-(Prasloski et al. 2012). --window sets the short window (default T2 < 40 ms).
-No standard errors (NaN).
-Outputs: MWFmap (percent of the spectrum in the short window), T2short and
-T2long (geometric-mean T2 of each window, ms), M0map (Σs); with the EPG
-basis, refocusangle (degrees).`},
+// Protocol is a simulated acquisition: its sequence and per-volume
+// parameters (ms, degrees).
+type Protocol struct {
+	Summary string
+	Seq     Sequence
+	Acq     func() []volume.Acquisition
+	// Truth is the default range of true values of the model's first
+	// output for `tauvox validate` (ms, a list or start:step:stop).
+	Truth string
+}
+
+// Option is a model-specific setting: the flag that sets it, the key under
+// which provenance.json records it, and what it is.
+type Option struct {
+	Flag  string // command-line flag without dashes, e.g. "refocus"
+	Key   string // settings key in provenance.json, e.g. "refocus_deg"
+	What  string // what it is, for messages, e.g. "the nominal refocusing angle"
+	value func(*Spec) any
+	set   func(*Spec) bool
+}
+
+// ModelOptions lists every model-specific setting. Options without a Spec
+// field (the B1 map, the noise model) are set by the pipeline; their
+// value is recorded there.
+var ModelOptions = []Option{
+	{Flag: "offset", Key: "offset", What: "a constant offset", value: func(s *Spec) any { return s.Offset }, set: func(s *Spec) bool { return s.Offset }},
+	{Flag: "noise", Key: "noise", What: "the Rician noise model"},
+	{Flag: "sigma", Key: "sigma", What: "the Rician noise SD", set: func(s *Spec) bool { return s.Sigma > 0 }},
+	{Flag: "efficiency", Key: "efficiency", What: "a fitted saturation efficiency", value: func(s *Spec) any { return s.Efficiency }, set: func(s *Spec) bool { return s.Efficiency }},
+	{Flag: "t1", Key: "t1_fixed_ms", What: "the fixed T1", value: func(s *Spec) any { return s.T1Fixed }, set: func(s *Spec) bool { return s.T1Fixed != 0 }},
+	{Flag: "refocus", Key: "refocus_deg", What: "the nominal refocusing angle", value: func(s *Spec) any { return s.RefocusAngle }, set: func(s *Spec) bool { return s.RefocusAngle != 0 }},
+	{Flag: "window", Key: "window_ms", What: "the T2 window", value: func(s *Spec) any { return s.Window }, set: func(s *Spec) bool { return s.Window != 0 }},
+	{Flag: "epg-basis", Key: "epg_basis", What: "the EPG basis", value: func(s *Spec) any { return s.EPGBasis }, set: func(s *Spec) bool { return s.EPGBasis }},
+	{Flag: "b1", Key: "b1", What: "a B1 map"},
+}
+
+// RecordSettings puts into dst every Spec setting of the registry's
+// options and the generic bounds (min_ms, max_ms), whether set or not, so
+// that provenance files compare key by key.
+func RecordSettings(dst map[string]any, s *Spec) {
+	for _, o := range ModelOptions {
+		if o.value != nil {
+			dst[o.Key] = o.value(s)
+		}
 	}
+	dst["min_ms"], dst["max_ms"] = s.MinT, s.MaxT
+}
+
+// Lookup returns the registry entry of a model name.
+func Lookup(name string) (ModelInfo, bool) {
+	for _, m := range registry {
+		if m.Name == name {
+			return m, true
+		}
+	}
+	return ModelInfo{}, false
+}
+
+// Models lists the registered models in registry order.
+func Models() []ModelInfo { return slices.Clone(registry) }
+
+// Names returns the registered model names, comma-separated.
+func Names() string {
+	var n []string
+	for _, m := range registry {
+		n = append(n, m.Name)
+	}
+	return strings.Join(n, ", ")
+}
+
+// ModelsTaking returns the names of the models that take the option flag,
+// comma-separated.
+func ModelsTaking(flag string) string {
+	var n []string
+	for _, m := range registry {
+		if slices.Contains(m.Options, flag) {
+			n = append(n, m.Name)
+		}
+	}
+	return strings.Join(n, ", ")
+}
+
+// Takes reports whether the model takes the option flag (e.g. "b1").
+func Takes(model, flag string) bool {
+	m, ok := Lookup(model)
+	return ok && slices.Contains(m.Options, flag)
+}
+
+// Suggest returns the model scan suggests for a series whose varying
+// parameter is needs (a volume.Acquisition field name) and whose sequence
+// is seq (SeqGradientEcho or SeqSpinEcho; other values count as spin
+// echo), or "" when none fits it.
+func Suggest(needs string, seq Sequence) string {
+	if seq != SeqGradientEcho {
+		seq = SeqSpinEcho
+	}
+	best := ""
+	for _, m := range registry {
+		if m.Suggest && m.Needs == needs {
+			if m.Sequence == seq {
+				return m.Name
+			}
+			if best == "" {
+				best = m.Name
+			}
+		}
+	}
+	return best
+}
+
+// DefaultSuffixes returns the raw BIDS suffix → model name map of the
+// registry (the models tauvox batch fits by default).
+func DefaultSuffixes() map[string]string {
+	out := map[string]string{}
+	for _, m := range registry {
+		for _, s := range m.Suffixes {
+			out[s] = m.Name
+		}
+	}
+	return out
 }
 
 // New returns the model a Spec names, or an error naming the valid
-// choices.
+// choices. Options the model does not take are refused.
 func New(s Spec) (Model, error) {
-	meth := Method(s.Method)
+	info, ok := Lookup(s.Model)
+	if !ok {
+		return nil, fmt.Errorf("unknown model %q (choose %s)", s.Model, Names())
+	}
+	if s.Method != "" && !slices.Contains(info.Methods, s.Method) {
+		return nil, fmt.Errorf("model %s has no method %q (choose %s)", s.Model, s.Method, strings.Join(info.Methods, ", "))
+	}
+	for _, o := range ModelOptions {
+		if o.set != nil && o.set(&s) && !slices.Contains(info.Options, o.Flag) {
+			return nil, fmt.Errorf("--%s (%s) applies to %s only", o.Flag, o.What, ModelsTaking(o.Flag))
+		}
+	}
+	if math.IsNaN(s.MinT) || math.IsNaN(s.MaxT) {
+		return nil, fmt.Errorf("--min and --max must be numbers")
+	}
 	solver := Dedicated
 	if s.Gonum {
 		solver = Gonum
 	}
-	var m Model
-	switch s.Model {
-	case "t2", "t2star":
-		m = &MonoExp{Star: s.Model == "t2star", Estimator: meth, Offset: s.Offset, Sigma: s.Sigma, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
-	case "t1-ir":
-		m = &InversionRecovery{Estimator: meth, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
-	case "t1-vfa":
-		m = &VariableFlipAngle{Estimator: meth, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
-	case "t1-sr":
-		m = &SaturationRecovery{Efficiency: s.Efficiency, Estimator: meth, MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
-	case "t1-ll":
-		m = &LookLocker{MinT: s.MinT, MaxT: s.MaxT, Solver: solver}
-	case "t2-epg":
-		m = &StimulatedEcho{Estimator: meth, T1: s.T1Fixed, RefocusAngle: s.RefocusAngle, MinT: s.MinT, MaxT: s.MaxT, Sigma: s.Sigma, Solver: solver}
-	case "t2-spectrum":
-		m = &Spectrum{MinT: s.MinT, MaxT: s.MaxT, Window: s.Window, EPGBasis: s.EPGBasis, T1: s.T1Fixed}
-	default:
-		var names []string
-		for _, i := range Models() {
-			names = append(names, i.Name)
-		}
-		return nil, fmt.Errorf("unknown model %q (choose %s)", s.Model, strings.Join(names, ", "))
-	}
-	for _, i := range Models() {
-		if i.Name != s.Model {
-			continue
-		}
-		ok := s.Method == ""
-		for _, mm := range i.Methods {
-			ok = ok || mm == s.Method
-		}
-		if !ok {
-			return nil, fmt.Errorf("model %s has no method %q (choose %s)", s.Model, s.Method, strings.Join(i.Methods, ", "))
-		}
-		if s.Offset && s.Model != "t2" && s.Model != "t2star" {
-			return nil, fmt.Errorf("--offset applies to t2 and t2star only")
-		}
-		if s.Sigma > 0 && s.Model != "t2" && s.Model != "t2star" && s.Model != "t2-epg" {
-			return nil, fmt.Errorf("--sigma applies to t2, t2star and t2-epg only")
-		}
-		if s.Efficiency && s.Model != "t1-sr" {
-			return nil, fmt.Errorf("--efficiency applies to t1-sr only")
-		}
-		if s.T1Fixed != 0 && s.Model != "t2-epg" && s.Model != "t2-spectrum" {
-			return nil, fmt.Errorf("a fixed T1 applies to t2-epg and t2-spectrum only")
-		}
-		if s.RefocusAngle != 0 && s.Model != "t2-epg" {
-			return nil, fmt.Errorf("a nominal refocusing angle applies to t2-epg only")
-		}
-		if (s.Window != 0 || s.EPGBasis) && s.Model != "t2-spectrum" {
-			return nil, fmt.Errorf("the T2 window and the EPG basis apply to t2-spectrum only")
-		}
-	}
-	return m, nil
+	return info.make(s, Method(s.Method), solver), nil
 }

@@ -47,3 +47,27 @@ func TestRegistry(t *testing.T) {
 		t.Errorf("t2-spectrum spec: %v %+v", err, m)
 	}
 }
+
+// TestSuggest: scan's suggestion for each varying parameter comes from the
+// registry (the model marked Suggest that needs it, the echo kind telling
+// t2 from t2star).
+func TestSuggest(t *testing.T) {
+	for _, c := range []struct {
+		needs string
+		seq   Sequence
+		want  string
+	}{
+		{"EchoTime", SeqSpinEcho, "t2"}, {"EchoTime", SeqGradientEcho, "t2star"},
+		{"InversionTime", SeqSpinEcho, "t1-ir"}, {"FlipAngle", SeqSpinEcho, "t1-vfa"},
+		{"RepetitionTime", SeqSpinEcho, "t1-sr"}, {"EchoNumber", SeqSpinEcho, ""},
+	} {
+		if got := Suggest(c.needs, c.seq); got != c.want {
+			t.Errorf("Suggest(%s, %d) = %q, want %q", c.needs, c.seq, got, c.want)
+		}
+	}
+	for _, m := range Models() {
+		if _, ok := map[string]bool{"EchoTime": true, "InversionTime": true, "FlipAngle": true, "RepetitionTime": true}[m.Needs]; !ok {
+			t.Errorf("%s needs %q, not an Acquisition field scan knows", m.Name, m.Needs)
+		}
+	}
+}

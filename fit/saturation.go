@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // SaturationRecovery is the recovery after a saturation pulse, sampled by

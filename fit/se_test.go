@@ -6,7 +6,7 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // meanSFactor is E[s]/σ for s² = χ²_ν·σ²/ν, the residual variance of a

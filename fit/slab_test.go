@@ -5,7 +5,7 @@ import (
 	"math"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // subSlab returns slices z0…z1−1 of im as an image of its own.

@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Spectrum is the multi-component T2 model of a multi-echo spin echo: the

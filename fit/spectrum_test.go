@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // nnlsGram returns G = AᵀA and h = Aᵀb of a row-major rows×cols A.

@@ -5,12 +5,8 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
-
-// Dictionary is the estimation method that stops at the best dictionary
-// entry (no polish); see StimulatedEcho.
-const Dictionary Method = "dictionary"
 
 // StimulatedEcho is the stimulated-echo corrected T2 model of a CPMG
 // multi-echo spin echo (Lebel & Wilman 2010, MRM 64:1005): with imperfect

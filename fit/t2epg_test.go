@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // epgTrain is M0·EPG(T2, T1, α) at the echoes k·ESP, k = 1…n.

@@ -8,7 +8,7 @@ import (
 	"gonum.org/v1/gonum/diff/fd"
 	"gonum.org/v1/gonum/stat/distuv"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 func echoProtocol(n int, first, step float64) []volume.Acquisition {

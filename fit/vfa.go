@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // VariableFlipAngle is the spoiled gradient-echo (FLASH/SPGR) steady state

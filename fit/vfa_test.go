@@ -9,7 +9,7 @@ import (
 
 	"gonum.org/v1/gonum/floats/scalar"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 func vfaModels() []*VariableFlipAngle {

@@ -4,7 +4,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // TestRegionVoxelLimit: many large spheres are refused once their voxels

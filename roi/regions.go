@@ -13,7 +13,7 @@ import (
 	"strings"
 
 	"github.com/tauvox/tauvox/internal/regular"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Sphere spaces of a region list.

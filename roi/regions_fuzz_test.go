@@ -4,7 +4,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // FuzzParseList feeds arbitrary bytes to the region-list parser (CSV and

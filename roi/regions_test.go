@@ -5,7 +5,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // oblique returns a 20×18×6 grid rotated 30° about z and 10° about x,

@@ -4,7 +4,7 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Stats summarises a map inside a region. Statistics are over the finite

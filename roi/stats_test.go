@@ -6,7 +6,7 @@ import (
 	"os"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // TestSummarise: values checked by hand against numpy.percentile's default

@@ -1,12 +1,8 @@
 package main
 
 import (
-	"bytes"
 	"context"
-	"encoding/json"
-	"errors"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -16,10 +12,8 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/bids"
-	"github.com/tauvox/tauvox/io/mapset"
-	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
 )
 
 const batchSummary = `Fits every relaxometry series of a BIDS dataset and writes the maps as a
@@ -102,7 +96,7 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 	}
 	a.root = pos[0]
 	a.modelOf = map[string]string{}
-	for s, m := range bids.DefaultModels {
+	for s, m := range fit.DefaultSuffixes() {
 		a.modelOf[s] = m
 	}
 	for _, kv := range a.models {
@@ -138,32 +132,6 @@ func runBatch(ctx context.Context, args []string, e *env) error {
 	return batch(ctx, &a, e)
 }
 
-// batchJob is one series of the plan.
-type batchJob struct {
-	c        *bids.Collection
-	model    fit.Model
-	labelled bool   // the relaxometry maps carry desc-<SUFFIX> (see bids.DerivativeName)
-	dir      string // output folder of the series
-}
-
-func (j *batchJob) name(stem, ext string) string {
-	return bids.DerivativeName(j.c.Base, j.c.Suffix, stem, ext, j.labelled)
-}
-
-func (j *batchJob) provenancePath() string {
-	return filepath.Join(j.dir, j.name("provenance", ".json"))
-}
-
-// stems returns the output stems of a fit with the model, as io/mapset
-// names them.
-func stems(m fit.Model) []string {
-	var s []string
-	for _, p := range m.Outputs() {
-		s = append(s, p.Map, p.Map+"_sd")
-	}
-	return append(s, "fitquality", "status")
-}
-
 func batch(ctx context.Context, a *batchArgs, e *env) error {
 	var suffixes []string
 	for s := range a.modelOf {
@@ -180,45 +148,25 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 	if len(ds.Collections) == 0 {
 		return fmt.Errorf("%s: no %s series found", a.root, strings.Join(suffixes, ", "))
 	}
-	if err := checkDerivative(a.out); err != nil {
+	if err := bids.CheckDerivative(a.out); err != nil {
 		return err
 	}
-	// Plan: one job per collection; relaxometry maps that two series of
-	// one folder would both write get desc-<SUFFIX>.
-	var jobs []*batchJob
-	claims := map[string][]*batchJob{}
-	for _, c := range ds.Collections {
-		m, err := fit.New(fit.Spec{Model: a.modelOf[c.Suffix]})
-		if err != nil {
-			return err
-		}
-		j := &batchJob{c: c, model: m, dir: filepath.Join(a.out, filepath.FromSlash(c.Dir))}
-		jobs = append(jobs, j)
-		for _, s := range stems(m) {
-			if bids.IsQuantityMap(s) {
-				k := filepath.Join(j.dir, j.name(s, ""))
-				claims[k] = append(claims[k], j)
-			}
-		}
-	}
-	for _, js := range claims {
-		if len(js) > 1 {
-			for _, j := range js {
-				j.labelled = true
-			}
-		}
+	jobs, err := pipeline.Plan(ds, a.out, a.modelOf)
+	if err != nil {
+		return err
 	}
 	if a.dryRun {
 		for _, j := range jobs {
 			state := "fit"
 			if !a.force {
-				if ok, why := j.finished(a); ok {
+				if ok, why := j.Finished(); ok {
 					state = "finished, skip"
 				} else {
 					state = "fit (" + why + ")"
 				}
 			}
-			fmt.Fprintf(e.stdout, "%s\t%s\t%d files\t%s → %s\n", j.c.ID(), j.model.Name(), len(j.c.Files), state, filepath.Join(j.dir, j.name(j.primary(), ".nii.gz")))
+			c := j.Pub.Collection
+			fmt.Fprintf(e.stdout, "%s\t%s\t%d files\t%s → %s\n", c.ID(), j.Model.Name(), len(c.Files), state, j.Primary())
 		}
 		return nil
 	}
@@ -239,7 +187,7 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 		}
 		wg.Add(1)
 		sem <- struct{}{}
-		go func(j *batchJob) {
+		go func(j *pipeline.Job) {
 			defer func() { <-sem; wg.Done() }()
 			a.runJob(ctx, j, per, e)
 		}(j)
@@ -257,30 +205,6 @@ func batch(ctx context.Context, a *batchArgs, e *env) error {
 	return nil
 }
 
-// primary returns the stem of the first output of the job's model.
-func (j *batchJob) primary() string {
-	return j.model.Outputs()[0].Map
-}
-
-// checkDerivative refuses an output folder that holds a dataset not made
-// by tauvox.
-func checkDerivative(dir string) error {
-	b, err := os.ReadFile(filepath.Join(dir, "dataset_description.json"))
-	if errors.Is(err, os.ErrNotExist) {
-		return nil
-	} else if err != nil {
-		return err
-	}
-	var d bids.Description
-	if err := json.Unmarshal(b, &d); err != nil {
-		return fmt.Errorf("%s: dataset_description.json: %v", dir, err)
-	}
-	if d.DatasetType != "derivative" || len(d.GeneratedBy) == 0 || d.GeneratedBy[0].Name != "tauvox" {
-		return fmt.Errorf("%s: holds a dataset not made by tauvox (dataset_description.json); give another --out", dir)
-	}
-	return nil
-}
-
 func (a *batchArgs) say(e *env, failed bool, format string, args ...any) {
 	a.mu.Lock()
 	defer a.mu.Unlock()
@@ -293,18 +217,19 @@ func (a *batchArgs) say(e *env, failed bool, format string, args ...any) {
 	}
 }
 
-func (a *batchArgs) runJob(ctx context.Context, j *batchJob, workers int, e *env) {
+func (a *batchArgs) runJob(ctx context.Context, j *pipeline.Job, workers int, e *env) {
+	id := j.Pub.Collection.ID()
 	if !a.force {
-		if ok, _ := j.finished(a); ok {
+		if ok, _ := j.Finished(); ok {
 			a.mu.Lock()
 			a.skipped++
 			a.mu.Unlock()
-			a.say(e, false, "%s: up to date (provenance matches), skipped", j.c.ID())
+			a.say(e, false, "%s: up to date (provenance matches), skipped", id)
 			return
 		}
 	}
 	t0 := time.Now()
-	counts, err := a.fitJob(ctx, j, workers)
+	counts, err := j.Run(ctx, workers, version())
 	a.mu.Lock()
 	if err != nil {
 		a.failed++
@@ -314,279 +239,9 @@ func (a *batchArgs) runJob(ctx context.Context, j *batchJob, workers int, e *env
 	a.mu.Unlock()
 	if err != nil {
 		if ctx.Err() == nil {
-			a.say(e, true, "%s: %s", j.c.ID(), oneLine(err.Error()))
+			a.say(e, true, "%s: %s", id, oneLine(err.Error()))
 		}
 		return
 	}
-	a.say(e, false, "%s: %s/%s → %s (%s; %.2f s)", j.c.ID(), j.model.Name(), j.model.Method(),
-		filepath.Join(j.dir, j.name(j.primary(), ".nii.gz")), statusLine(counts), time.Since(t0).Seconds())
-}
-
-// batchSettings are the settings recorded for (and compared on) a series.
-// The worker count is recorded in the provenance but not compared: the
-// maps do not depend on it.
-func (j *batchJob) settings() map[string]any {
-	return map[string]any{
-		"model": j.model.Name(), "method": j.model.Method(), "suffix": j.c.Suffix,
-		"threshold": 0.0, "no_mask": false, "skip_echoes": 0, "offset": false, "noise": "gaussian",
-		"solver": "dedicated", "source": j.c.ID(), "labelled": j.labelled,
-	}
-}
-
-// batchProvenance is provenance.json of io/mapset with the BIDS names of
-// the outputs.
-type batchProvenance struct {
-	mapset.Provenance
-	BIDSSource string `json:"bids_source"`
-}
-
-// finished reports whether the series' outputs exist and its provenance
-// records the same inputs (path relative to the dataset and SHA-256) and
-// settings; otherwise it says why not.
-func (j *batchJob) finished(a *batchArgs) (bool, string) {
-	b, err := os.ReadFile(j.provenancePath())
-	if err != nil {
-		return false, "not fitted yet"
-	}
-	var p batchProvenance
-	if err := json.Unmarshal(b, &p); err != nil {
-		return false, "provenance unreadable"
-	}
-	for _, o := range p.Outputs {
-		if _, err := os.Stat(filepath.Join(j.dir, o)); err != nil {
-			return false, "output " + o + " missing"
-		}
-	}
-	if !sameSettings(p.Settings, j.settings()) {
-		return false, "settings changed"
-	}
-	want, err := j.inputRecords()
-	if err != nil {
-		return false, "inputs unreadable"
-	}
-	if len(want) != len(p.Inputs) {
-		return false, "inputs changed"
-	}
-	for i, in := range p.Inputs {
-		if rel(a.root, in.Path) != rel(a.root, want[i].Path) || in.SHA256 != want[i].SHA256 {
-			return false, "inputs changed"
-		}
-	}
-	return true, ""
-}
-
-// rel returns path relative to root when it lies inside, else path.
-func rel(root, path string) string {
-	r, err := filepath.Rel(root, path)
-	if err != nil || strings.HasPrefix(r, "..") {
-		return filepath.ToSlash(path)
-	}
-	return filepath.ToSlash(r)
-}
-
-// inputRecords lists the files a fit of the collection reads, in the
-// order Load reads them, with checksums, without reading the images.
-func (j *batchJob) inputRecords() ([]mapset.InputRecord, error) {
-	var out []mapset.InputRecord
-	seen := map[string]bool{}
-	add := func(p, role string) error {
-		if seen[p] {
-			return nil
-		}
-		seen[p] = true
-		sum, n, err := mapset.Checksum(p)
-		if err != nil {
-			return err
-		}
-		out = append(out, mapset.InputRecord{Path: p, Role: role, SHA256: sum, Bytes: n})
-		return nil
-	}
-	for _, f := range j.c.Files {
-		if err := add(f.Path, "series"); err != nil {
-			return nil, err
-		}
-		scs, err := bids.Sidecars(j.c.Root, f.Path)
-		if err != nil {
-			return nil, err
-		}
-		for _, s := range scs {
-			if err := add(s, "sidecar"); err != nil {
-				return nil, err
-			}
-		}
-	}
-	return out, nil
-}
-
-func sameSettings(a, b map[string]any) bool {
-	norm := func(m map[string]any) string {
-		c := map[string]any{}
-		for k, v := range m {
-			if k != "workers" {
-				c[k] = v
-			}
-		}
-		s, _ := json.Marshal(c)
-		return string(s)
-	}
-	return norm(a) == norm(b)
-}
-
-// estimationReference cites the method of each model for the
-// EstimationReference key of the sidecars (the sources of docs/methods.md
-// and check-values §6).
-var estimationReference = map[string]string{
-	"t2":     "Mono-exponential fit of a multi-echo spin-echo train (Carr & Purcell 1954; Meiboom & Gill 1958); see tauvox docs/methods.md",
-	"t2star": "Mono-exponential fit of a multi-echo gradient-echo train (common practice); see tauvox docs/methods.md",
-	"t1-ir":  "Barral JK et al. A robust methodology for in vivo T1 mapping. Magn Reson Med 2010;64(4):1057-1067. doi:10.1002/mrm.22497",
-	"t1-vfa": "Fram EK et al. Magn Reson Imaging 1987;5(3):201-208; Deoni SCL, Rutt BK, Peters TM. Magn Reson Med 2003;49:515-526",
-}
-
-// fitJob loads, fits and writes one series: the maps are written by
-// io/mapset into a hidden work folder beside the outputs, then renamed to
-// their BIDS names (sidecars rewritten with the BIDS keys), the
-// provenance last, so that a series counts as finished only when every
-// file is in place.
-func (a *batchArgs) fitJob(ctx context.Context, j *batchJob, workers int) ([fit.NumStatus]int, error) {
-	var counts [fit.NumStatus]int
-	t0 := time.Now()
-	im, inputs, err := j.c.Load()
-	if err != nil {
-		return counts, err
-	}
-	if im.Volumes() < 2 {
-		return counts, fmt.Errorf("holds %d volume; a relaxation fit needs several", im.Volumes())
-	}
-	if _, err := j.model.NewFitter(im.Acq); err != nil {
-		return counts, fmt.Errorf("model %s: %v (the sidecars give the parameters)", j.model.Name(), err)
-	}
-	tLoad := time.Since(t0)
-	t1 := time.Now()
-	maps, err := fit.Run(ctx, im, j.model, &fit.Options{Workers: workers})
-	if err != nil {
-		return counts, err
-	}
-	tFit := time.Since(t1)
-	if err := os.MkdirAll(j.dir, 0o755); err != nil {
-		return counts, err
-	}
-	work := filepath.Join(j.dir, ".tauvox-"+j.c.Base.String()+"_"+j.c.Suffix)
-	st, err := mapset.NewStage(work, true)
-	if err != nil {
-		return counts, err
-	}
-	defer st.Abort()
-	settings := j.settings()
-	settings["workers"] = workers
-	info := &mapset.Info{Model: j.model.Name(), Method: j.model.Method(), Version: version(), Settings: settings,
-		Inputs: inputs, Source: im.Source, Acq: im.Acq,
-		Timings: map[string]float64{"load": tLoad.Seconds(), "fit": tFit.Seconds()}}
-	if _, err := mapset.Write(st, maps, im, info); err != nil {
-		return counts, err
-	}
-	if err := st.Commit(); err != nil {
-		return counts, err
-	}
-	defer os.RemoveAll(work)
-	if err := j.publish(work, im, inputs); err != nil {
-		return counts, err
-	}
-	return maps.Counts, nil
-}
-
-// publish moves the files of the work folder to their BIDS names.
-func (j *batchJob) publish(work string, im *volume.Image, inputs []series.Input) error {
-	prov := j.provenancePath()
-	if err := os.Remove(prov); err != nil && !errors.Is(err, os.ErrNotExist) {
-		return err
-	}
-	var sources []string
-	for _, in := range inputs {
-		sources = append(sources, bids.URI("raw", j.c.Root, in.Path))
-	}
-	acqKeys := acquisitionKeys(im)
-	var outputs []string
-	for _, stem := range stems(j.model) {
-		src := filepath.Join(work, stem+".nii.gz")
-		dst := j.name(stem, ".nii.gz")
-		if err := os.Rename(src, filepath.Join(j.dir, dst)); err != nil {
-			return err
-		}
-		b, err := os.ReadFile(filepath.Join(work, stem+".json"))
-		if err != nil {
-			return err
-		}
-		var meta map[string]any
-		if err := json.Unmarshal(b, &meta); err != nil {
-			return fmt.Errorf("%s.json: %v", stem, err)
-		}
-		meta["Sources"] = sources
-		if r, ok := estimationReference[j.model.Name()]; ok {
-			meta["EstimationReference"] = r
-		}
-		for k, v := range acqKeys {
-			meta[k] = v
-		}
-		side := j.name(stem, ".json")
-		if err := writeJSON(filepath.Join(j.dir, side), meta); err != nil {
-			return err
-		}
-		outputs = append(outputs, dst, side)
-	}
-	b, err := os.ReadFile(filepath.Join(work, "provenance.json"))
-	if err != nil {
-		return err
-	}
-	var p batchProvenance
-	if err := json.Unmarshal(b, &p.Provenance); err != nil {
-		return fmt.Errorf("provenance.json: %v", err)
-	}
-	p.Outputs = outputs
-	p.BIDSSource = j.c.ID()
-	return writeJSON(prov, p)
-}
-
-func writeJSON(path string, v any) error {
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetEscapeHTML(false)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(v); err != nil {
-		return err
-	}
-	return series.WriteFileAtomic(path, buf.Bytes())
-}
-
-// acquisitionKeys returns the BIDS acquisition keys of the series for the
-// map sidecars (check-values §3.6: times in s, varying values as arrays).
-func acquisitionKeys(im *volume.Image) map[string]any {
-	out := map[string]any{}
-	put := func(key string, scale float64, get func(volume.Acquisition) float64) {
-		var vals []float64
-		distinct := map[float64]bool{}
-		for _, a := range im.Acq {
-			v := get(a)
-			if math.IsNaN(v) {
-				return
-			}
-			vals = append(vals, v*scale)
-			distinct[v] = true
-		}
-		if len(vals) == 0 {
-			return
-		}
-		if len(distinct) == 1 {
-			out[key] = vals[0]
-		} else {
-			out[key] = vals
-		}
-	}
-	put("EchoTime", 1e-3, func(a volume.Acquisition) float64 { return a.EchoTime })
-	put("InversionTime", 1e-3, func(a volume.Acquisition) float64 { return a.InversionTime })
-	put("RepetitionTime", 1e-3, func(a volume.Acquisition) float64 { return a.RepetitionTime })
-	put("FlipAngle", 1, func(a volume.Acquisition) float64 { return a.FlipAngle })
-	if f := im.Source.FieldStrength; f > 0 {
-		out["MagneticFieldStrength"] = f
-	}
-	return out
+	a.say(e, false, "%s: %s/%s → %s (%s; %.2f s)", id, j.Model.Name(), j.Model.Method(), j.Primary(), statusLine(counts), time.Since(t0).Seconds())
 }

@@ -12,7 +12,7 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // withDeadline runs a tauvox command in-process and fails the test, rather

@@ -10,9 +10,10 @@ import (
 	"path/filepath"
 	"time"
 
-	"github.com/tauvox/tauvox/io/mapset"
-	"github.com/tauvox/tauvox/io/report"
-	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/internal/pipeline"
+	"github.com/tauvox/tauvox/internal/report"
 	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
@@ -73,13 +74,16 @@ verdict table and the drift table.`, e)
 			if err := mkdirAll(sub); err != nil {
 				return err
 			}
-			ss := &subStage{root: sub}
-			if _, err := simulateInto(ss, &sim); err != nil {
+			s, err := sim.simulation()
+			if err != nil {
+				return err
+			}
+			if _, err := pipeline.Simulate(sub, s); err != nil {
 				return err
 			}
 			fitDir := st.Path(filepath.Join(dir, "fit-"+j.kind))
-			a := &fitArgs{series: filepath.Join(sub, j.kind+".nii.gz"), out: fitDir, model: j.model, noise: j.noise, quiet: true}
-			if err := fitSeries(ctx, a, quiet); err != nil {
+			c := &pipeline.Config{Series: filepath.Join(sub, j.kind+".nii.gz"), Out: fitDir, Spec: fit.Spec{Model: j.model}, Rician: j.noise == "rician"}
+			if err := fitSeries(ctx, c, true, quiet); err != nil {
 				return err
 			}
 			fits = append(fits, fitDir)
@@ -98,10 +102,10 @@ verdict table and the drift table.`, e)
 			return fmt.Errorf("%s: qa.json: %v", qaDir, err)
 		}
 		b = append(sidecar.Tidy(b), '\n')
-		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.json"), b); err != nil {
+		if err := output.WriteFile(filepath.Join(qaDir, "qa.json"), b); err != nil {
 			return err
 		}
-		if err := series.WriteFileAtomic(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
+		if err := output.WriteFile(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
 			return err
 		}
 		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
@@ -161,6 +165,6 @@ verdict table and the drift table.`, e)
 		fmt.Fprintln(e.stdout, "see", filepath.Join(out, "history", "index.html"))
 	}
 	fmt.Fprintln(e.stdout, "\nevery report and the charts:", filepath.Join(out, "index.html"))
-	fmt.Fprintln(e.stdout, "\n"+mapset.Caution)
+	fmt.Fprintln(e.stdout, "\n"+output.Caution)
 	return nil
 }

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/nifti"
 )
 
@@ -29,11 +30,11 @@ func TestDICOMEndToEnd(t *testing.T) {
 		if code != 0 {
 			t.Fatal(stderr)
 		}
-		var res scanResult
+		var res pipeline.ScanResult
 		if err := json.Unmarshal([]byte(stdout), &res); err != nil {
 			t.Fatal(err)
 		}
-		var dic []scanEntry
+		var dic []pipeline.ScanEntry
 		for _, s := range res.Series {
 			if s.Format == "dicom" {
 				dic = append(dic, s)
@@ -161,7 +162,7 @@ func TestFitPydicomSeries(t *testing.T) {
 		ref := refs.Series[c.key]
 		dir := filepath.Join("../../testdata/dicom", c.dir)
 		_, stdout, _ := tauvox(t, "scan", dir, "--json")
-		var res scanResult
+		var res pipeline.ScanResult
 		json.Unmarshal([]byte(stdout), &res)
 		id := ""
 		for _, s := range res.Series {

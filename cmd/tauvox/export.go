@@ -2,16 +2,10 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
-	"os"
-	"path/filepath"
 	"strings"
 
-	"github.com/tauvox/tauvox/io/dicom"
-	"github.com/tauvox/tauvox/io/mapset"
-	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/preview"
+	"github.com/tauvox/tauvox/internal/pipeline"
 )
 
 const exportSummary = `Writes each map of a fit output folder (or a BIDS derivative folder) as a
@@ -52,124 +46,13 @@ func runExport(ctx context.Context, args []string, e *env) error {
 	case seriesID != "" && like == "":
 		return fmt.Errorf("--series needs --like")
 	}
-	folder, err := mapset.Open(pos[0])
+	stems, err := pipeline.Export(ctx, pos[0], &pipeline.ExportOptions{Out: out, Force: force, Maps: maps, Like: like,
+		Series: seriesID, KeepIdentifiers: keep, Software: "tauvox " + version()})
 	if err != nil {
-		return err
-	}
-	stems, err := chooseMaps(folder, pos[0], maps)
-	if err != nil {
-		return err
-	}
-	var src *dicom.Series
-	if like != "" {
-		cat, err := dicom.Scan([]string{like}, &dicom.ScanOptions{KeepIdentifiers: keep})
-		if err != nil {
-			return err
-		}
-		if seriesID != "" {
-			if src, err = cat.Lookup(seriesID); err != nil {
-				return err
-			}
-		} else if len(cat.Series) == 0 {
-			return fmt.Errorf("%s: holds no DICOM image series", like)
-		} else {
-			first, err := nifti.Read(folder.Maps[stems[0]])
-			if err != nil {
-				return err
-			}
-			for _, s := range cat.Series {
-				if s.HasGrid(first.Affine, first.Dims[2]) {
-					src = s
-					break
-				}
-			}
-			if src == nil {
-				return fmt.Errorf("%s: no series has the slices of %s; give --series ID", like, folder.Maps[stems[0]])
-			}
-		}
-	}
-	st, err := newStage(e, out, force)
-	if err != nil {
-		return err
-	}
-	defer st.Abort()
-	base := 1000
-	if src != nil && src.Number > 0 {
-		base = 100 * src.Number
-	}
-	for i, stem := range stems {
-		if ctx.Err() != nil {
-			return ctx.Err()
-		}
-		im, err := nifti.Read(folder.Maps[stem])
-		if err != nil {
-			return err
-		}
-		q, unit := mapQuantity(folder.Maps[stem], stem)
-		if strings.HasSuffix(stem, "fitquality") {
-			q, unit = "fitquality", "ratio" // R² of the fit, not the rate R2
-		}
-		desc := q + " map (tauvox)"
-		if src != nil && src.Description != "" {
-			desc = src.Description + ": " + desc
-		}
-		opt := &dicom.MapOptions{Quantity: q, Unit: unit, Description: desc, SeriesNumber: base + i + 1,
-			Software: "tauvox " + version(), Like: src, KeepIdentifiers: keep}
-		path, err := dicom.WriteParametricMap(st.Path(""), im, opt)
-		if err != nil {
-			return fmt.Errorf("%s: %v", folder.Maps[stem], err)
-		}
-		if err := os.Rename(path, st.Path(dicom.SafeName(stem, 0)+".dcm")); err != nil {
-			return err
-		}
-	}
-	if err := st.Commit(); err != nil {
 		return err
 	}
 	if !quiet {
 		fmt.Fprintf(e.stdout, "wrote %d parametric map%s into %s: %s\n", len(stems), map[bool]string{true: "", false: "s"}[len(stems) == 1], out, strings.Join(stems, ", "))
 	}
 	return nil
-}
-
-// mapQuantity returns the quantity and unit of a map from its sidecar
-// (Quantity, Units), else from its name (T2map → T2, BIDS suffix last).
-func mapQuantity(path, stem string) (string, string) {
-	var meta struct{ Quantity, Units string }
-	side := strings.TrimSuffix(strings.TrimSuffix(path, ".gz"), ".nii") + ".json"
-	if b, err := os.ReadFile(side); err == nil && json.Unmarshal(b, &meta) == nil && meta.Quantity != "" {
-		if meta.Units == "" {
-			meta.Units = preview.DefaultUnit(meta.Quantity)
-		}
-		return meta.Quantity, meta.Units
-	}
-	q := stem
-	if i := strings.LastIndexByte(q, '_'); i >= 0 && !strings.HasSuffix(q, "_sd") {
-		q = q[i+1:]
-	}
-	q = strings.TrimSuffix(filepath.Base(q), "map")
-	return q, preview.DefaultUnit(q)
-}
-
-// chooseMaps returns the map stems of folder (read from dir) named in the
-// comma list maps, or, when it is empty, every map but the standard
-// errors (_sd, BIDS desc-sd) and status.
-func chooseMaps(folder *mapset.Folder, dir, maps string) ([]string, error) {
-	var stems []string
-	if maps != "" {
-		for _, s := range strings.Split(maps, ",") {
-			s = strings.TrimSpace(s)
-			if _, ok := folder.Maps[s]; !ok {
-				return nil, fmt.Errorf("%s: no map %q (have %s)", dir, s, strings.Join(folder.Stems(), ", "))
-			}
-			stems = append(stems, s)
-		}
-		return stems, nil
-	}
-	for _, s := range folder.Stems() {
-		if !strings.HasSuffix(s, "_sd") && !strings.HasSuffix(s, "status") && !strings.Contains(s, "desc-sd") && !strings.Contains(s, "sd_") {
-			stems = append(stems, s)
-		}
-	}
-	return stems, nil
 }

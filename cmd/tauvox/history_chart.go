@@ -8,7 +8,7 @@ import (
 	"path/filepath"
 	"time"
 
-	"github.com/tauvox/tauvox/io/report"
+	"github.com/tauvox/tauvox/internal/report"
 
 	"github.com/tauvox/tauvox/roi/history"
 )

@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/report"
+	"github.com/tauvox/tauvox/internal/report"
 )
 
 // checkExportDeviations: every row of `history export --csv` carries the

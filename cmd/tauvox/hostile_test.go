@@ -13,7 +13,7 @@ import (
 	"time"
 )
 
-// chromium is Debian's Chromium (package chromium), as in io/report.
+// chromium is Debian's Chromium (package chromium), as in internal/report.
 const chromium = "/usr/bin/chromium"
 
 // dumpDOM loads page in headless Chromium and returns the serialised DOM

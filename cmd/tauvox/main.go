@@ -22,9 +22,10 @@ import (
 	"os"
 	"os/signal"
 	"runtime/debug"
-	"strings"
 	"sync"
 	"syscall"
+
+	"github.com/tauvox/tauvox/internal/output"
 )
 
 func main() {
@@ -134,13 +135,11 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	return 2
 }
 
-// oneLine folds s into one line of printable text: every error line and
-// every table cell taken from a file goes through it, so that escape
-// sequences in a file (a phantom name, a scanner name) never reach the
-// terminal (printable, as scan uses).
-func oneLine(s string) string {
-	return printable(strings.Join(strings.Fields(s), " "))
-}
+// oneLine folds s into one line of printable text (output.Message, then
+// printable, as scan uses): every error line and every table cell taken
+// from a file goes through it, so that escape sequences in a file (a
+// phantom name, a scanner name) never reach the terminal.
+func oneLine(s string) string { return printable(output.Message(s)) }
 
 func usage(w io.Writer) {
 	fmt.Fprintln(w, "tauvox: quantitative relaxation-time maps (T1, T2, T2*) from MR series.")

@@ -12,7 +12,7 @@ import (
 	"testing"
 
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 var update = flag.Bool("update", false, "rewrite golden files")

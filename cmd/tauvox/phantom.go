@@ -14,14 +14,15 @@ import (
 	"strings"
 	"time"
 
+	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/internal/report"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/io/sidecar"
-	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
+	"github.com/tauvox/tauvox/volume"
 )
 
 type phantomArgs struct {
@@ -222,7 +223,7 @@ func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result
 		sess.Scanner = "unknown"
 	}
 	opt := &phantom.Options{Session: sess, Extrapolate: a.extrapolate, ROIFraction: a.frac,
-		Tool: phantom.Tool{Name: "tauvox", Version: version()}, Caution: mapset.Caution}
+		Tool: phantom.Tool{Name: "tauvox", Version: version()}, Caution: output.Caution}
 	if a.centerSet {
 		c := a.center.v
 		opt.Locate.Center = &c

@@ -1,8 +1,8 @@
 package main
 
 import (
+	"github.com/tauvox/tauvox/internal/report"
 	"github.com/tauvox/tauvox/io/preview"
-	"github.com/tauvox/tauvox/io/report"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 

@@ -8,22 +8,14 @@ import (
 	"errors"
 	"fmt"
 	"os"
-	"path/filepath"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi"
+	"github.com/tauvox/tauvox/volume"
 )
-
-// roiMap is one map to summarise.
-type roiMap struct {
-	name, path, unit string
-	im               *volume.Image
-	status           []uint8
-}
 
 // roiRow is one region × map result.
 type roiRow struct {
@@ -82,7 +74,7 @@ differs). One CSV row per region × map, with a unit column.`, e)
 	if _, err := os.Stat(out); err == nil && !force {
 		return fmt.Errorf("%s: %w", out, mapset.ErrExists)
 	}
-	maps, err := roiMaps(pos)
+	maps, err := mapset.ReadMaps(pos)
 	if err != nil {
 		return err
 	}
@@ -100,16 +92,16 @@ differs). One CSV row per region × map, with a unit column.`, e)
 	for _, m := range maps {
 		var regs []roi.Region
 		if labels != nil {
-			regs, err = roi.Labels(m.im, labels, erode)
+			regs, err = roi.Labels(m.Image, labels, erode)
 		} else {
-			regs, err = roi.Spheres(m.im, specs, erode)
+			regs, err = roi.Spheres(m.Image, specs, erode)
 		}
 		if err != nil {
 			return fmt.Errorf("%s: %v", rois, err)
 		}
 		for _, r := range regs {
 			var s roi.Stats
-			s, scratch = roi.Summarise(m.im.Data, m.status, r.Index, scratch)
+			s, scratch = roi.Summarise(m.Image.Data, m.Status, r.Index, scratch)
 			rows = append(rows, newROIRow(r.Name, m, s))
 		}
 	}
@@ -120,7 +112,7 @@ differs). One CSV row per region × map, with a unit column.`, e)
 	} else {
 		b = roiCSV(rows)
 	}
-	if err := series.WriteFileAtomic(out, b); err != nil {
+	if err := output.WriteFile(out, b); err != nil {
 		return err
 	}
 	fmt.Fprintf(e.stdout, "wrote %s: %d regions × %d maps\n", out, len(rows)/max(1, len(maps)), len(maps))
@@ -134,8 +126,8 @@ func ptr(v float64) *float64 {
 	return &v
 }
 
-func newROIRow(region string, m roiMap, s roi.Stats) roiRow {
-	return roiRow{Region: region, Map: m.name, Unit: m.unit, Stats: s, N: s.N, Voxels: s.Voxels,
+func newROIRow(region string, m mapset.Map, s roi.Stats) roiRow {
+	return roiRow{Region: region, Map: m.Name, Unit: m.Unit, Stats: s, N: s.N, Voxels: s.Voxels,
 		Mean: ptr(s.Mean), SD: ptr(s.SD), Median: ptr(s.Median), Q1: ptr(s.Q1), Q3: ptr(s.Q3), IQR: ptr(s.IQR()),
 		Min: ptr(s.Min), Max: ptr(s.Max), CoV: ptr(s.CoV), Failed: s.Failed}
 }
@@ -152,71 +144,4 @@ func roiCSV(rows []roiRow) []byte {
 	}
 	w.Flush()
 	return b.Bytes()
-}
-
-// roiMaps reads the maps named on the command line.
-func roiMaps(paths []string) ([]roiMap, error) {
-	var out []roiMap
-	for _, p := range paths {
-		st, err := os.Stat(p)
-		if err != nil {
-			return nil, err
-		}
-		if !st.IsDir() {
-			im, err := nifti.Read(p)
-			if err != nil {
-				return nil, err
-			}
-			name := strings.TrimSuffix(strings.TrimSuffix(filepath.Base(p), ".gz"), ".nii")
-			out = append(out, roiMap{name: name, path: p, unit: sidecarUnit(p), im: im})
-			continue
-		}
-		f, err := mapset.Open(p)
-		if err != nil {
-			return nil, err
-		}
-		var status []uint8
-		if sp, ok := f.Maps["status"]; ok {
-			s, err := nifti.Read(sp)
-			if err != nil {
-				return nil, err
-			}
-			status = make([]uint8, len(s.Data))
-			for i, v := range s.Data {
-				status[i] = uint8(v)
-			}
-		}
-		for _, stem := range f.Stems() {
-			if stem == "status" || stem == "fitquality" {
-				continue
-			}
-			im, err := nifti.Read(f.Maps[stem])
-			if err != nil {
-				return nil, err
-			}
-			if status != nil && len(status) != im.Voxels() {
-				return nil, fmt.Errorf("%s: the status map and %s lie on different grids", f.Maps["status"], f.Maps[stem])
-			}
-			out = append(out, roiMap{name: stem, path: f.Maps[stem], unit: sidecarUnit(f.Maps[stem]), im: im, status: status})
-		}
-	}
-	for _, m := range out {
-		if m.im.Volumes() != 1 {
-			return nil, fmt.Errorf("%s: a map must hold one volume, not %d", m.path, m.im.Volumes())
-		}
-	}
-	return out, nil
-}
-
-// sidecarUnit reads "Units" from a map's JSON sidecar ("" when absent).
-func sidecarUnit(mapPath string) string {
-	b, err := os.ReadFile(series.SidecarName(mapPath))
-	if err != nil {
-		return ""
-	}
-	var s struct{ Units string }
-	if json.Unmarshal(b, &s) != nil {
-		return ""
-	}
-	return s.Units
 }

@@ -114,8 +114,13 @@ func newStage(e *env, out string, force bool) (*mapset.Stage, error) {
 	if err != nil {
 		return nil, err
 	}
-	for _, n := range st.Notes() {
-		fmt.Fprintln(e.stderr, "tauvox: note: "+printable(n))
-	}
+	printNotes(e, st.Notes())
 	return st, nil
+}
+
+// printNotes prints notes on stderr, one line each.
+func printNotes(e *env, notes []string) {
+	for _, n := range notes {
+		fmt.Fprintln(e.stderr, "tauvox: note: "+oneLine(n))
+	}
 }

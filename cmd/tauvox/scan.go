@@ -5,51 +5,14 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io/fs"
-	"math"
 	"os"
-	"path/filepath"
 	"strings"
 	"text/tabwriter"
 	"unicode"
 
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/dicom"
-	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/sidecar"
-	"github.com/tauvox/tauvox/io/volume"
 )
-
-// scanEntry is one series found by scan.
-type scanEntry struct {
-	ID          string    `json:"id"`
-	Format      string    `json:"format"`
-	Path        string    `json:"path,omitempty"`
-	Description string    `json:"description"`
-	Varying     string    `json:"varying"`
-	Values      []float64 `json:"values"`
-	Matrix      [2]int    `json:"matrix"`
-	Slices      int       `json:"slices"`
-	Volumes     int       `json:"volumes"`
-	Model       string    `json:"model"`
-	Problem     string    `json:"problem,omitempty"`
-	Notes       []string  `json:"notes,omitempty"`
-	Scanner     string    `json:"scanner,omitempty"`
-	Acquired    string    `json:"acquired,omitempty"`
-	Field       *float64  `json:"field_T,omitempty"`
-	// Identifiers (patient name, ID, birth date, accession number) are
-	// filled only with --keep-identifiers.
-	Identifiers *dicom.Identifiers `json:"identifiers,omitempty"`
-}
-
-type scanResult struct {
-	Series     []scanEntry     `json:"series"`
-	Files      int             `json:"dicom_files"`
-	Skipped    int             `json:"skipped_files"`
-	Unreadable int             `json:"unreadable_files"`
-	Ignored    int             `json:"ignored"`
-	Problems   []dicom.Problem `json:"problems"`
-}
 
 func runScan(_ context.Context, args []string, e *env) error {
 	var asJSON, localizers, derived, keepIDs bool
@@ -76,25 +39,9 @@ reason; the scan goes on with the rest.`, e)
 			return err
 		}
 	}
-	cat, err := dicom.Scan(pos, &dicom.ScanOptions{Localizers: localizers, Derived: derived, KeepIdentifiers: keepIDs})
+	res, err := pipeline.Scan(pos, &dicom.ScanOptions{Localizers: localizers, Derived: derived, KeepIdentifiers: keepIDs})
 	if err != nil {
 		return err
-	}
-	res := scanResult{Files: cat.Files, Skipped: cat.Skipped, Unreadable: cat.Unreadable, Ignored: cat.Ignored, Problems: cat.Problems}
-	for _, s := range cat.Series {
-		en := scanEntry{ID: s.ID, Format: "dicom", Description: s.Description, Varying: s.Varying, Values: s.Values,
-			Matrix: [2]int{s.Columns, s.Rows}, Slices: s.Slices, Volumes: s.Volumes, Model: s.Model, Problem: s.Problem,
-			Notes: s.Notes, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt, Identifiers: s.Identifiers}
-		if f := s.Source.FieldStrength; f > 0 {
-			en.Field = &f
-		}
-		res.Series = append(res.Series, en)
-	}
-	nii := niftiEntries(pos)
-	res.Series = append(res.Series, nii...)
-	res.Skipped -= len(nii) // NIfTI files are not "other files"
-	if res.Skipped < 0 {
-		res.Skipped = 0
 	}
 	if asJSON {
 		b, _ := json.MarshalIndent(res, "", "  ")
@@ -160,93 +107,4 @@ func valueList(v []float64) string {
 		parts = append(parts, fmt.Sprintf("%g", x))
 	}
 	return strings.Join(parts, ",")
-}
-
-// niftiEntries lists the NIfTI series under the paths (headers and
-// sidecars only).
-func niftiEntries(paths []string) []scanEntry {
-	var out []scanEntry
-	visit := func(p string) {
-		if !series.IsNIfTI(p) || strings.HasSuffix(p, ".img") {
-			return
-		}
-		h, err := nifti.ReadHeader(p)
-		en := scanEntry{ID: p, Format: "nifti", Path: p, Description: filepath.Base(p)}
-		if err != nil {
-			en.Problem = err.Error()
-			out = append(out, en)
-			return
-		}
-		d := h.Dims()
-		en.Matrix, en.Slices, en.Volumes = [2]int{d[0], d[1]}, d[2], d[3]
-		if en.Volumes < 2 {
-			return // a map, not a series
-		}
-		if sc, ok := sidecar.ForImage(p); ok {
-			s, err := sidecar.Read(sc)
-			if err != nil {
-				en.Problem = err.Error()
-			} else if acq, err := s.Acquisitions(en.Volumes); err != nil {
-				en.Problem = err.Error()
-			} else {
-				en.Varying, en.Values, en.Model = varying(acq)
-				if s.SeriesDescription != "" {
-					en.Description = s.SeriesDescription
-				}
-			}
-		} else {
-			en.Notes = []string{"no sidecar: give --te/--ti/--tr/--fa to fit"}
-		}
-		out = append(out, en)
-	}
-	for _, root := range paths {
-		filepath.WalkDir(root, func(p string, d fs.DirEntry, err error) error {
-			if err == nil && !d.IsDir() {
-				visit(p)
-			}
-			return nil
-		})
-	}
-	return out
-}
-
-// varying finds the parameter that varies across volumes and suggests a
-// model (the same rule as the DICOM classification).
-func varying(acq []volume.Acquisition) (string, []float64, string) {
-	type param struct {
-		name, model string
-		get         func(volume.Acquisition) float64
-	}
-	for _, p := range []param{
-		{"InversionTime", "t1-ir", func(a volume.Acquisition) float64 { return a.InversionTime }},
-		{"FlipAngle", "t1-vfa", func(a volume.Acquisition) float64 { return a.FlipAngle }},
-		{"EchoTime", "t2", func(a volume.Acquisition) float64 { return a.EchoTime }},
-		{"RepetitionTime", "t1-sr", func(a volume.Acquisition) float64 { return a.RepetitionTime }},
-	} {
-		seen := map[float64]bool{}
-		var vals []float64
-		for _, a := range acq {
-			v := p.get(a)
-			if math.IsNaN(v) {
-				continue
-			}
-			if !seen[v] {
-				seen[v] = true
-				vals = append(vals, v)
-			}
-		}
-		if len(vals) > 1 {
-			sortFloats(vals)
-			return p.name, vals, p.model
-		}
-	}
-	return "", nil, ""
-}
-
-func sortFloats(v []float64) {
-	for i := 1; i < len(v); i++ {
-		for j := i; j > 0 && v[j] < v[j-1]; j-- {
-			v[j], v[j-1] = v[j-1], v[j]
-		}
-	}
 }

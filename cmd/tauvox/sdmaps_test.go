@@ -10,7 +10,7 @@ import (
 	"testing"
 
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // TestFitSDMapsAgainstScipy runs `tauvox fit` on a NIfTI series whose

@@ -6,77 +6,14 @@ import (
 	"fmt"
 	"math"
 	"os"
-	"path/filepath"
-	"sort"
 	"strconv"
 	"strings"
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/dicom"
-	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
-
-// kind is a simulated acquisition with its default protocol.
-type kind struct {
-	name, summary string
-	seq           fit.Sequence
-	model         string
-	acq           func() []volume.Acquisition
-}
-
-func protocol(n int, set func(i int, a *volume.Acquisition)) []volume.Acquisition {
-	acq := make([]volume.Acquisition, n)
-	for i := range acq {
-		acq[i] = volume.Unknown()
-		set(i, &acq[i])
-	}
-	return acq
-}
-
-var kinds = []kind{
-	{"t2", "multi-echo spin echo, 16 echoes TE 10…160 ms, TR 4000 ms", fit.SeqSpinEcho, "t2", func() []volume.Acquisition {
-		return protocol(16, func(i int, a *volume.Acquisition) {
-			a.EchoTime, a.RepetitionTime, a.FlipAngle = 10*float64(i+1), 4000, 90
-		})
-	}},
-	{"t2star", "multi-echo gradient echo, 12 echoes TE 3…36 ms, TR 60 ms, 20°", fit.SeqGradientEcho, "t2star", func() []volume.Acquisition {
-		return protocol(12, func(i int, a *volume.Acquisition) {
-			a.EchoTime, a.RepetitionTime, a.FlipAngle = 3*float64(i+1), 60, 20
-		})
-	}},
-	{"t1-ir", "inversion recovery spin echo, 8 TIs 50…3200 ms, TR 8000 ms, TE 10 ms", fit.SeqInversionRecovery, "t1-ir", func() []volume.Acquisition {
-		ti := []float64{50, 100, 200, 400, 700, 1100, 1800, 3200}
-		return protocol(len(ti), func(i int, a *volume.Acquisition) {
-			a.InversionTime, a.RepetitionTime, a.EchoTime, a.FlipAngle = ti[i], 8000, 10, 90
-		})
-	}},
-	{"t1-vfa", "spoiled gradient echo, flip angles 2…30°, TR 15 ms, TE 2 ms", fit.SeqGradientEcho, "t1-vfa", func() []volume.Acquisition {
-		fa := []float64{2, 5, 10, 15, 20, 30}
-		return protocol(len(fa), func(i int, a *volume.Acquisition) {
-			a.FlipAngle, a.RepetitionTime, a.EchoTime = fa[i], 15, 2
-		})
-	}},
-	{"t1-sr", "saturation recovery, 7 TRs 100…6400 ms, TE 10 ms", fit.SeqSaturationRecovery, "t1-sr", func() []volume.Acquisition {
-		return protocol(7, func(i int, a *volume.Acquisition) {
-			a.RepetitionTime, a.EchoTime, a.FlipAngle = 100*math.Pow(2, float64(i)), 10, 90
-		})
-	}},
-}
-
-func findKind(name string) (kind, error) {
-	var names []string
-	for _, k := range kinds {
-		if k.name == name {
-			return k, nil
-		}
-		names = append(names, k.name)
-	}
-	return kind{}, fmt.Errorf("unknown --kind %q (choose %s)", name, strings.Join(names, ", "))
-}
 
 // vecFlag parses "x,y,z".
 type vecFlag struct{ v [3]float64 }
@@ -131,8 +68,10 @@ type simArgs struct {
 
 func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	var b strings.Builder
-	for _, k := range kinds {
-		fmt.Fprintf(&b, "  %-7s %s\n", k.name, k.summary)
+	for _, m := range fit.Models() {
+		if m.Simulate != nil {
+			fmt.Fprintf(&b, "  %-7s %s\n", m.Name, m.Simulate.Summary)
+		}
 	}
 	fs := newFlags("simulate", "--kind K --out DIR [options]",
 		"Writes a synthetic series of the built-in demo phantom (invented values) with\nknown truth: DIR/<kind>.nii.gz with its BIDS sidecar, and truth_<Q>map.nii.gz\n(NaN outside whole-voxel vial interiors). Kinds:\n"+b.String(), e)
@@ -205,7 +144,11 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 		return err
 	}
 	defer st.Abort()
-	files, err := simulateInto(st, &a)
+	sim, err := a.simulation()
+	if err != nil {
+		return err
+	}
+	files, err := pipeline.Simulate(st.Path(""), sim)
 	if err != nil {
 		return err
 	}
@@ -216,127 +159,20 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 	return nil
 }
 
-// pather places output files: a Stage, or a plain folder.
-type pather interface{ Path(name string) string }
-
-// subStage is a folder inside a stage that is already being built.
-type subStage struct{ root string }
-
-func (s *subStage) Path(name string) string { return filepath.Join(s.root, name) }
-
-func mkdirAll(dir string) error { return os.MkdirAll(dir, 0o755) }
-
-// simulateInto writes the series and truth maps of one kind.
-func simulateInto(st pather, a *simArgs) ([]string, error) {
-	k, err := findKind(a.kind)
-	if err != nil {
-		return nil, err
-	}
-	acq := k.acq()
-	for _, o := range []struct {
-		flag string
-		l    *listFlag
-		put  func(*volume.Acquisition, float64)
-	}{
-		{"te", &a.te, func(x *volume.Acquisition, v float64) { x.EchoTime = v }},
-		{"ti", &a.ti, func(x *volume.Acquisition, v float64) { x.InversionTime = v }},
-		{"tr", &a.tr, func(x *volume.Acquisition, v float64) { x.RepetitionTime = v }},
-		{"fa", &a.fa, func(x *volume.Acquisition, v float64) { x.FlipAngle = v }},
-	} {
-		if !o.l.set {
-			continue
-		}
-		if len(o.l.vals) != len(acq) {
-			if len(o.l.vals) < 2 {
-				return nil, fmt.Errorf("--%s needs at least two values", o.flag)
-			}
-			base := acq[0]
-			acq = make([]volume.Acquisition, len(o.l.vals))
-			for i := range acq {
-				acq[i] = base
-			}
-		}
-		for i := range acq {
-			o.put(&acq[i], o.l.vals[i])
-		}
-	}
-	// The series is made in memory as float32; refuse before allocating
-	// what tauvox could not read back (nifti.DefaultMaxBytes bounds one
-	// image read, 2 GiB).
-	if need := int64(a.matrix) * int64(a.matrix) * int64(a.slices) * int64(len(acq)) * 4; need > nifti.DefaultMaxBytes {
-		return nil, fmt.Errorf("a %d×%d×%d series of %d volumes needs %.1f GiB in memory (float32), above the limit of %.1f GiB for one image; use a smaller --matrix or fewer --slices",
-			a.matrix, a.matrix, a.slices, len(acq), float64(need)/(1<<30), float64(nifti.DefaultMaxBytes)/(1<<30))
-	}
-	sc := a.scene()
-	for id := range a.drift {
-		found := false
-		for _, v := range sc.Def.Vials {
-			found = found || v.ID == id
-		}
-		if !found {
-			return nil, fmt.Errorf("--drift: the demo phantom has no vial %q", id)
-		}
-	}
-	im, err := sc.Series(k.seq, acq)
-	if err != nil {
-		return nil, err
-	}
-	im.Source.Description = "tauvox demo phantom " + k.name
-	if a.description != "" {
-		im.Source.Description = a.description
-	}
-	if a.scanner != "" {
-		im.Source.Scanner = a.scanner
-	}
-	name := k.name + ".nii.gz"
-	extra := map[string]any{
-		"Manufacturer":          "tauvox simulator",
-		"InstitutionName":       "Harrowgate Imaging Physics (invented)",
-		"PhantomTemperature":    a.temp,
-		"SimulatedNoiseSigma":   a.sigma,
-		"SimulatedB1":           a.b1,
-		"SimulatedSuggestModel": k.model,
-	}
-	var when time.Time
+// simulation returns the pipeline's description of the series the flags
+// ask for.
+func (a *simArgs) simulation() (*pipeline.Simulation, error) {
+	s := &pipeline.Simulation{Kind: a.kind, Scene: a.scene(), TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list(),
+		DICOM: a.format == "dicom", Enhanced: a.enhanced, Description: a.description, Scanner: a.scanner,
+		Temperature: a.temp, Noise: a.sigma, B1: a.b1}
 	if a.date != "" {
 		t, err := time.Parse("2006-01-02 15:04", a.date+" "+a.clock)
 		if err != nil {
 			return nil, fmt.Errorf("--date/--time: want YYYY-MM-DD and HH:MM")
 		}
-		when = t
-		extra["AcquisitionDateTime"] = t.Format("2006-01-02T15:04:05")
+		s.Acquired = t
 	}
-	var files []string
-	if a.format == "dicom" {
-		seq := map[fit.Sequence]string{fit.SeqSpinEcho: "SE", fit.SeqGradientEcho: "GR", fit.SeqInversionRecovery: "IR", fit.SeqSaturationRecovery: "SE"}[k.seq]
-		opt := &dicom.WriteOptions{Enhanced: a.enhanced, Description: im.Source.Description, SeriesNumber: 1 + len(kinds),
-			Sequence: seq, Manufacturer: "tauvox simulator", StationName: im.Source.Scanner, FieldStrength: a.field,
-			PhantomName: "TAUVOX^DEMO", AcquiredAt: when}
-		if err := dicom.WriteSeries(st.Path(k.name), im, opt); err != nil {
-			return nil, err
-		}
-		files = append(files, k.name+"/")
-	} else {
-		if err := series.Write(st.Path(name), im, extra); err != nil {
-			return nil, err
-		}
-		files = append(files, name, strings.TrimSuffix(name, ".nii.gz")+".json")
-	}
-	qs := []string{"T1", "T2", "PD"}
-	if k.name == "t2star" {
-		qs = append(qs, "T2star")
-	}
-	sort.Strings(qs)
-	for _, q := range qs {
-		tr, err := sc.Truth(q)
-		if err != nil {
-			return nil, err
-		}
-		fn := "truth_" + q + "map.nii.gz"
-		if err := nifti.Write(st.Path(fn), tr, &nifti.WriteOptions{Description: "tauvox simulated truth " + q}); err != nil {
-			return nil, err
-		}
-		files = append(files, fn)
-	}
-	return files, nil
+	return s, nil
 }
+
+func mkdirAll(dir string) error { return os.MkdirAll(dir, 0o755) }

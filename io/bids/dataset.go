@@ -1,6 +1,7 @@
 package bids
 
 import (
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -9,16 +10,10 @@ import (
 	"strings"
 )
 
-// DefaultModels is the model tauvox suggests for each relaxometry suffix
-// (check-values §3.6): multi-echo spin echo → t2, multi-echo gradient echo
-// → t2star, inversion recovery → t1-ir, variable flip angle → t1-vfa.
-var DefaultModels = map[string]string{"MESE": "t2", "MEGRE": "t2star", "IRT1": "t1-ir", "VFA": "t1-vfa"}
-
-// ScanOptions are the settings of Scan. The zero value (and nil) collects
-// the suffixes of DefaultModels for every participant.
+// ScanOptions are the settings of Scan.
 type ScanOptions struct {
-	// Suffixes are the suffixes to collect; nil means the keys of
-	// DefaultModels.
+	// Suffixes are the file-collection suffixes to collect (MESE, VFA,
+	// ...; tauvox batch takes them from the model registry). Required.
 	Suffixes []string
 	// Participants, when not empty, limits the walk to these subject
 	// labels (without "sub-").
@@ -69,10 +64,8 @@ func Scan(root string, opt *ScanOptions) (*Dataset, error) {
 	if opt != nil {
 		o = *opt
 	}
-	if o.Suffixes == nil {
-		for s := range DefaultModels {
-			o.Suffixes = append(o.Suffixes, s)
-		}
+	if len(o.Suffixes) == 0 {
+		return nil, errors.New("bids: Scan needs the suffixes to collect")
 	}
 	want := map[string]bool{}
 	for _, s := range o.Suffixes {

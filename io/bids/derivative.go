@@ -1,14 +1,14 @@
 package bids
 
 import (
-	"bytes"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
 
-	"github.com/tauvox/tauvox/io/series"
+	"github.com/tauvox/tauvox/internal/output"
 )
 
 // quantityMaps are the BIDS qMRI map suffixes (check-values §3.6) that
@@ -116,14 +116,10 @@ func WriteDescription(dir, raw, version string) error {
 		DatasetLinks:   map[string]string{"raw": filepath.ToSlash(link)},
 		SourceDatasets: []map[string]any{{"URL": filepath.ToSlash(link)}},
 	}
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetEscapeHTML(false)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(d); err != nil {
+	b, err := encodeJSON(d)
+	if err != nil {
 		return err
 	}
-	b := buf.Bytes()
 	path := filepath.Join(dir, "dataset_description.json")
 	if old, err := os.ReadFile(path); err == nil && string(old) == string(b) {
 		return nil
@@ -131,8 +127,27 @@ func WriteDescription(dir, raw, version string) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return err
 	}
-	if err := series.WriteFileAtomic(path, b); err != nil {
+	if err := output.WriteFile(path, b); err != nil {
 		return fmt.Errorf("%s: %v", path, err)
+	}
+	return nil
+}
+
+// CheckDerivative refuses an output folder that holds a dataset not made
+// by tauvox.
+func CheckDerivative(dir string) error {
+	b, err := os.ReadFile(filepath.Join(dir, "dataset_description.json"))
+	if errors.Is(err, os.ErrNotExist) {
+		return nil
+	} else if err != nil {
+		return err
+	}
+	var d Description
+	if err := json.Unmarshal(b, &d); err != nil {
+		return fmt.Errorf("%s: dataset_description.json: %v", dir, err)
+	}
+	if d.DatasetType != "derivative" || len(d.GeneratedBy) == 0 || d.GeneratedBy[0].Name != "tauvox" {
+		return fmt.Errorf("%s: holds a dataset not made by tauvox (dataset_description.json); give another --out", dir)
 	}
 	return nil
 }

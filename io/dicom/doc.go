@@ -22,11 +22,13 @@
 // without pixel data are left out unless ScanOptions asks for them.
 //
 // Each Series says which acquisition parameter varies — InversionTime,
-// FlipAngle, EchoTime, RepetitionTime (first match in that order), or
-// EchoNumber when only the echo numbers differ — its distinct values, and a
-// suggested model: "t1-ir", "t1-vfa", "t2" or "t2star" (multi-echo spin or
-// gradient echo, told apart by ScanningSequence SE/GR, EchoPulseSequence,
-// or vendor sequence-name fragments), "t1-sr"; "" when nothing varies. IDs
+// FlipAngle, EchoTime, RepetitionTime (volume.Varying: first match in that
+// order), or EchoNumber when only the echo numbers differ — its distinct
+// values, and for echo trains the echo kind: "SE" or "GR" (multi-echo spin
+// or gradient echo, told apart by ScanningSequence SE/GR,
+// EchoPulseSequence, or vendor sequence-name fragments), "" when the
+// headers do not tell. The package knows no fit models: tauvox scan asks
+// the model registry (fit.Suggest) for the suggestion. IDs
 // are short and stable: the series number and six hex digits of a hash of
 // the UID (and split key), e.g. "7-3fa2c1".
 //

@@ -2,8 +2,9 @@ package dicom
 
 import (
 	"errors"
-	"strconv"
 	"strings"
+
+	"github.com/tauvox/tauvox/internal/output"
 )
 
 // ErrTooLarge is wrapped by the UnsupportedError returned when a header or
@@ -86,26 +87,14 @@ func (e *fileError) Unwrap() error { return e.err }
 // message builds "path: dicom: reason: cause" on one line.
 func message(path, reason string, err error) string {
 	var b strings.Builder
-	b.WriteString(oneLine(path))
+	b.WriteString(output.Line(path))
 	b.WriteString(": dicom: ")
-	b.WriteString(oneLine(reason))
+	b.WriteString(output.Line(reason))
 	if err != nil && err != ErrIncomplete {
 		b.WriteString(": ")
-		b.WriteString(oneLine(err.Error()))
+		b.WriteString(output.Line(err.Error()))
 	}
 	return b.String()
-}
-
-// oneLine quotes s when it holds control characters so that an error
-// message stays on one line.
-func oneLine(s string) string {
-	for _, r := range s {
-		if r < 0x20 || r == 0x7f {
-			q := strconv.Quote(s)
-			return q[1 : len(q)-1]
-		}
-	}
-	return s
 }
 
 func formatErr(path, reason string, err error) error {

@@ -10,7 +10,8 @@ import (
 	"strings"
 	"time"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // sopParametricMap is Parametric Map Storage (check-values §3.3, from the
@@ -97,7 +98,7 @@ func WriteParametricMap(dir string, im *volume.Image, opt *MapOptions) (string, 
 		o = *opt
 	}
 	fail := func(format string, a ...any) (string, error) {
-		return "", fmt.Errorf("%s: dicom: %s", oneLine(dir), fmt.Sprintf(format, a...))
+		return "", fmt.Errorf("%s: dicom: %s", output.Line(dir), fmt.Sprintf(format, a...))
 	}
 	if err := im.Validate(); err != nil {
 		return fail("%v", err)

@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // testMap is a 3-D map on an oblique grid with a few NaN (no value)

@@ -5,7 +5,7 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Tolerances of the stacking checks (common practice: scanners write

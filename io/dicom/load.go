@@ -8,7 +8,7 @@ import (
 	"math"
 
 	"github.com/tauvox/tauvox/internal/regular"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // LoadSeries reads the pixel data of the files of s (and no others) and

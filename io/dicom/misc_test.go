@@ -140,8 +140,8 @@ func TestEchoNumbers(t *testing.T) {
 		t.Fatalf("%d series", len(c.Series))
 	}
 	s := c.Series[0]
-	if s.Varying != "EchoNumber" || s.Volumes != 2 || s.Slices != 1 || s.Model != "" {
-		t.Errorf("varying %q volumes %d slices %d model %q", s.Varying, s.Volumes, s.Slices, s.Model)
+	if s.Varying != "EchoNumber" || s.Volumes != 2 || s.Slices != 1 || s.Echo != "" {
+		t.Errorf("varying %q volumes %d slices %d echo %q", s.Varying, s.Volumes, s.Slices, s.Echo)
 	}
 }
 

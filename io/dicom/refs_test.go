@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // testdata is the folder of the files written by pydicom 2.3.1 with
@@ -104,11 +104,11 @@ func TestScanMix(t *testing.T) {
 		t.Errorf("problems = %v", c.Problems)
 	}
 	cases := []struct {
-		key, varying, model string
-		values              []float64
+		key, varying, echo string
+		values             []float64
 	}{
-		{"oblique_se", "EchoTime", "t2", []float64{10, 20, 40, 80}},
-		{"gre_implicit", "EchoTime", "t2star", []float64{3, 8, 13}},
+		{"oblique_se", "EchoTime", "SE", []float64{10, 20, 40, 80}},
+		{"gre_implicit", "EchoTime", "GR", []float64{3, 8, 13}},
 	}
 	for _, tc := range cases {
 		ref := refs.Series[tc.key]
@@ -117,8 +117,8 @@ func TestScanMix(t *testing.T) {
 			t.Errorf("%s: series not found", tc.key)
 			continue
 		}
-		if s.Varying != tc.varying || s.Model != tc.model || !equalFloats(s.Values, tc.values, 1e-9) {
-			t.Errorf("%s: varying %q %v model %q", tc.key, s.Varying, s.Values, s.Model)
+		if s.Varying != tc.varying || s.Echo != tc.echo || !equalFloats(s.Values, tc.values, 1e-9) {
+			t.Errorf("%s: varying %q %v echo %q", tc.key, s.Varying, s.Values, s.Echo)
 		}
 		if s.Rows != ref.RowsJ || s.Columns != ref.ColsJ || s.Slices != ref.Slices || s.Volumes != ref.Volumes || s.Files != ref.Files {
 			t.Errorf("%s: %d×%d, %d slices, %d volumes, %d files", tc.key, s.Columns, s.Rows, s.Slices, s.Volumes, s.Files)
@@ -159,12 +159,12 @@ func TestLoadReference(t *testing.T) {
 		key, dir string
 		acq      func(volume.Acquisition) float64
 		want     []float64
-		model    string
+		echo     string // "SE", "GR" for echo trains
 	}{
-		{"oblique_se", "mix", func(a volume.Acquisition) float64 { return a.EchoTime }, []float64{10, 20, 40, 80}, "t2"},
-		{"gre_implicit", "mix", func(a volume.Acquisition) float64 { return a.EchoTime }, []float64{3, 8, 13}, "t2star"},
-		{"enhanced", "enhanced", func(a volume.Acquisition) float64 { return a.EchoTime }, []float64{12, 24, 36, 48}, "t2"},
-		{"ir_deflate", "ir", func(a volume.Acquisition) float64 { return a.InversionTime }, []float64{50, 200, 600, 2000}, "t1-ir"},
+		{"oblique_se", "mix", func(a volume.Acquisition) float64 { return a.EchoTime }, []float64{10, 20, 40, 80}, "SE"},
+		{"gre_implicit", "mix", func(a volume.Acquisition) float64 { return a.EchoTime }, []float64{3, 8, 13}, "GR"},
+		{"enhanced", "enhanced", func(a volume.Acquisition) float64 { return a.EchoTime }, []float64{12, 24, 36, 48}, "SE"},
+		{"ir_deflate", "ir", func(a volume.Acquisition) float64 { return a.InversionTime }, []float64{50, 200, 600, 2000}, ""},
 	}
 	for _, tc := range cases {
 		t.Run(tc.key, func(t *testing.T) {
@@ -174,8 +174,8 @@ func TestLoadReference(t *testing.T) {
 			if s == nil {
 				t.Fatalf("series not found; problems %v", c.Problems)
 			}
-			if s.Model != tc.model {
-				t.Errorf("model %q, want %q", s.Model, tc.model)
+			if s.Echo != tc.echo {
+				t.Errorf("echo %q, want %q", s.Echo, tc.echo)
 			}
 			im, err := c.Load(s.ID)
 			if err != nil {

@@ -7,7 +7,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // seeded is a deterministic random source for the writer's UIDs and file
@@ -94,8 +94,8 @@ func TestRoundTrip(t *testing.T) {
 				t.Fatalf("series %d, problems %v", len(c.Series), c.Problems)
 			}
 			s := c.Series[0]
-			if s.Varying != "EchoTime" || s.Model != "t2" || s.Enhanced != enhanced || s.Number != 12 {
-				t.Errorf("varying %q model %q enhanced %v number %d", s.Varying, s.Model, s.Enhanced, s.Number)
+			if s.Varying != "EchoTime" || s.Echo != "SE" || s.Enhanced != enhanced || s.Number != 12 {
+				t.Errorf("varying %q echo %q enhanced %v number %d", s.Varying, s.Echo, s.Enhanced, s.Number)
 			}
 			back, err := LoadSeries(s)
 			if err != nil {

@@ -14,8 +14,9 @@ import (
 	"strconv"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/regular"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // ScanOptions are the settings of Scan. The zero value (and nil) leaves
@@ -101,7 +102,7 @@ type Series struct {
 	Sequence    string        `json:"scanning_sequence"`
 	Varying     string        `json:"varying"` // "EchoTime", "InversionTime", "FlipAngle", "RepetitionTime", "EchoNumber" or ""
 	Values      []float64     `json:"values"`  // distinct values of Varying, ascending (ms, degrees or echo numbers)
-	Model       string        `json:"model"`   // suggested tauvox model: "t2", "t2star", "t1-ir", "t1-vfa", "t1-sr" or ""
+	Echo        string        `json:"echo"`    // echo trains: "SE" (spin echo) or "GR" (gradient echo) when the headers tell, else ""
 	Rows        int           `json:"rows"`
 	Columns     int           `json:"columns"`
 	Slices      int           `json:"slices"`
@@ -468,29 +469,17 @@ func keyOf(fr *frameInfo) volKey {
 	return volKey{quant(fr.te), quant(fr.ti), quant(fr.tr), quant(fr.fa), fr.echo}
 }
 
-// classify finds the varying parameter and the suggested model.
+// classify finds the varying parameter (volume.Varying, the rule scan
+// applies to NIfTI series too) and, for echo trains, the echo kind.
 func (s *Series) classify() {
-	sets := [4]map[int64]float64{{}, {}, {}, {}}
+	acq := make([]volume.Acquisition, len(s.frames))
 	echoes := map[int]bool{}
-	for _, fr := range s.frames {
-		for i, v := range [4]float64{fr.ti, fr.fa, fr.te, fr.tr} {
-			sets[i][quant(v)] = v
-		}
+	for i, fr := range s.frames {
+		acq[i] = volume.Acquisition{EchoTime: fr.te, InversionTime: fr.ti, RepetitionTime: fr.tr, FlipAngle: fr.fa}
 		echoes[fr.echo] = true
 	}
-	names := [4]string{"InversionTime", "FlipAngle", "EchoTime", "RepetitionTime"}
-	models := [4]string{"t1-ir", "t1-vfa", "", "t1-sr"}
-	chosen := -1
-	for i := range sets {
-		if len(sets[i]) > 1 {
-			if chosen < 0 {
-				chosen = i
-			} else {
-				s.Notes = append(s.Notes, fmt.Sprintf("%s also varies (%d values)", names[i], len(sets[i])))
-			}
-		}
-	}
-	if chosen < 0 {
+	v := volume.Varying(acq)
+	if len(v) == 0 {
 		if len(echoes) > 1 {
 			s.Varying = "EchoNumber"
 			for e := range echoes {
@@ -500,25 +489,23 @@ func (s *Series) classify() {
 		}
 		return
 	}
-	s.Varying = names[chosen]
-	for _, v := range sets[chosen] {
-		s.Values = append(s.Values, v)
+	s.Varying, s.Values = v[0].Name, v[0].Values
+	for _, o := range v[1:] {
+		s.Notes = append(s.Notes, fmt.Sprintf("%s also varies (%d values)", o.Name, len(o.Values)))
 	}
-	sort.Float64s(s.Values)
-	s.Model = models[chosen]
-	if names[chosen] == "EchoTime" {
-		s.Model = echoModel(s.frames[0].file)
-		if s.Model == "" {
+	if s.Varying == "EchoTime" {
+		s.Echo = echoKind(s.frames[0].file)
+		if s.Echo == "" {
 			s.Notes = append(s.Notes, "echo time varies but neither ScanningSequence nor SequenceName tells spin echo from gradient echo")
 		}
 	}
 }
 
-// echoModel tells a multi-echo spin echo ("t2") from a multi-echo
-// gradient echo ("t2star") by ScanningSequence (PS3.3 C.8.3.1: SE, GR,
+// echoKind tells a multi-echo spin echo ("SE") from a multi-echo
+// gradient echo ("GR") by ScanningSequence (PS3.3 C.8.3.1: SE, GR,
 // ...), EchoPulseSequence of enhanced files (SPIN, GRADIENT), or common
 // vendor sequence-name fragments (common practice).
-func echoModel(f *fileInfo) string {
+func echoKind(f *fileInfo) string {
 	parts := strings.Split(f.scanningSeq, `\`)
 	has := func(v string) bool {
 		for _, p := range parts {
@@ -530,23 +517,23 @@ func echoModel(f *fileInfo) string {
 	}
 	switch {
 	case has("GR"):
-		return "t2star"
+		return "GR"
 	case has("SE"):
-		return "t2"
+		return "SE"
 	case f.echoPulse == "GRADIENT":
-		return "t2star"
+		return "GR"
 	case f.echoPulse == "SPIN":
-		return "t2"
+		return "SE"
 	}
 	name := strings.ToLower(strings.TrimLeft(f.seqName, "*"))
 	for _, h := range []string{"fl", "gre", "fgre", "medic", "t2star", "swi", "ffe", "mge"} {
 		if strings.HasPrefix(name, h) {
-			return "t2star"
+			return "GR"
 		}
 	}
 	for _, h := range []string{"se", "tse", "fse", "mese", "cpmg", "me_se", "t2map"} {
 		if strings.HasPrefix(name, h) {
-			return "t2"
+			return "SE"
 		}
 	}
 	return ""
@@ -574,9 +561,9 @@ func (c *Catalog) Lookup(id string) (*Series, error) {
 		ids = append(ids, s.ID)
 	}
 	if len(hits) > 1 {
-		return nil, fmt.Errorf("dicom: %q names %d series; choose one of %s", oneLine(id), len(hits), strings.Join(ids, ", "))
+		return nil, fmt.Errorf("dicom: %q names %d series; choose one of %s", output.Line(id), len(hits), strings.Join(ids, ", "))
 	}
-	return nil, fmt.Errorf("dicom: no series %q in the scan (found %s)", oneLine(id), strings.Join(ids, ", "))
+	return nil, fmt.Errorf("dicom: no series %q in the scan (found %s)", output.Line(id), strings.Join(ids, ", "))
 }
 
 // Load reads the pixel data of the series with the given ID (see Lookup)

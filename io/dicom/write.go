@@ -5,6 +5,8 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 
+	"github.com/tauvox/tauvox/internal/output"
+
 	"fmt"
 	"io"
 	"math"
@@ -14,7 +16,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // implementationUID identifies tauvox as the writer in the file meta
@@ -80,7 +82,7 @@ type WriteOptions struct {
 // failed write; files already written by the call are then removed.
 func WriteSeries(dir string, im *volume.Image, opt *WriteOptions) error {
 	if err := im.Validate(); err != nil {
-		return fmt.Errorf("%s: dicom: %w", oneLine(dir), err)
+		return fmt.Errorf("%s: dicom: %w", output.Line(dir), err)
 	}
 	var o WriteOptions
 	if opt != nil {
@@ -128,7 +130,7 @@ func newSeriesWriter(dir string, im *volume.Image, o *WriteOptions) (*seriesWrit
 		w.rnd = rand.Reader
 	}
 	fail := func(format string, a ...any) error {
-		return fmt.Errorf("%s: dicom: %s", oneLine(dir), fmt.Sprintf(format, a...))
+		return fmt.Errorf("%s: dicom: %s", output.Line(dir), fmt.Sprintf(format, a...))
 	}
 	if im.Dims[0] > 0xFFFF || im.Dims[1] > 0xFFFF {
 		return nil, fail("matrix %d×%d does not fit Rows/Columns (US)", im.Dims[0], im.Dims[1])
@@ -207,7 +209,7 @@ func (w *seriesWriter) acq(t int) volume.Acquisition {
 func (w *seriesWriter) uid() (string, error) {
 	var b [16]byte
 	if _, err := io.ReadFull(w.rnd, b[:]); err != nil {
-		return "", fmt.Errorf("%s: dicom: random source: %w", oneLine(w.dir), err)
+		return "", fmt.Errorf("%s: dicom: random source: %w", output.Line(w.dir), err)
 	}
 	b[6] = b[6]&0x0F | 0x40 // version 4
 	b[8] = b[8]&0x3F | 0x80 // RFC 4122 variant
@@ -217,7 +219,7 @@ func (w *seriesWriter) uid() (string, error) {
 func (w *seriesWriter) name() (string, error) {
 	var b [8]byte
 	if _, err := io.ReadFull(w.rnd, b[:]); err != nil {
-		return "", fmt.Errorf("%s: dicom: random source: %w", oneLine(w.dir), err)
+		return "", fmt.Errorf("%s: dicom: random source: %w", output.Line(w.dir), err)
 	}
 	return hex.EncodeToString(b[:]), nil
 }

@@ -12,10 +12,9 @@ import (
 	"sync"
 	"time"
 
-	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/series"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Info describes the fit whose maps are written.
@@ -24,10 +23,13 @@ type Info struct {
 	Method   string         // e.g. "nlls"
 	Version  string         // tool version
 	Settings map[string]any // every setting that shaped the result
-	Inputs   []series.Input // files read
+	Inputs   []volume.Input // files read
 	Source   volume.Source  // series description
 	Acq      []volume.Acquisition
 	Timings  map[string]float64 // seconds per stage
+	// StatusNames name the status codes (code i is StatusNames[i]), for
+	// the status map's sidecar and the counts of provenance.json.
+	StatusNames []string
 	// Sums, when not nil, are the checksums of Inputs already under way
 	// (StartChecksums); otherwise NewWriter starts them.
 	Sums Sums
@@ -72,7 +74,9 @@ type Protocol struct {
 }
 
 // Caution is the statement every output carries.
-const Caution = "tauvox is a quality-assurance and research tool, not a medical device; clinical decisions follow local regulations and licensed practice."
+//
+// Deprecated: use output.Caution; this is the same constant.
+const Caution = output.Caution
 
 func num(v float64) *float64 {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
@@ -96,11 +100,31 @@ func Checksum(path string) (string, int64, error) {
 	return hex.EncodeToString(h.Sum(nil)), n, nil
 }
 
-// Write writes every map of m (on the grid of ref) and provenance.json
-// into the stage. It returns the file names written. It is NewWriter,
-// one Append and Close.
-func Write(st *Stage, m *fit.Maps, ref *volume.Image, info *Info) ([]string, error) {
-	w, err := NewWriter(st, m.Outputs, [3]int{ref.Dims[0], ref.Dims[1], ref.Dims[2]}, ref.Affine, info)
+// Output describes one map of a fit: a fitted parameter or a quantity
+// derived from one (the fields of fit.Param).
+type Output struct {
+	Name string // quantity, e.g. "T2"
+	Unit string // unit, e.g. "ms", "1/s", "arbitrary"
+	Map  string // file stem, BIDS suffix where one exists, e.g. "T2map"
+	Desc string // one-line description for the sidecar
+}
+
+// Slab is a range of whole slices of every map of a fit, one entry per
+// voxel (as fit.Maps holds them).
+type Slab struct {
+	Values    [][]float32 // [output][voxel], NaN where not fitted
+	SE        [][]float32 // [output][voxel]
+	R2        []float32   // coefficient of determination
+	Status    []uint8     // status codes
+	Counts    []int       // voxels per status code
+	Threshold float64     // the mask threshold applied (0 when none)
+}
+
+// Write writes every map of m (outputs outs, on the grid of ref) and
+// provenance.json into the stage. It returns the file names written. It
+// is NewWriter, one Append and Close.
+func Write(st *Stage, outs []Output, m *Slab, ref *volume.Image, info *Info) ([]string, error) {
+	w, err := NewWriter(st, outs, [3]int{ref.Dims[0], ref.Dims[1], ref.Dims[2]}, ref.Affine, info)
 	if err != nil {
 		return nil, err
 	}
@@ -119,11 +143,11 @@ func Write(st *Stage, m *fit.Maps, ref *volume.Image, info *Info) ([]string, err
 type Writer struct {
 	st     *Stage
 	info   *Info
-	outs   []fit.Param
+	outs   []Output
 	files  []*nifti.StreamWriter
 	stems  []string
 	metas  []map[string]any
-	counts [fit.NumStatus]int
+	counts []int
 	thr    float64
 	status []float32
 	err    error
@@ -146,9 +170,9 @@ type Sums = chan checksums
 // background, for Info.Sums: a caller that starts it before reading a
 // large series lets it run while a CPU is otherwise idle (inflating a
 // .nii.gz is sequential).
-func StartChecksums(inputs []series.Input) Sums {
+func StartChecksums(inputs []volume.Input) Sums {
 	ch := make(chan checksums, 1)
-	go func(in []series.Input) {
+	go func(in []volume.Input) {
 		var c checksums
 		for _, i := range in {
 			sum, n, err := Checksum(i.Path)
@@ -159,14 +183,14 @@ func StartChecksums(inputs []series.Input) Sums {
 			c.recs = append(c.recs, InputRecord{Path: FinalPath(i.Path), Role: i.Role, SHA256: sum, Bytes: n})
 		}
 		ch <- c
-	}(append([]series.Input(nil), inputs...))
+	}(append([]volume.Input(nil), inputs...))
 	return ch
 }
 
 // NewWriter opens every map of a fit with outputs outs on a grid of dims
 // voxels with the given affine.
-func NewWriter(st *Stage, outs []fit.Param, dims [3]int, affine volume.Affine, info *Info) (*Writer, error) {
-	w := &Writer{st: st, info: info, outs: outs, sums: info.Sums}
+func NewWriter(st *Stage, outs []Output, dims [3]int, affine volume.Affine, info *Info) (*Writer, error) {
+	w := &Writer{st: st, info: info, outs: outs, sums: info.Sums, counts: make([]int, len(info.StatusNames))}
 	if w.sums == nil {
 		w.sums = StartChecksums(info.Inputs)
 	}
@@ -197,8 +221,8 @@ func NewWriter(st *Stage, outs []fit.Param, dims [3]int, affine volume.Affine, i
 		return nil, err
 	}
 	codes := map[string]int{}
-	for s := 0; s < fit.NumStatus; s++ {
-		codes[fit.Status(s).String()] = s
+	for s, name := range info.StatusNames {
+		codes[name] = s
 	}
 	smeta := w.base("status", "code", "fit outcome per voxel")
 	smeta["Codes"] = codes
@@ -223,8 +247,8 @@ func (w *Writer) base(quantity, unit, desc string) map[string]any {
 }
 
 // Append writes the next slab of maps (whole slices, in order) and adds
-// its status counts. m.Outputs must be the outputs given to NewWriter.
-func (w *Writer) Append(m *fit.Maps) error {
+// its status counts. m must hold the outputs given to NewWriter.
+func (w *Writer) Append(m *Slab) error {
 	if w.err != nil {
 		return w.err
 	}
@@ -261,7 +285,9 @@ func (w *Writer) Append(m *fit.Maps) error {
 		return err
 	}
 	for s, c := range m.Counts {
-		w.counts[s] += c
+		if s < len(w.counts) {
+			w.counts[s] += c
+		}
 	}
 	w.thr = m.Threshold
 	return nil
@@ -310,7 +336,7 @@ func (w *Writer) Close() ([]string, error) {
 		prov.Protocol = append(prov.Protocol, Protocol{TE: num(a.EchoTime), TI: num(a.InversionTime), TR: num(a.RepetitionTime), FA: num(a.FlipAngle)})
 	}
 	for s, c := range w.counts {
-		prov.Status[fit.Status(s).String()] = c
+		prov.Status[info.StatusNames[s]] = c
 	}
 	b, err := json.MarshalIndent(prov, "", "  ")
 	if err != nil {
@@ -332,7 +358,7 @@ func (w *Writer) Close() ([]string, error) {
 		wg.Add(1)
 		go func(i int) {
 			defer wg.Done()
-			errs[i] = series.WriteFileAtomic(w.st.Path(name), data)
+			errs[i] = output.WriteFile(w.st.Path(name), data)
 		}(i)
 		i++
 	}
@@ -353,7 +379,7 @@ func (w *Writer) Abort() {
 	}
 }
 
-func sources(in []series.Input) []string {
+func sources(in []volume.Input) []string {
 	var s []string
 	for _, i := range in {
 		s = append(s, FinalPath(i.Path))

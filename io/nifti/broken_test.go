@@ -12,7 +12,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // validFile returns a correct little-endian file of a 2×2×2 float32 image

@@ -7,7 +7,7 @@ import (
 	"path/filepath"
 
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 func Example() {

@@ -6,7 +6,7 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Header sizes and magic strings [check-values §3.5; nifti1.h; NIfTI-2

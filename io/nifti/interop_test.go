@@ -13,7 +13,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 var update = flag.Bool("update", false, "rewrite testdata/nifti/written-by-tauvox")

@@ -3,7 +3,7 @@ package nifti
 import (
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // quaternToAffine builds the qform affine of nifti1.h method 2:

@@ -14,7 +14,7 @@ import (
 	"sync/atomic"
 
 	"github.com/tauvox/tauvox/internal/regular"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // DefaultMaxBytes is the default limit on the in-memory size of the

@@ -4,7 +4,6 @@ import (
 	"bufio"
 	"errors"
 	"fmt"
-	"github.com/klauspost/compress/gzip"
 	"hash/crc32"
 	"io"
 	"math"
@@ -12,7 +11,9 @@ import (
 	"path/filepath"
 	"strings"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/klauspost/compress/gzip"
+	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // streamLimit is the sample-count limit of the streaming reader: it never
@@ -498,8 +499,8 @@ func (r *SlabReader) Close() error {
 // in the target folder and renamed into place by Close, as Write does; an
 // error or Abort removes it. A StreamWriter is not safe for concurrent use.
 type StreamWriter struct {
-	path, tmp string
-	f         *os.File
+	path      string
+	f         *output.File
 	bw        *bufio.Writer
 	zw        *gzip.Writer
 	w         io.Writer
@@ -523,15 +524,11 @@ func Create(path string, dims [4]int, affine volume.Affine, opt *WriteOptions) (
 		return nil, err
 	}
 	hdr := encodeHeader(stand, &o)
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	f, err := output.Create(path)
 	if err != nil {
 		return nil, &fileError{path, "cannot create temporary file", err}
 	}
-	sw := &StreamWriter{path: path, tmp: f.Name(), f: f, dt: o.Datatype, want: int64(n)}
+	sw := &StreamWriter{path: path, f: f, dt: o.Datatype, want: int64(n)}
 	sw.bw = bufio.NewWriterSize(f, 1<<20)
 	sw.w = sw.bw
 	if gz {
@@ -650,22 +647,11 @@ func (w *StreamWriter) Close() error {
 	if err := w.bw.Flush(); err != nil {
 		return fail("cannot write", err)
 	}
-	if err := w.f.Chmod(0o644); err != nil {
-		return fail("cannot write", err)
-	}
-	if err := w.f.Sync(); err != nil {
-		return fail("cannot write", err)
-	}
-	if err := w.f.Close(); err != nil {
-		return fail("cannot write", err)
-	}
 	w.done = true
-	if err := os.Rename(w.tmp, w.path); err != nil {
-		os.Remove(w.tmp)
-		w.err = &fileError{w.path, "cannot rename temporary file", err}
+	if err := w.f.Commit(); err != nil {
+		w.err = &fileError{w.path, "cannot write", err}
 		return w.err
 	}
-	syncDir(filepath.Dir(w.path))
 	return nil
 }
 
@@ -676,6 +662,5 @@ func (w *StreamWriter) Abort() {
 		return
 	}
 	w.done = true
-	w.f.Close()
-	os.Remove(w.tmp)
+	w.f.Abort()
 }

@@ -10,7 +10,7 @@ import (
 	"runtime"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // slabOf returns slices z0…z1−1 of the given volumes of im, volume after

@@ -5,13 +5,13 @@ import (
 	"encoding/binary"
 	"errors"
 	"fmt"
-	"github.com/klauspost/compress/gzip"
 	"io"
 	"math"
 	"os"
-	"path/filepath"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/klauspost/compress/gzip"
+	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // DefaultCompression is the gzip level Write uses for .nii.gz when
@@ -76,29 +76,17 @@ func Write(path string, im *volume.Image, opt *WriteOptions) error {
 	}
 	hdr := encodeHeader(im, &o)
 
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	f, err := output.Create(path)
 	if err != nil {
 		return &fileError{path, "cannot create temporary file", err}
 	}
-	tmp := f.Name()
-	if err := writeBody(f, hdr, im, &o, gz); err != nil {
-		f.Close()
-		os.Remove(tmp)
+	if err := writeBody(f.File, hdr, im, &o, gz); err != nil {
+		f.Abort()
 		return &fileError{path, "cannot write", err}
 	}
-	if err := f.Close(); err != nil {
-		os.Remove(tmp)
+	if err := f.Commit(); err != nil {
 		return &fileError{path, "cannot write", err}
 	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return &fileError{path, "cannot rename temporary file", err}
-	}
-	syncDir(dir)
 	return nil
 }
 
@@ -147,7 +135,8 @@ func checkWrite(path string, im *volume.Image, o *WriteOptions) (gz bool, err er
 }
 
 // writeBody writes header and samples through a buffer (and gzip), then
-// flushes, closes the gzip stream and syncs the file, checking each step.
+// closes the gzip stream and flushes, checking each step (output.File
+// syncs on Commit).
 func writeBody(f *os.File, hdr []byte, im *volume.Image, o *WriteOptions, gz bool) error {
 	bw := bufio.NewWriterSize(f, 1<<20)
 	var w io.Writer = bw
@@ -170,22 +159,7 @@ func writeBody(f *os.File, hdr []byte, im *volume.Image, o *WriteOptions, gz boo
 			return err
 		}
 	}
-	if err := bw.Flush(); err != nil {
-		return err
-	}
-	if err := f.Chmod(0o644); err != nil {
-		return err
-	}
-	return f.Sync()
-}
-
-// syncDir makes the rename durable where the system allows it; a failure
-// (some file systems refuse to sync folders) is not an error of Write.
-func syncDir(dir string) {
-	if d, err := os.Open(dir); err == nil {
-		d.Sync()
-		d.Close()
-	}
+	return bw.Flush()
 }
 
 // writeSamples encodes data as little-endian samples of type dt.

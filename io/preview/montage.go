@@ -8,7 +8,7 @@ import (
 	"image/draw"
 	"math"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Options control Montage. The zero value (or nil) is right for a map of

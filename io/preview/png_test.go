@@ -10,7 +10,7 @@ import (
 	"slices"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // TestEncodePNG: images written by encode decode with the standard

@@ -12,7 +12,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 	"gonum.org/v1/gonum/floats/scalar"
 )
 

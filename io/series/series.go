@@ -10,10 +10,11 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/dicom"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/sidecar"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Overrides are acquisition parameters given by the user (ms, degrees).
@@ -29,11 +30,8 @@ type Overrides struct {
 	KeepIdentifiers bool
 }
 
-// Input describes one file read to make a series.
-type Input struct {
-	Path string
-	Role string // "series", "sidecar"
-}
+// Input describes one file read to make a series (volume.Input).
+type Input = volume.Input
 
 // IsNIfTI reports whether a path names a NIfTI file by its extension.
 func IsNIfTI(path string) bool {
@@ -218,34 +216,48 @@ func SkipEchoes(im *volume.Image, n int) (*volume.Image, error) {
 	if n == 0 {
 		return im, nil
 	}
-	nt := im.Volumes()
+	vols, acq, err := KeepVolumes(im.Acq, n)
+	if err != nil {
+		return nil, err
+	}
+	out := &volume.Image{Dims: im.Dims, Affine: im.Affine, Source: im.Source, Acq: acq}
+	out.Dims[3] = len(vols)
+	out.Data = make([]float32, 0, im.Voxels()*len(vols))
+	for _, t := range vols {
+		out.Data = append(out.Data, im.Volume(t)...)
+	}
+	return out, nil
+}
+
+// KeepVolumes returns the volumes that remain when the n of shortest echo
+// time are left out (in volume order) and their protocol: the rule of
+// SkipEchoes, for readers that fetch the volumes themselves.
+func KeepVolumes(acq []volume.Acquisition, n int) ([]int, []volume.Acquisition, error) {
+	nt := len(acq)
 	if n < 0 || n >= nt {
-		return nil, fmt.Errorf("cannot skip %d of %d echoes", n, nt)
+		return nil, nil, fmt.Errorf("cannot skip %d of %d echoes", n, nt)
 	}
 	order := make([]int, nt)
 	for i := range order {
 		order[i] = i
-		if math.IsNaN(im.Acq[i].EchoTime) {
-			return nil, fmt.Errorf("cannot skip echoes: echo time of volume %d is unknown", i+1)
+		if math.IsNaN(acq[i].EchoTime) {
+			return nil, nil, fmt.Errorf("cannot skip echoes: echo time of volume %d is unknown", i+1)
 		}
 	}
-	sort.SliceStable(order, func(a, b int) bool { return im.Acq[order[a]].EchoTime < im.Acq[order[b]].EchoTime })
-	drop := map[int]bool{}
+	sort.SliceStable(order, func(x, y int) bool { return acq[order[x]].EchoTime < acq[order[y]].EchoTime })
+	drop := make([]bool, nt)
 	for _, t := range order[:n] {
 		drop[t] = true
 	}
-	out := &volume.Image{Dims: im.Dims, Affine: im.Affine, Source: im.Source}
-	out.Dims[3] = nt - n
-	nv := im.Voxels()
-	out.Data = make([]float32, 0, nv*(nt-n))
-	for t := 0; t < nt; t++ {
-		if drop[t] {
-			continue
+	var vols []int
+	var kept []volume.Acquisition
+	for t := range acq {
+		if !drop[t] {
+			vols = append(vols, t)
+			kept = append(kept, acq[t])
 		}
-		out.Data = append(out.Data, im.Volume(t)...)
-		out.Acq = append(out.Acq, im.Acq[t])
 	}
-	return out, nil
+	return vols, kept, nil
 }
 
 // SidecarName returns the sidecar path of a NIfTI path (x.nii.gz → x.json).
@@ -264,39 +276,8 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 	for k, v := range extra {
 		side[k] = v
 	}
-	// div converts ms to s by division, not by multiplying with 1e-3: the
-	// division is correctly rounded, so 700 ms is written 0.7, not
-	// 0.7000000000000001 (and 0.7 s reads back as exactly 700 ms).
-	put := func(key string, get func(volume.Acquisition) float64, div float64) {
-		vals := volume.Values(nil, im.Acq, get)
-		if len(vals) == 0 || math.IsNaN(vals[0]) {
-			return
-		}
-		same := true
-		for _, v := range vals {
-			if math.IsNaN(v) {
-				return
-			}
-			if v != vals[0] {
-				same = false
-			}
-		}
-		if same {
-			side[key] = vals[0] / div
-			return
-		}
-		out := make([]float64, len(vals))
-		for i, v := range vals {
-			out[i] = v / div
-		}
-		side[key] = out
-	}
-	put("EchoTime", func(a volume.Acquisition) float64 { return a.EchoTime }, 1000)
-	put("InversionTime", func(a volume.Acquisition) float64 { return a.InversionTime }, 1000)
-	put("RepetitionTime", func(a volume.Acquisition) float64 { return a.RepetitionTime }, 1000)
-	put("FlipAngle", func(a volume.Acquisition) float64 { return a.FlipAngle }, 1)
-	if f := im.Source.FieldStrength; f > 0 {
-		side["MagneticFieldStrength"] = f
+	for k, v := range sidecar.Keys(im.Acq, im.Source.FieldStrength) {
+		side[k] = v
 	}
 	if im.Source.Scanner != "" {
 		side["StationName"] = im.Source.Scanner
@@ -311,34 +292,10 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 	if err != nil {
 		return err
 	}
-	return WriteFileAtomic(SidecarName(path), append(b, '\n'))
+	return output.WriteFile(SidecarName(path), append(b, '\n'))
 }
 
-// WriteFileAtomic writes b to a temporary file beside path and renames it
-// into place, so readers never see a partial file.
-func WriteFileAtomic(path string, b []byte) error {
-	dir, base := filepath.Split(path)
-	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
-	if err != nil {
-		return err
-	}
-	tmp := f.Name()
-	err = f.Chmod(0o644) // CreateTemp makes 0600
-	if err == nil {
-		_, err = f.Write(b)
-	}
-	if err == nil {
-		err = f.Sync()
-	}
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
-	if err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	return nil
-}
+// WriteFileAtomic writes b to path atomically.
+//
+// Deprecated: use output.WriteFile, which it calls.
+func WriteFileAtomic(path string, b []byte) error { return output.WriteFile(path, b) }

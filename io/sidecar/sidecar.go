@@ -11,8 +11,9 @@ import (
 	"regexp"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/regular"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // MaxSize is the largest sidecar Read accepts, in bytes. Sidecars are a
@@ -71,34 +72,22 @@ type Error struct {
 
 func (e *Error) Error() string {
 	var b strings.Builder
-	b.WriteString(oneLine(e.Path))
+	b.WriteString(output.Line(e.Path))
 	b.WriteString(": ")
 	if e.Key != "" {
-		b.WriteString(oneLine(e.Key))
+		b.WriteString(output.Line(e.Key))
 		b.WriteString(": ")
 	}
-	b.WriteString(oneLine(e.Reason))
+	b.WriteString(output.Line(e.Reason))
 	if e.Err != nil {
 		b.WriteString(": ")
-		b.WriteString(oneLine(e.Err.Error()))
+		b.WriteString(output.Line(e.Err.Error()))
 	}
 	return b.String()
 }
 
 // Unwrap returns the underlying cause, or nil.
 func (e *Error) Unwrap() error { return e.Err }
-
-func oneLine(s string) string {
-	if !strings.ContainsAny(s, "\n\r\t\x00") {
-		return s
-	}
-	return strings.Map(func(r rune) rune {
-		if r < 0x20 || r == 0x7f {
-			return ' '
-		}
-		return r
-	}, s)
-}
 
 // Read reads and checks the sidecar at path.
 func Read(path string) (*Sidecar, error) {
@@ -430,4 +419,43 @@ func ForImage(niftiPath string) (string, bool) {
 	p := base + ".json"
 	fi, err := os.Stat(p)
 	return p, err == nil && !fi.IsDir()
+}
+
+// Keys returns the BIDS acquisition keys of a protocol for a sidecar
+// (BIDS common metadata: EchoTime, InversionTime and RepetitionTime in
+// seconds, FlipAngle in degrees; check-values §3.6): a number when every
+// volume has the same value, a list when it varies, left out when any
+// volume's value is unknown; MagneticFieldStrength (T) when field > 0.
+func Keys(acq []volume.Acquisition, field float64) map[string]any {
+	out := map[string]any{}
+	// div converts ms to s by division, not by multiplying with 1e-3: the
+	// division is correctly rounded, so 700 ms is written 0.7, not
+	// 0.7000000000000001 (and 0.7 s reads back as exactly 700 ms).
+	put := func(key string, div float64, get func(volume.Acquisition) float64) {
+		var vals []float64
+		same := true
+		for _, a := range acq {
+			v := get(a)
+			if math.IsNaN(v) {
+				return
+			}
+			vals = append(vals, v/div)
+			same = same && v == get(acq[0])
+		}
+		switch {
+		case len(vals) == 0:
+		case same:
+			out[key] = vals[0]
+		default:
+			out[key] = vals
+		}
+	}
+	put("EchoTime", 1000, func(a volume.Acquisition) float64 { return a.EchoTime })
+	put("InversionTime", 1000, func(a volume.Acquisition) float64 { return a.InversionTime })
+	put("RepetitionTime", 1000, func(a volume.Acquisition) float64 { return a.RepetitionTime })
+	put("FlipAngle", 1, func(a volume.Acquisition) float64 { return a.FlipAngle })
+	if field > 0 {
+		out["MagneticFieldStrength"] = field
+	}
+	return out
 }

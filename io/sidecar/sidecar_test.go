@@ -8,12 +8,12 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Units: BIDS metadata: EchoTime/InversionTime/RepetitionTime in seconds,
 // FlipAngle in degrees, MagneticFieldStrength in tesla [check-values §3.6,
-// BIDS metadata.yaml]; tauvox uses ms inside (io/volume).
+// BIDS metadata.yaml]; tauvox uses ms inside (volume).
 
 func TestParse(t *testing.T) {
 	nan := math.NaN()

@@ -16,8 +16,9 @@ import (
 
 	_ "modernc.org/sqlite" // registers the "sqlite" driver
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/regular"
-	"github.com/tauvox/tauvox/roi/phantom"
+	phantom "github.com/tauvox/tauvox/roi/qa" // the qa.json types, written by roi/phantom
 )
 
 // SchemaVersion is the schema version this package writes.
@@ -139,7 +140,7 @@ func (s *Store) wrap(err error) error {
 	return fmt.Errorf("%s: %s", s.path, oneLine(msg))
 }
 
-func oneLine(s string) string { return strings.Join(strings.Fields(s), " ") }
+func oneLine(s string) string { return output.Message(s) }
 
 func (s *Store) init(opt *Options) error {
 	ctx := context.Background()

@@ -6,8 +6,8 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/internal/threshold"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Placement is where a phantom lies in an image: its centre in scanner
@@ -300,7 +300,7 @@ func unit(a [3]float64) [3]float64 {
 }
 
 // otsuVolume returns Otsu's threshold of the first volume.
-func otsuVolume(im *volume.Image) float64 { return fit.OtsuThreshold(im.Volume(0)) }
+func otsuVolume(im *volume.Image) float64 { return threshold.Otsu(im.Volume(0)) }
 
 // bestSlice picks the slice with the largest object area.
 func (s *slicer) bestSlice() (int, error) {

@@ -5,7 +5,7 @@ import (
 	"testing"
 
 	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // m0Scene simulates the proton-density-like first echo of a spin-echo

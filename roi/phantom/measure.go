@@ -5,8 +5,8 @@ import (
 	"math"
 	"sort"
 
-	"github.com/tauvox/tauvox/io/volume"
 	"github.com/tauvox/tauvox/roi"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // DefaultROIFraction is the default measurement radius as a fraction of

@@ -7,7 +7,7 @@ import (
 	"testing"
 
 	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 func TestReferenceAt(t *testing.T) {

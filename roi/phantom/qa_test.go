@@ -6,7 +6,7 @@ import (
 	"testing"
 
 	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // TestJudge: the verdict rule |median − reference| ≤ max(pct % of

@@ -7,7 +7,7 @@ import (
 	"math/rand/v2"
 
 	"github.com/tauvox/tauvox/fit"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // Scene places a phantom in a synthetic scanner and sets the imaging

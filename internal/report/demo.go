@@ -4,7 +4,7 @@ import (
 	"html/template"
 	"io"
 
-	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/internal/output"
 )
 
 // DemoSession is one session listed on the demo's index page.
@@ -29,7 +29,7 @@ type DemoIndex struct {
 }
 
 var demoTmpl = template.Must(template.New("demo").Funcs(template.FuncMap{
-	"caution": func() string { return mapset.Caution },
+	"caution": func() string { return output.Caution },
 	"inc":     func(i int) int { return i + 1 },
 }).Parse(`<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">

@@ -1,6 +1,7 @@
 package volume
 
 import (
+	"fmt"
 	"math"
 	"testing"
 )
@@ -50,5 +51,25 @@ func TestValidateAndIndex(t *testing.T) {
 	im.Acq = make([]Acquisition, 3)
 	if err := im.Validate(); err == nil {
 		t.Error("acquisition count mismatch accepted")
+	}
+}
+
+// TestVarying: the parameters that vary, most telling first, with their
+// distinct values ascending; unknown values and differences below 1e-4
+// are left out (common practice: headers round times to µs).
+func TestVarying(t *testing.T) {
+	n := math.NaN()
+	acq := []Acquisition{
+		{EchoTime: 10, InversionTime: 900, RepetitionTime: 3000, FlipAngle: 90},
+		{EchoTime: 10.00001, InversionTime: 100, RepetitionTime: 2500, FlipAngle: 90},
+		{EchoTime: n, InversionTime: 400, RepetitionTime: 3000, FlipAngle: 90},
+	}
+	v := Varying(acq)
+	if len(v) != 2 || v[0].Name != "InversionTime" || v[1].Name != "RepetitionTime" ||
+		fmt.Sprint(v[0].Values) != "[100 400 900]" || fmt.Sprint(v[1].Values) != "[2500 3000]" {
+		t.Errorf("Varying = %+v", v)
+	}
+	if v := Varying(acq[:1]); len(v) != 0 {
+		t.Errorf("one volume: %+v", v)
 	}
 }

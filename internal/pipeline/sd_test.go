@@ -1,4 +1,4 @@
-package mapset
+package pipeline
 
 import (
 	"context"
@@ -9,8 +9,9 @@ import (
 	"testing"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
-	"github.com/tauvox/tauvox/io/volume"
+	"github.com/tauvox/tauvox/volume"
 )
 
 // scipyT2 holds the mono-exponential cases of
@@ -77,11 +78,11 @@ func TestSDMapsWritten(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(t.TempDir(), "maps")
-	st, err := NewStage(out, false)
+	st, err := mapset.NewStage(out, false)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := Write(st, maps, im, &Info{Model: m.Name(), Method: m.Method(), Version: "test"}); err != nil {
+	if _, err := mapset.Write(st, outputs(m), toSlab(maps), im, &mapset.Info{Model: m.Name(), Method: m.Method(), Version: "test", StatusNames: statusNames()}); err != nil {
 		t.Fatal(err)
 	}
 	if err := st.Commit(); err != nil {

@@ -2,13 +2,13 @@ package fit
 
 import "math"
 
-// monoExp2 is the dedicated Levenberg–Marquardt solver of the two-parameter
+// expLM is the dedicated Levenberg–Marquardt solver of the two-parameter
 // decay f = M0·exp(−R·TE): evaluation, residuals, the 2×2 normal equations
 // and the cost are one fused pass over the echoes, and the damped step is a
 // closed-form 2×2 solve. It follows the same iteration and convergence
 // tests as lm (Marquardt 1963; Moré 1978), so both give the same minimum;
-// TestMonoExp2MatchesGeneric checks it.
-type monoExp2 struct {
+// TestExpLMMatchesGeneric checks it.
+type expLM struct {
 	c    *monoExpCurve
 	set  LM
 	rlo  float64 // bounds on R, 1/ms
@@ -21,7 +21,7 @@ type monoExp2 struct {
 
 // pass evaluates the cost at (m0, r) and, into the returned normal
 // equations, JᵀJ and Jᵀ(y − f).
-func (s *monoExp2) pass(y []float64, m0, r float64) (rss, a11, a12, a22, g1, g2 float64) {
+func (s *expLM) pass(y []float64, m0, r float64) (rss, a11, a12, a22, g1, g2 float64) {
 	c := s.c
 	c.decay(r)
 	for i, e := range c.ex {
@@ -40,7 +40,7 @@ func (s *monoExp2) pass(y []float64, m0, r float64) (rss, a11, a12, a22, g1, g2 
 
 // solve refines (m0, r) in place and returns the cost, the iteration
 // count and whether it converged.
-func (s *monoExp2) solve(y []float64, m0, r *float64) (float64, int, bool) {
+func (s *expLM) solve(y []float64, m0, r *float64) (float64, int, bool) {
 	set := s.set.withDefaults()
 	xtol2 := set.XTol * set.XTol
 	p0, p1 := *m0, *r
@@ -109,7 +109,7 @@ func (s *monoExp2) solve(y []float64, m0, r *float64) (float64, int, bool) {
 
 // se returns the standard errors of M0 and R from s²·(JᵀJ)⁻¹ at the last
 // solution, NaN when singular or n ≤ 2.
-func (s *monoExp2) se(rss float64, n int) (seM0, seR float64) {
+func (s *expLM) se(rss float64, n int) (seM0, seR float64) {
 	det := s.a11*s.a22 - s.a12*s.a12
 	if n <= 2 || !(det > 0) {
 		return math.NaN(), math.NaN()

@@ -1,7 +1,6 @@
 package report
 
 import (
-	"bufio"
 	_ "embed"
 	"encoding/base64"
 	"errors"
@@ -9,12 +8,10 @@ import (
 	"html/template"
 	"io"
 	"math"
-	"os"
-	"path/filepath"
 	"strconv"
 	"strings"
 
-	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/preview"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -54,39 +51,8 @@ func Render(w io.Writer, p *Page) error {
 
 // writeAtomic writes through fn into a temporary file beside path and
 // renames it to path when everything succeeded.
-func writeAtomic(path string, fn func(io.Writer) error) (err error) {
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+base+".tmp*")
-	if err != nil {
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	tmp := f.Name()
-	defer func() {
-		if err != nil {
-			f.Close()
-			os.Remove(tmp)
-		}
-	}()
-	w := bufio.NewWriter(f)
-	if err = fn(w); err != nil {
-		return fmt.Errorf("%s: writing report: %w", path, err)
-	}
-	if err = w.Flush(); err != nil {
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	if err = f.Chmod(0o644); err != nil {
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	if err = f.Close(); err != nil {
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	if err = os.Rename(tmp, path); err != nil {
-		return fmt.Errorf("%s: %w", path, err)
-	}
-	return nil
+func writeAtomic(path string, fn func(io.Writer) error) error {
+	return output.WriteWith(path, fn)
 }
 
 // The template's data: every value already formatted as text. Texts from
@@ -145,7 +111,7 @@ func build(p *Page) (*pageData, error) {
 		d.When = "–"
 	}
 	if d.Caution == "" {
-		d.Caution = mapset.Caution
+		d.Caution = output.Caution
 	}
 	frac := p.WarnFraction
 	if frac == 0 {

@@ -14,7 +14,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
@@ -61,7 +61,7 @@ func testQA(hostile bool) *phantom.QA {
 		Format:  phantom.QAFormat,
 		Tool:    phantom.Tool{Name: "tauvox", Version: "0.0.0-test"},
 		Session: phantom.Session{Scanner: "MR-3", Date: "2026-03-02", Time: "08:15", Field: 1.5, Temperature: 20.4, Phantom: "demo phantom"},
-		Caution: mapset.Caution,
+		Caution: output.Caution,
 	}
 	if hostile {
 		qa.Session.Scanner = hostileScanner
@@ -231,7 +231,7 @@ func TestWriteStructure(t *testing.T) {
 		`<div class="verdict fail" id="verdict">Session verdict: FAIL<small>18 of 20 vial measurements passed, 0 warn, 1 failed, 1 not measured</small></div>`,
 		// The headline names the failing vial, deviation and tolerance in % and ms.
 		"<li>Failed: A4 T1 &#43;9.0 % (&#43;36.0 ms) against a tolerance of ±5.0 % (±20.0 ms).</li>",
-		mapset.Caution,
+		output.Caution,
 		"MR-3", "1.50 T", "20.4 °C",
 		"<h2>T1</h2>", "<h2>T2</h2>",
 		"reference ± max(5 % of the reference, 5 ms)",

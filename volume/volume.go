@@ -36,6 +36,13 @@ type Source struct {
 	Patient *Patient
 }
 
+// Input names one file read to make an image (a series, its sidecar, a
+// mask), for provenance records.
+type Input struct {
+	Path string
+	Role string // "series", "sidecar", "mask", "b1"
+}
+
 // Patient holds the patient identifiers of a DICOM source.
 type Patient struct {
 	Name      string `json:"name,omitempty"`

@@ -15,7 +15,7 @@ import (
 	"time"
 	"unicode"
 
-	"github.com/tauvox/tauvox/io/mapset"
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/roi/history"
 )
 
@@ -487,7 +487,7 @@ func historyPage(sum *HistorySummary, charts [][]byte, opt *HistoryOptions) *his
 	}
 	d := &historyData{
 		Source:  opt.Source,
-		Caution: mapset.Caution,
+		Caution: output.Caution,
 		Tool:    opt.Tool,
 		Range:   "no dated sessions",
 		EWMA:    fmt.Sprintf("λ = %g, limits ±%g SD·√(λ/(2−λ)·[1 − (1−λ)^(2i)])", lam, L),

@@ -1,0 +1,28 @@
+package output
+
+import (
+	"strconv"
+	"strings"
+)
+
+// Line returns s fit for one line of a message: when s holds a control
+// character (a newline in a file name, a terminal escape) it is escaped
+// as in a Go string literal, without the quotes; otherwise s is returned
+// as it is.
+func Line(s string) string {
+	for _, r := range s {
+		if r < 0x20 || r == 0x7f {
+			q := strconv.Quote(s)
+			return q[1 : len(q)-1]
+		}
+	}
+	return s
+}
+
+// Caution is the statement every report and provenance record carries.
+const Caution = "tauvox is a quality-assurance and research tool, not a medical device; clinical decisions follow local regulations and licensed practice."
+
+// Message returns an error message on one line: every run of white space
+// (a message wrapped over lines) becomes one space, and any other control
+// character is escaped as by Line.
+func Message(s string) string { return Line(strings.Join(strings.Fields(s), " ")) }
