@@ -33,7 +33,20 @@ type Placement struct {
 	Confidence float64 // 0…1
 	Residual   float64 // RMS mm between vial centres found and placed
 	Method     string  // "found", "given", "mixed"
+	// Plane is the fractional slice index of the spheres' plane when it
+	// was found from the images (NaN otherwise).
+	Plane float64
+	// zbar is the spheres' mean z (mm), the definition's height of Plane.
+	zbar float64
+	// alts are the other distinct placements of nearly the best contrast
+	// (at least altFraction of it), for the identity step.
+	alts []*Placement
 }
+
+// altFraction is the contrast, relative to the best, down to which other
+// distinct geometric placements are kept as identity candidates (tauvox's
+// choice: a placement off by a vial spacing scores far lower).
+const altFraction = 0.8
 
 // Point maps a point of the phantom's plane (mm from its centre) to the
 // scanner.
@@ -57,12 +70,6 @@ type LocateOptions struct {
 	Rotation *float64    // given rotation (degrees): not searched
 	Mirrored *bool       // given orientation
 	Slice    *int        // given slice index
-	// Map, when not nil, is a quantitative map on the same grid (T1 or T2,
-	// ms) with the reference of each vial in Expected (by vial id): among
-	// geometric candidates of nearly equal contrast (a symmetric vial
-	// layout), the one whose vial values best match the references wins.
-	Map      *volume.Image
-	Expected map[string]float64
 }
 
 // ErrNoPhantom reports an image in which no phantom could be found.
@@ -106,7 +113,7 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 		return nil, err
 	}
 	sl.setSlice(k)
-	pl := &Placement{Slice: k, U: sl.u, V: sl.v, N: sl.n, Method: "found"}
+	pl := &Placement{Slice: k, U: sl.u, V: sl.v, N: sl.n, Method: "found", Plane: math.NaN()}
 	start, ok := sl.centroid()
 	if !ok {
 		return nil, ErrNoPhantom
@@ -208,17 +215,6 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 		return nil, ErrNoPhantom
 	}
 	chosen := 0
-	if opt.Map != nil && len(opt.Expected) > 0 {
-		bestMis := math.Inf(1)
-		for i, u := range uniq {
-			if u.score < 0.9*best.score {
-				continue
-			}
-			if mis := sc.mismatch(opt.Map, opt.Expected, u.c, u.th, u.mirror); mis < bestMis {
-				bestMis, chosen = mis, i
-			}
-		}
-	}
 	win := uniq[chosen]
 	pl.Center, pl.Rotation, pl.Mirrored = win.c, math.Mod(win.th+360, 360), win.mirror
 	// Confidence: margin over the next distinct candidate, and residual.
@@ -230,6 +226,22 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 		}
 	}
 	pl.Residual = sc.residual(pl)
+	for i, u := range uniq {
+		if i != chosen && u.score >= altFraction*win.score {
+			a := *pl
+			a.Center, a.Rotation, a.Mirrored, a.alts = u.c, math.Mod(u.th+360, 360), u.mirror, nil
+			a.Residual = sc.residual(&a)
+			pl.alts = append(pl.alts, &a)
+		}
+	}
+	if sph, zbar := def.hasSpheres(); sph && im.Dims[2] > 1 && opt.Slice == nil {
+		pl.zbar = zbar
+		locatePlane(sc, pl, zbar)
+		for _, a := range pl.alts {
+			a.zbar = zbar
+			locatePlane(sc, a, zbar)
+		}
+	}
 	// 1 when the placement beats every other distinct one by at least 5 %
 	// of its score and each vial's own best position agrees with it; lower
 	// as a second placement scores nearly as well (an ambiguous layout) or
@@ -570,44 +582,4 @@ func (sc *scorer) residual(p *Placement) float64 {
 		return math.NaN()
 	}
 	return math.Sqrt(ss / float64(n))
-}
-
-// mismatch is the mean |log(median in vial / expected)| over vials with an
-// expected value, for a placement.
-func (sc *scorer) mismatch(m *volume.Image, expected map[string]float64, c [3]float64, th float64, mirror bool) float64 {
-	p := sc.place(c, th, mirror)
-	ms, err := newSlicer(m)
-	if err != nil {
-		ms = &slicer{im: m}
-		ms.inv, _ = m.Affine.Inverse()
-	}
-	ms.k = sc.sl.k
-	var s float64
-	n := 0
-	for i := range sc.def.Vials {
-		v := &sc.def.Vials[i]
-		e, ok := expected[v.ID]
-		if !ok || !(e > 0) {
-			continue
-		}
-		in, _ := offsets(v.Radius*0.6, 6)
-		var vals []float64
-		for _, o := range in {
-			if val, ok := ms.sample(p.Point(v.X+o[0], v.Y+o[1])); ok && val > 0 {
-				vals = append(vals, val)
-			}
-		}
-		if len(vals) == 0 {
-			s += 5
-			n++
-			continue
-		}
-		sort.Float64s(vals)
-		s += math.Abs(math.Log(vals[len(vals)/2] / e))
-		n++
-	}
-	if n == 0 {
-		return math.Inf(1)
-	}
-	return s / float64(n)
 }

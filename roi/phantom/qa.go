@@ -22,8 +22,11 @@ type QA struct {
 	Session Session     `json:"session"`
 	Series  []SeriesRef `json:"series"`
 	Vials   []VialQA    `json:"vials"`
-	Verdict string      `json:"verdict"` // pass, fail, or not-measured when nothing was measured
-	Caution string      `json:"caution"`
+	Verdict string      `json:"verdict"` // pass, fail, undetermined, or not-measured when nothing was measured
+	// Identity says how the vials were told apart (absent in files from
+	// before it was recorded).
+	Identity *Identity `json:"identity,omitempty"`
+	Caution  string    `json:"caution"`
 }
 
 // Tool names the program that made the file.
@@ -144,17 +147,25 @@ func Judge(r *VialQA, v *Vial, tol map[string]Tolerance, field, temp float64, ex
 	return nil
 }
 
-// Overall returns the session verdict: fail when any vial fails, pass when
-// at least one passed and none failed, not-measured otherwise.
+// Overall returns the session verdict: fail when any vial fails,
+// undetermined when none failed but some vial's identity is undetermined,
+// pass when at least one passed and none failed or is undetermined,
+// not-measured otherwise.
 func Overall(vials []VialQA) string {
 	v := NotMeasured
+	und := false
 	for _, r := range vials {
 		switch r.Verdict {
 		case Fail:
 			return Fail
 		case Pass:
 			v = Pass
+		case Undetermined:
+			und = true
 		}
+	}
+	if und {
+		return Undetermined
 	}
 	return v
 }

@@ -1,0 +1,373 @@
+package phantom
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+)
+
+// Identity statuses (qa.json "identity"."status").
+const (
+	IdentityFound        = "found"        // the values chose one placement by a clear margin
+	IdentityGiven        = "given"        // the user fixed the rotation and the face
+	IdentityUndetermined = "undetermined" // the vials could not be told apart
+)
+
+// Undetermined is the verdict of a vial whose identity is not known with
+// confidence: no pass or fail is given.
+const Undetermined = "undetermined"
+
+// MatchCap is the cap c of the match measure: a vial's mismatch counts as
+// min(|ln(measured/reference)|, c). ln 1.5: beyond a factor of 1.5 a vial
+// simply does not match, however far off it is, so a few bad vials cannot
+// outweigh the rest (a truncated absolute log-ratio; tauvox's choice).
+var MatchCap = math.Log(1.5)
+
+// IdentityThreshold is the smallest identity margin, in units of the
+// session's noise scale, for which the values are taken to tell the
+// placements apart. Chosen from the margins of correct identities and of
+// ambiguous ones in the identification tests (docs/methods.md,
+// docs/validation.md): correct ones lie far above, ambiguous ones below 2.
+const IdentityThreshold = 4.0
+
+// minIdentityVials is the fewest measured vials with a reference for the
+// values to decide between placements.
+const minIdentityVials = 3
+
+// noiseFloor is the smallest noise scale (log units): 1 % (tauvox's
+// choice), or the largest reference uncertainty when that is larger.
+const noiseFloor = 0.01
+
+// MatchMeasure names the match measure in reports.
+const MatchMeasure = "mean over vials and quantities of min(|ln(measured median / reference)|, ln 1.5)"
+
+// Identity reports how the vials were told apart in a session.
+type Identity struct {
+	Status string `json:"status"` // found, given or undetermined
+	// Reason says in one line why the identity is undetermined or how it
+	// was fixed; Fix how the user can settle an undetermined one.
+	Reason    string          `json:"reason,omitempty"`
+	Fix       string          `json:"fix,omitempty"`
+	Measure   string          `json:"measure"`
+	Threshold float64         `json:"threshold"`
+	Groups    []IdentityGroup `json:"groups"`
+}
+
+// IdentityGroup is the identity of the maps that share one grid.
+type IdentityGroup struct {
+	Quantities []string `json:"quantities"`
+	Status     string   `json:"status"`
+	Reason     string   `json:"reason,omitempty"`
+	// Symmetries is the number of placements the layout allows (its
+	// symmetries); Placements the number evaluated (with other geometric
+	// candidates of nearly the best contrast).
+	Symmetries int     `json:"symmetries"`
+	Placements int     `json:"placements"`
+	Residual   float64 `json:"residual_mm"` // geometric fit of the chosen placement
+	Chosen     Choice  `json:"chosen"`
+	RunnerUp   *Choice `json:"runner_up,omitempty"`
+	// Margin is RunnerUp.Cost − Chosen.Cost; Scale the noise scale (log
+	// units) from the chosen placement's spread of log-ratios; Z the
+	// margin in units of Scale. nil when there is no runner-up.
+	Margin   *float64   `json:"margin,omitempty"`
+	Scale    float64    `json:"noise_scale"`
+	Z        *float64   `json:"margin_z,omitempty"`
+	Vials    int        `json:"vials_measured"`
+	Evidence []Evidence `json:"evidence"`
+}
+
+// Choice is one candidate placement and its match cost.
+type Choice struct {
+	Rotation float64 `json:"rotation_deg"`
+	Mirrored bool    `json:"mirrored"`
+	Cost     float64 `json:"cost"`
+}
+
+// Evidence is one vial's reference and the median measured where the
+// chosen placement and the runner-up put it (nil when not measured).
+type Evidence struct {
+	ID        string   `json:"id"`
+	Quantity  string   `json:"quantity"`
+	Reference float64  `json:"reference_ms"`
+	Chosen    *float64 `json:"chosen_ms"`
+	RunnerUp  *float64 `json:"runner_up_ms,omitempty"`
+}
+
+// identityInput is one map of a group with its references (by vial
+// index; 0 when none) and the slices of its cylinders.
+type identityInput struct {
+	in     *Input
+	ref    []float64
+	unc    float64
+	slices []int
+}
+
+// candidate is one placement with its measurements per input.
+type candidate struct {
+	pl   *Placement
+	meas [][]VialQA
+	cost float64
+	n    int // vials measured
+	sym  bool
+}
+
+// identify evaluates every placement the geometry allows (base composed
+// with each symmetry of the layout, and base's other geometric candidates)
+// on the group's maps, and returns the chosen placement and the identity
+// report. fixRot and fixFace restrict the choice to placements with that
+// rotation or face; with both the placement is given.
+func identify(def *Definition, ins []identityInput, base *Placement, fixRot *float64, fixFace *bool, frac float64, minN int) (*Placement, [][]VialQA, IdentityGroup, error) {
+	syms := def.Symmetries()
+	var cands []*candidate
+	add := func(p *Placement, sym bool) {
+		for _, c := range cands {
+			if c.pl.Mirrored == p.Mirrored && angleDiff(c.pl.Rotation, p.Rotation) < 3 && dist(c.pl.Center, p.Center) < 2 {
+				return
+			}
+		}
+		cands = append(cands, &candidate{pl: p, sym: sym})
+	}
+	for i := range syms {
+		add(compose(base, &syms[i]), true)
+	}
+	for _, a := range base.alts {
+		add(a, false)
+	}
+	g := IdentityGroup{Symmetries: len(syms), Placements: len(cands), Residual: base.Residual, Status: IdentityFound}
+	for _, in := range ins {
+		g.Quantities = append(g.Quantities, in.in.Quantity)
+	}
+	unc := 0.0
+	for _, in := range ins {
+		unc = math.Max(unc, in.unc)
+	}
+	for _, c := range cands {
+		for _, in := range ins {
+			m, err := Measure(in.in.Map, in.in.Status, c.pl, def, in.in.Quantity, frac, in.slices)
+			if err != nil {
+				return nil, nil, g, err
+			}
+			c.meas = append(c.meas, m)
+		}
+		c.cost, c.n = matchCost(c.meas, ins, minN)
+	}
+	allowed := func(c *candidate) bool {
+		if fixRot != nil && angleDiff(c.pl.Rotation, *fixRot) > 1 {
+			return false
+		}
+		if fixFace != nil && c.pl.Mirrored != *fixFace {
+			return false
+		}
+		return true
+	}
+	order := make([]int, len(cands))
+	for i := range order {
+		order[i] = i
+	}
+	sort.SliceStable(order, func(i, j int) bool { return cands[order[i]].cost < cands[order[j]].cost })
+	win, second := -1, -1
+	for _, i := range order {
+		if !allowed(cands[i]) {
+			continue
+		}
+		if win < 0 {
+			win = i
+		} else if second < 0 {
+			second = i
+		}
+	}
+	if win < 0 {
+		// A fixed rotation that no symmetric placement has: the geometric
+		// fit at that rotation is used as given.
+		win = 0
+	}
+	given := fixRot != nil && fixFace != nil
+	if second < 0 && given {
+		for _, i := range order {
+			if i != win {
+				second = i
+				break
+			}
+		}
+	}
+	w := cands[win]
+	g.Chosen = Choice{Rotation: w.pl.Rotation, Mirrored: w.pl.Mirrored, Cost: w.cost}
+	g.Vials = w.n
+	g.Scale = noiseScale(w.meas, ins, minN, unc)
+	if second >= 0 {
+		s := cands[second]
+		g.RunnerUp = &Choice{Rotation: s.pl.Rotation, Mirrored: s.pl.Mirrored, Cost: s.cost}
+		m := s.cost - w.cost
+		z := m / g.Scale
+		g.Margin, g.Z = &m, &z
+	}
+	g.Evidence = evidence(def, ins, w, cands, second, minN)
+	switch {
+	case given:
+		g.Status = IdentityGiven
+		g.Reason = "rotation and face given by the user"
+	case second < 0:
+		g.Reason = "the layout allows one placement only"
+	case w.n < minIdentityVials:
+		g.Status = IdentityUndetermined
+		g.Reason = fmt.Sprintf("only %d vials measured with a reference: too few to tell the %d placements apart", w.n, len(cands))
+	case *g.Z < IdentityThreshold:
+		g.Status = IdentityUndetermined
+		g.Reason = fmt.Sprintf("two placements match the references about equally (turned %.1f°%s and %.1f°%s; margin %.2f noise units, below %g)",
+			w.pl.Rotation, faceText(w.pl.Mirrored), cands[second].pl.Rotation, faceText(cands[second].pl.Mirrored), *g.Z, IdentityThreshold)
+	}
+	pl := *w.pl
+	pl.alts = nil
+	return &pl, w.meas, g, nil
+}
+
+func faceText(m bool) string {
+	if m {
+		return " face down"
+	}
+	return " face up"
+}
+
+// matchCost returns the mean over vials and quantities with a reference
+// of min(|ln(median/reference)|, MatchCap); a vial with a reference but
+// without a usable measurement counts MatchCap. n is the number of vials
+// measured in at least one map.
+func matchCost(meas [][]VialQA, ins []identityInput, minN int) (cost float64, n int) {
+	var s float64
+	terms := 0
+	measured := map[int]bool{}
+	for k, in := range ins {
+		for v, ref := range in.ref {
+			if !(ref > 0) {
+				continue
+			}
+			terms++
+			r := meas[k][v]
+			if r.N < minN || !(r.Median > 0) || math.IsInf(r.Median, 0) {
+				s += MatchCap
+				continue
+			}
+			measured[v] = true
+			s += math.Min(math.Abs(math.Log(r.Median/ref)), MatchCap)
+		}
+	}
+	if terms == 0 {
+		return math.Inf(1), 0
+	}
+	return s / float64(terms), len(measured)
+}
+
+// noiseScale returns the spread of the log-ratios ln(median/reference) of
+// a placement: per quantity the deviations from their median (a common
+// bias of a quantity moves every candidate alike), pooled, as 1.4826 ×
+// their median absolute value (the MAD's consistency factor for normal
+// noise), floored at noiseFloor and at the largest reference uncertainty.
+func noiseScale(meas [][]VialQA, ins []identityInput, minN int, unc float64) float64 {
+	var dev []float64
+	for k, in := range ins {
+		var e []float64
+		for v, ref := range in.ref {
+			r := meas[k][v]
+			if ref > 0 && r.N >= minN && r.Median > 0 && !math.IsInf(r.Median, 0) {
+				e = append(e, math.Log(r.Median/ref))
+			}
+		}
+		if len(e) == 0 {
+			continue
+		}
+		m := median(e)
+		for _, x := range e {
+			dev = append(dev, math.Abs(x-m))
+		}
+	}
+	s := noiseFloor
+	if len(dev) > 0 {
+		s = math.Max(s, 1.4826*median(dev))
+	}
+	return math.Max(s, unc/100)
+}
+
+func median(x []float64) float64 {
+	y := append([]float64(nil), x...)
+	sort.Float64s(y)
+	n := len(y)
+	if n%2 == 1 {
+		return y[n/2]
+	}
+	return (y[n/2-1] + y[n/2]) / 2
+}
+
+// evidence lists, per vial and quantity with a reference, the median
+// measured where the chosen placement and the runner-up put the vial.
+func evidence(def *Definition, ins []identityInput, w *candidate, cands []*candidate, second, minN int) []Evidence {
+	var out []Evidence
+	val := func(r VialQA) *float64 {
+		if r.N < minN || math.IsNaN(r.Median) || math.IsInf(r.Median, 0) {
+			return nil
+		}
+		m := r.Median
+		return &m
+	}
+	for k, in := range ins {
+		for v, ref := range in.ref {
+			if !(ref > 0) {
+				continue
+			}
+			e := Evidence{ID: def.Vials[v].ID, Quantity: in.in.Quantity, Reference: ref, Chosen: val(w.meas[k][v])}
+			if second >= 0 {
+				e.RunnerUp = val(cands[second].meas[k][v])
+			}
+			out = append(out, e)
+		}
+	}
+	return out
+}
+
+// twins returns, for each vial whose references (at the session, over the
+// group's quantities) lie within IdentityThreshold noise scales of another
+// vial's in every quantity, the ids of those other vials: the values
+// cannot tell them apart.
+func twins(def *Definition, ins []identityInput, scale float64) map[int][]string {
+	out := map[int][]string{}
+	for v := range def.Vials {
+		for w := v + 1; w < len(def.Vials); w++ {
+			common, close := 0, true
+			for _, in := range ins {
+				a, b := in.ref[v], in.ref[w]
+				if !(a > 0) || !(b > 0) {
+					continue
+				}
+				common++
+				if math.Abs(math.Log(a/b)) > IdentityThreshold*scale {
+					close = false
+				}
+			}
+			if common > 0 && close {
+				out[v] = append(out[v], def.Vials[w].ID)
+				out[w] = append(out[w], def.Vials[v].ID)
+			}
+		}
+	}
+	return out
+}
+
+// agree reports whether two placements put every vial in the same place
+// (within half its radius, in the slice plane).
+func agree(def *Definition, a, b *Placement) bool {
+	for i := range def.Vials {
+		v := &def.Vials[i]
+		p, q := a.Point(v.X, v.Y), b.Point(v.X, v.Y)
+		d := [3]float64{p[0] - q[0], p[1] - q[1], p[2] - q[2]}
+		along := dot(d, a.N)
+		if math.Sqrt(math.Max(0, dot(d, d)-along*along)) > 0.5*v.Radius {
+			return false
+		}
+	}
+	return true
+}
+
+// fixHint tells the user how to settle an undetermined identity.
+const fixHint = "give the phantom's rotation and face (--rotation DEG --face up|down, as seen in the report's map), or use a definition whose layout or values have no symmetry"
+
+func joinIDs(ids []string) string { return strings.Join(ids, ", ") }

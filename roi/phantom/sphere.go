@@ -1,0 +1,150 @@
+package phantom
+
+import (
+	"math"
+	"sort"
+
+	"github.com/tauvox/tauvox/io/volume"
+)
+
+// MinCutFraction is the smallest radius, as a fraction of a sphere's
+// radius, that a slice must cut through the whole of its thickness for the
+// slice to be measured: below it the cut disc is mostly wall and partial
+// volume (tauvox's choice; docs/methods.md).
+const MinCutFraction = 0.5
+
+// Point3 maps a point of the phantom's frame (x, y in its plane, z along
+// its axis, mm from its centre) to the scanner. Face down turns z over
+// with x.
+func (p *Placement) Point3(x, y, z float64) [3]float64 {
+	q := p.Point(x, y)
+	if p.Mirrored {
+		z = -z
+	}
+	for d := 0; d < 3; d++ {
+		q[d] += z * p.N[d]
+	}
+	return q
+}
+
+// vialCentre returns the scanner position of vial v's centre.
+func (p *Placement) vialCentre(v *Vial) [3]float64 {
+	if v.IsSphere() {
+		return p.Point3(v.X, v.Y, v.Z)
+	}
+	return p.Point(v.X, v.Y)
+}
+
+// sliceThickness returns the spacing of im's slices along the normal n.
+func sliceThickness(im *volume.Image, n [3]float64) float64 {
+	a := im.Affine
+	return math.Abs(a[0][2]*n[0] + a[1][2]*n[1] + a[2][2]*n[2])
+}
+
+// CutRadius returns the radius a slab of thickness t at distance d (from
+// the slab's middle to the sphere centre) cuts from a sphere of radius r
+// through its whole thickness: √(r² − (|d| + t/2)²), 0 when some part of
+// the slab misses the sphere's widest disc by more than r.
+func CutRadius(r, d, t float64) float64 {
+	e := math.Abs(d) + t/2
+	if e >= r {
+		return 0
+	}
+	return math.Sqrt(r*r - e*e)
+}
+
+// SphereRegion returns the voxels of grid im inside the measurement region
+// of a sphere of radius r centred at c (n the slice normal): on each slice
+// whose slab cuts a disc of at least MinCutFraction·r through its whole
+// thickness, a disc of frac × that cut radius. It returns the slices used
+// and the smallest region radius (NaN when no slice is used).
+func SphereRegion(im *volume.Image, c, n [3]float64, r, frac float64) (idx []int, used []int, rmin float64) {
+	inv, ok := im.Affine.Inverse()
+	rmin = math.NaN()
+	if !ok {
+		return nil, nil, rmin
+	}
+	t := sliceThickness(im, n)
+	_, _, ck := inv.Apply(c[0], c[1], c[2])
+	for k := 0; k < im.Dims[2]; k++ {
+		d := (float64(k) - ck) * t
+		rc := CutRadius(r, d, t)
+		if rc < MinCutFraction*r || rc == 0 {
+			continue
+		}
+		rr := frac * rc
+		// The sphere centre projected on slice k.
+		ci, cj, _ := inv.Apply(c[0], c[1], c[2])
+		x, y, z := im.Affine.Apply(ci, cj, float64(k))
+		part := VialRegion(im, [3]float64{x, y, z}, n, rr, []int{k})
+		if len(part) == 0 {
+			continue
+		}
+		idx = append(idx, part...)
+		used = append(used, k)
+		if math.IsNaN(rmin) || rr < rmin {
+			rmin = rr
+		}
+	}
+	sort.Ints(idx)
+	return idx, used, rmin
+}
+
+// hasSpheres reports whether any vial of def is a sphere, and the mean z
+// of the spheres (their plane when they share one).
+func (d *Definition) hasSpheres() (bool, float64) {
+	var s float64
+	n := 0
+	for i := range d.Vials {
+		if d.Vials[i].IsSphere() {
+			s += d.Vials[i].Z
+			n++
+		}
+	}
+	if n == 0 {
+		return false, 0
+	}
+	return true, s / float64(n)
+}
+
+// locatePlane finds the plane of the spheres along the slice normal when
+// the image holds several slices: the placement's contrast score on each
+// slice peaks where the slices cut the spheres widest; a parabola through
+// the best slice and its two neighbours gives the peak to a fraction of a
+// slice (the vertex of the parabola through three points; clamped to half
+// a slice either way). The placement's centre moves along the normal so
+// that the spheres' mean z lies on that plane. It returns the plane's
+// fractional slice index.
+func locatePlane(sc *scorer, pl *Placement, zbar float64) float64 {
+	sl := sc.sl
+	nz := sl.im.Dims[2]
+	keep := sl.k
+	defer sl.setSlice(keep)
+	score := make([]float64, nz)
+	best := -1
+	for k := 0; k < nz; k++ {
+		sl.setSlice(k)
+		score[k] = sc.score(sl.project(pl.Center), pl.Rotation, pl.Mirrored)
+		if best < 0 || score[k] > score[best] {
+			best = k
+		}
+	}
+	plane := float64(best)
+	if best > 0 && best < nz-1 {
+		a, b, c := score[best-1], score[best], score[best+1]
+		if den := a - 2*b + c; den < 0 {
+			plane += math.Max(-0.5, math.Min(0.5, 0.5*(a-c)/den))
+		}
+	}
+	// Move the centre onto the plane, then back by the spheres' mean z.
+	inv := sl.inv
+	ci, cj, _ := inv.Apply(pl.Center[0], pl.Center[1], pl.Center[2])
+	x, y, z := sl.im.Affine.Apply(ci, cj, plane)
+	s := 1.0
+	if pl.Mirrored {
+		s = -1
+	}
+	pl.Center = [3]float64{x - s*zbar*pl.N[0], y - s*zbar*pl.N[1], z - s*zbar*pl.N[2]}
+	pl.Plane = plane
+	return plane
+}
