@@ -399,28 +399,6 @@ func (s *slicer) project(p [3]float64) [3]float64 {
 	return [3]float64{x, y, z}
 }
 
-// sample returns the bilinear interpolation of the current slice at the
-// scanner point p (projected on the slice), and false outside the image or
-// on a non-finite value.
-func (s *slicer) sample(p [3]float64) (float64, bool) {
-	fi, fj, _ := s.inv.Apply(p[0], p[1], p[2])
-	nx, ny := s.im.Dims[0], s.im.Dims[1]
-	if !(fi >= 0 && fj >= 0 && fi <= float64(nx-1) && fj <= float64(ny-1)) {
-		return 0, false
-	}
-	i0, j0 := int(fi), int(fj)
-	i1, j1 := min(i0+1, nx-1), min(j0+1, ny-1)
-	a, b := fi-float64(i0), fj-float64(j0)
-	off := nx * ny * s.k
-	d := s.im.Data
-	v := (1-a)*(1-b)*float64(d[off+i0+nx*j0]) + a*(1-b)*float64(d[off+i1+nx*j0]) +
-		(1-a)*b*float64(d[off+i0+nx*j1]) + a*b*float64(d[off+i1+nx*j1])
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, false
-	}
-	return v, true
-}
-
 // scorer evaluates placements of a definition on a slice.
 type scorer struct {
 	sl     *slicer
@@ -473,16 +451,67 @@ func (sc *scorer) place(c [3]float64, th float64, mirror bool) *Placement {
 	return &Placement{Center: c, Rotation: th, Mirrored: mirror, U: sc.sl.u, V: sc.sl.v, N: sc.sl.n}
 }
 
-// vialContrast returns |mean inside − mean outside| of vial v for a
-// placement, with an extra shift (dx, dy) in the phantom plane.
-func (sc *scorer) vialContrast(p *Placement, v *Vial, dx, dy float64) (float64, bool) {
+// frame maps phantom-plane points of a placement straight to voxel
+// coordinates (i, j) of the slicer's grid: one rotation and one affine
+// inversion per placement instead of per sample point.
+type frame struct {
+	ci, cj         float64
+	ai, aj, bi, bj float64 // voxel steps per mm of the placement's a and b axes
+	cos, sin, sx   float64
+}
+
+func (s *slicer) frame(p *Placement) frame {
+	th := p.Rotation * math.Pi / 180
+	f := frame{cos: math.Cos(th), sin: math.Sin(th), sx: 1}
+	if p.Mirrored {
+		f.sx = -1
+	}
+	f.ci, f.cj, _ = s.inv.Apply(p.Center[0], p.Center[1], p.Center[2])
+	m := s.inv
+	f.ai = m[0][0]*p.U[0] + m[0][1]*p.U[1] + m[0][2]*p.U[2]
+	f.aj = m[1][0]*p.U[0] + m[1][1]*p.U[1] + m[1][2]*p.U[2]
+	f.bi = m[0][0]*p.V[0] + m[0][1]*p.V[1] + m[0][2]*p.V[2]
+	f.bj = m[1][0]*p.V[0] + m[1][1]*p.V[1] + m[1][2]*p.V[2]
+	return f
+}
+
+// at returns the voxel coordinates of the phantom-plane point (x, y), as
+// Placement.Point followed by the inverse affine does.
+func (f *frame) at(x, y float64) (float64, float64) {
+	x *= f.sx
+	a := x*f.cos - y*f.sin
+	b := x*f.sin + y*f.cos
+	return f.ci + a*f.ai + b*f.bi, f.cj + a*f.aj + b*f.bj
+}
+
+// sampleIJ is sample at voxel coordinates of the current slice.
+func (s *slicer) sampleIJ(fi, fj float64) (float64, bool) {
+	nx, ny := s.im.Dims[0], s.im.Dims[1]
+	if !(fi >= 0 && fj >= 0 && fi <= float64(nx-1) && fj <= float64(ny-1)) {
+		return 0, false
+	}
+	i0, j0 := int(fi), int(fj)
+	i1, j1 := min(i0+1, nx-1), min(j0+1, ny-1)
+	a, b := fi-float64(i0), fj-float64(j0)
+	off := nx * ny * s.k
+	d := s.im.Data
+	v := (1-a)*(1-b)*float64(d[off+i0+nx*j0]) + a*(1-b)*float64(d[off+i1+nx*j0]) +
+		(1-a)*b*float64(d[off+i0+nx*j1]) + a*b*float64(d[off+i1+nx*j1])
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, false
+	}
+	return v, true
+}
+
+// contrastAt returns |mean inside − mean outside| of vial v for the
+// placement of frame f, with an extra shift (dx, dy) in the phantom plane.
+func (sc *scorer) contrastAt(f *frame, v *Vial, dx, dy float64) (float64, bool) {
 	in, out := sc.offsets(v.Radius)
 	mean := func(pts [][2]float64) (float64, bool) {
 		var s float64
 		n := 0
 		for _, o := range pts {
-			q := p.Point(v.X+dx+o[0], v.Y+dy+o[1])
-			if val, ok := sc.sl.sample(q); ok {
+			if val, ok := sc.sl.sampleIJ(f.at(v.X+dx+o[0], v.Y+dy+o[1])); ok {
 				s += val
 				n++
 			}
@@ -502,9 +531,10 @@ func (sc *scorer) vialContrast(p *Placement, v *Vial, dx, dy float64) (float64, 
 
 func (sc *scorer) score(c [3]float64, th float64, mirror bool) float64 {
 	p := sc.place(c, th, mirror)
+	f := sc.sl.frame(p)
 	var s float64
 	for i := range sc.def.Vials {
-		if v, ok := sc.vialContrast(p, &sc.def.Vials[i], 0, 0); ok {
+		if v, ok := sc.contrastAt(&f, &sc.def.Vials[i], 0, 0); ok {
 			s += v
 		}
 	}
@@ -554,9 +584,10 @@ func (sc *scorer) refine(c [3]float64, th float64, mirror, moveC, moveTh bool) (
 func (sc *scorer) residual(p *Placement) float64 {
 	var ss float64
 	n := 0
+	f := sc.sl.frame(p)
 	for i := range sc.def.Vials {
 		v := &sc.def.Vials[i]
-		best, ok := sc.vialContrast(p, v, 0, 0)
+		best, ok := sc.contrastAt(&f, v, 0, 0)
 		if !ok || best == 0 {
 			continue
 		}
@@ -564,7 +595,7 @@ func (sc *scorer) residual(p *Placement) float64 {
 		for step > 0.02 {
 			moved := false
 			for _, d := range [][2]float64{{1, 0}, {-1, 0}, {0, 1}, {0, -1}} {
-				if s, ok := sc.vialContrast(p, v, dx+step*d[0], dy+step*d[1]); ok && s > best {
+				if s, ok := sc.contrastAt(&f, v, dx+step*d[0], dy+step*d[1]); ok && s > best {
 					best, dx, dy, moved = s, dx+step*d[0], dy+step*d[1], true
 				}
 			}

@@ -131,7 +131,7 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 			return nil, err
 		}
 		var tw map[int][]string
-		if ig.Placements > 1 {
+		if ig.Placements > 1 && ig.Status != IdentityGiven {
 			tw = twins(def, ids, ig.Scale)
 		}
 		for k, i := range g {
