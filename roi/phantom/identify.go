@@ -99,7 +99,8 @@ type Evidence struct {
 type identityInput struct {
 	in     *Input
 	ref    []float64
-	unc    float64
+	refUnc []float64 // per vial, %
+	unc    float64   // largest of refUnc
 	slices []int
 }
 
@@ -324,11 +325,11 @@ func evidence(def *Definition, ins []identityInput, w *candidate, cands []*candi
 	return out
 }
 
-// twins returns, for each vial whose references (at the session, over the
-// group's quantities) lie within IdentityThreshold noise scales of another
-// vial's in every quantity, the ids of those other vials: the values
-// cannot tell them apart.
-func twins(def *Definition, ins []identityInput, scale float64) map[int][]string {
+// twins returns, for each vial whose references at the session agree with
+// another vial's within their combined uncertainty, √(u₁² + u₂²), in
+// every quantity measured (at least one), the ids of those other vials:
+// the values cannot tell them apart.
+func twins(def *Definition, ins []identityInput) map[int][]string {
 	out := map[int][]string{}
 	for v := range def.Vials {
 		for w := v + 1; w < len(def.Vials); w++ {
@@ -339,7 +340,8 @@ func twins(def *Definition, ins []identityInput, scale float64) map[int][]string
 					continue
 				}
 				common++
-				if math.Abs(math.Log(a/b)) > IdentityThreshold*scale {
+				u := math.Max(math.Hypot(in.refUnc[v], in.refUnc[w])/100, 1e-9)
+				if math.Abs(math.Log(a/b)) > u {
 					close = false
 				}
 			}

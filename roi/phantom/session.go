@@ -100,7 +100,8 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 	id := &Identity{Status: IdentityFound, Measure: MatchMeasure, Threshold: IdentityThreshold}
 	measured := make([][]VialQA, len(inputs))
 	var chosen []*Placement
-	twinsOf := make([]map[int][]string, len(inputs))
+	var all []identityInput
+	valuesDecide := false
 	for _, g := range groups {
 		first := &inputs[g[0]]
 		loc := first.Locator
@@ -118,10 +119,10 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 		}
 		ids := make([]identityInput, len(g))
 		for k, i := range g {
-			ids[k] = identityInput{in: &inputs[i], ref: make([]float64, len(def.Vials)), slices: slices}
+			ids[k] = identityInput{in: &inputs[i], ref: make([]float64, len(def.Vials)), refUnc: make([]float64, len(def.Vials)), slices: slices}
 			for v := range def.Vials {
 				if ref, unc, ok, err := def.Vials[v].ReferenceAt(inputs[i].Quantity, s.Field, s.Temperature, opt.Extrapolate); err == nil && ok {
-					ids[k].ref[v] = ref
+					ids[k].ref[v], ids[k].refUnc[v] = ref, unc
 					ids[k].unc = math.Max(ids[k].unc, unc)
 				}
 			}
@@ -130,12 +131,10 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 		if err != nil {
 			return nil, err
 		}
-		var tw map[int][]string
-		if ig.Placements > 1 && ig.Status != IdentityGiven {
-			tw = twins(def, ids, ig.Scale)
-		}
+		valuesDecide = valuesDecide || (ig.Placements > 1 && ig.Status != IdentityGiven)
+		all = append(all, ids...)
 		for k, i := range g {
-			res.Placements[i], res.Slices[i], measured[i], twinsOf[i] = p, slices, meas[k], tw
+			res.Placements[i], res.Slices[i], measured[i] = p, slices, meas[k]
 		}
 		chosen = append(chosen, p)
 		id.Groups = append(id.Groups, ig)
@@ -146,7 +145,7 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 				id.Groups[k].Status = IdentityUndetermined
 			}
 			id.Status = IdentityUndetermined
-			id.Reason = fmt.Sprintf("the %s and %s maps lie on different grids and their values give different identities",
+			id.Reason = fmt.Sprintf("the %s and %s maps lie on different grids and their identities put the vials in different places",
 				strings.Join(id.Groups[0].Quantities, "+"), strings.Join(id.Groups[g].Quantities, "+"))
 		}
 	}
@@ -171,6 +170,11 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 		id.Fix = fixHint
 	}
 	qa.Identity = id
+	// Vials of the same values are ambiguous wherever the values decide.
+	var tw map[int][]string
+	if valuesDecide {
+		tw = twins(def, all)
+	}
 	for n, in := range inputs {
 		pl := res.Placements[n]
 		vials := measured[n]
@@ -192,9 +196,9 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 			case id.Status == IdentityUndetermined:
 				vials[i].Verdict, vials[i].Deviation = Undetermined, math.NaN()
 				vials[i].Note = "identity undetermined"
-			case len(twinsOf[n][i]) > 0:
+			case len(tw[i]) > 0:
 				vials[i].Verdict, vials[i].Deviation = Undetermined, math.NaN()
-				vials[i].Note = "ambiguous: values cannot tell it from " + joinIDs(twinsOf[n][i])
+				vials[i].Note = "ambiguous: values cannot tell it from " + joinIDs(tw[i])
 			}
 		}
 		ref := in.Ref

@@ -111,8 +111,8 @@ func (d *Definition) hasSpheres() (bool, float64) {
 // the image holds several slices: the placement's contrast score on each
 // slice peaks where the slices cut the spheres widest; a parabola through
 // the best slice and its two neighbours gives the peak to a fraction of a
-// slice (the vertex of the parabola through three points; clamped to half
-// a slice either way). The placement's centre moves along the normal so
+// slice (the vertex of the parabola through three points, within a slice
+// of the best). The placement's centre moves along the normal so
 // that the spheres' mean z lies on that plane. It returns the plane's
 // fractional slice index.
 func locatePlane(sc *scorer, pl *Placement, zbar float64) float64 {
@@ -130,10 +130,15 @@ func locatePlane(sc *scorer, pl *Placement, zbar float64) float64 {
 		}
 	}
 	plane := float64(best)
-	if best > 0 && best < nz-1 {
-		a, b, c := score[best-1], score[best], score[best+1]
+	if nz >= 3 {
+		// Inside a sphere a slice's contrast falls as the disc it cuts,
+		// ∝ r² − d²: a parabola in the distance d, whose vertex is the
+		// plane. The three slices around the best (kept inside the slab).
+		m := min(max(best, 1), nz-2)
+		a, b, c := score[m-1], score[m], score[m+1]
 		if den := a - 2*b + c; den < 0 {
-			plane += math.Max(-0.5, math.Min(0.5, 0.5*(a-c)/den))
+			v := float64(m) + 0.5*(a-c)/den
+			plane = math.Max(float64(best)-1, math.Min(float64(best)+1, v))
 		}
 	}
 	// Move the centre onto the plane, then back by the spheres' mean z.
