@@ -217,17 +217,29 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 	chosen := 0
 	win := uniq[chosen]
 	pl.Center, pl.Rotation, pl.Mirrored = win.c, math.Mod(win.th+360, 360), win.mirror
-	// Confidence: margin over the next distinct candidate, and residual.
-	margin := 1.0
+	// Confidence: margin over the next distinct candidate that is not a
+	// symmetric image of the chosen one (those fit the outlines equally
+	// by construction; the values tell them apart), and residual.
+	syms := def.Symmetries()
+	image := func(u cand) bool {
+		for k := range syms {
+			q := compose(pl, &syms[k])
+			if q.Mirrored == u.mirror && angleDiff(q.Rotation, u.th) < 3 && dist(q.Center, u.c) < 2 {
+				return true
+			}
+		}
+		return false
+	}
+	margin, others := 1.0, false
 	for i, u := range uniq {
-		if i != chosen {
-			margin = math.Min(margin, 1-u.score/win.score)
+		if i != chosen && !image(u) {
+			margin, others = math.Min(margin, 1-u.score/win.score), true
 			break
 		}
 	}
 	pl.Residual = sc.residual(pl)
 	for i, u := range uniq {
-		if i != chosen && u.score >= altFraction*win.score {
+		if i != chosen && u.score >= altFraction*win.score && !image(u) {
 			a := *pl
 			a.Center, a.Rotation, a.Mirrored, a.alts = u.c, math.Mod(u.th+360, 360), u.mirror, nil
 			a.Residual = sc.residual(&a)
@@ -242,13 +254,14 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 			locatePlane(sc, a, zbar)
 		}
 	}
-	// 1 when the placement beats every other distinct one by at least 5 %
-	// of its score and each vial's own best position agrees with it; lower
-	// as a second placement scores nearly as well (an ambiguous layout) or
-	// the vials disagree (e^(−residual / 2 mm)).
-	pl.Confidence = clamp01(margin/0.05) * math.Exp(-pl.Residual/2)
-	if len(uniq) == 1 {
-		pl.Confidence = math.Exp(-pl.Residual / 2)
+	// 1 when the placement beats every other distinct one (symmetric
+	// images aside) by at least 5 % of its score and each vial's own best
+	// position agrees with it; lower as another placement scores nearly as
+	// well or the vials disagree (e^(−residual / 2 mm)). A geometric
+	// measure: the identity's margin is Identify's.
+	pl.Confidence = math.Exp(-pl.Residual / 2)
+	if others {
+		pl.Confidence *= clamp01(margin / 0.05)
 	}
 	return pl, nil
 }
