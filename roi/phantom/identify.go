@@ -24,11 +24,12 @@ const Undetermined = "undetermined"
 // outweigh the rest (a truncated absolute log-ratio; tauvox's choice).
 var MatchCap = math.Log(1.5)
 
-// IdentityThreshold is the smallest identity margin, in units of the
-// session's noise scale, for which the values are taken to tell the
-// placements apart. Chosen from the margins of correct identities and of
-// ambiguous ones in the identification tests (docs/methods.md,
-// docs/validation.md): correct ones lie far above, ambiguous ones below 2.
+// IdentityThreshold is the smallest identity margin, in units of the SD
+// that noise alone would give the margin, for which the values are taken
+// to tell the placements apart: noise alone exceeds 4 SD about once in
+// 30 000 (one-sided normal tail). The identification tests show correct
+// identities far above it and ambiguous ones at or near 0
+// (docs/methods.md, docs/validation.md).
 const IdentityThreshold = 4.0
 
 // minIdentityVials is the fewest measured vials with a reference for the
@@ -70,9 +71,12 @@ type IdentityGroup struct {
 	// Margin is RunnerUp.Cost − Chosen.Cost; Scale the noise scale (log
 	// units) from the chosen placement's spread of log-ratios; Z the
 	// margin in units of Scale. nil when there is no runner-up.
-	Margin   *float64   `json:"margin,omitempty"`
-	Scale    float64    `json:"noise_scale"`
-	Z        *float64   `json:"margin_z,omitempty"`
+	Margin *float64 `json:"margin,omitempty"`
+	Scale  float64  `json:"noise_scale"`
+	Z      *float64 `json:"margin_z,omitempty"`
+	// Moved is the number of vial-quantity terms the runner-up measures
+	// elsewhere than the chosen placement.
+	Moved    int        `json:"moved_terms,omitempty"`
 	Vials    int        `json:"vials_measured"`
 	Evidence []Evidence `json:"evidence"`
 }
@@ -200,8 +204,16 @@ func identify(def *Definition, ins []identityInput, base *Placement, fixRot *flo
 		s := cands[second]
 		g.RunnerUp = &Choice{Rotation: s.pl.Rotation, Mirrored: s.pl.Mirrored, Cost: s.cost}
 		m := s.cost - w.cost
-		z := m / g.Scale
-		g.Margin, g.Z = &m, &z
+		moved, terms := movedTerms(def, ins, w.pl, s.pl)
+		z := 0.0
+		if moved > 0 {
+			// Each term that differs between the two placements moves the
+			// margin by at most √2 σ of noise (ρ changes no faster than
+			// |e|; two medians' noise), so noise alone gives the margin an
+			// SD of at most σ·√(2·moved)/terms.
+			z = m / (g.Scale * math.Sqrt(2*float64(moved)) / float64(terms))
+		}
+		g.Margin, g.Z, g.Moved = &m, &z, moved
 	}
 	g.Evidence = evidence(def, ins, w, cands, second, minN)
 	switch {
@@ -221,6 +233,25 @@ func identify(def *Definition, ins []identityInput, base *Placement, fixRot *flo
 	pl := *w.pl
 	pl.alts = nil
 	return &pl, w.meas, g, nil
+}
+
+// movedTerms returns how many vial-quantity terms (with a reference) two
+// placements measure in different places (vial centres more than half a
+// radius apart), and the number of terms.
+func movedTerms(def *Definition, ins []identityInput, a, b *Placement) (moved, terms int) {
+	for _, in := range ins {
+		for v, ref := range in.ref {
+			if !(ref > 0) {
+				continue
+			}
+			terms++
+			vi := &def.Vials[v]
+			if dist(a.vialCentre(vi), b.vialCentre(vi)) > 0.5*vi.Radius {
+				moved++
+			}
+		}
+	}
+	return moved, terms
 }
 
 func faceText(m bool) string {

@@ -83,6 +83,7 @@ type mapScene struct {
 	plane  float64 // z of the phantom's centre plane, mm
 	snr    float64
 	seed   uint64
+	spoil  map[int]float64 // true T1 and T2 of these vials multiplied by the factor
 }
 
 const (
@@ -119,6 +120,10 @@ func (m *mapScene) paint() (t1, t2, loc *volume.Image) {
 	for i := range d.Vials {
 		v := &d.Vials[i]
 		mats[i] = mat{v.Reference["T1"][0].Value, v.Reference["T2"][0].Value, v.PD}
+		if f, ok := m.spoil[i]; ok {
+			mats[i].t1 *= f
+			mats[i].t2 *= f
+		}
 	}
 	fill := mat{d.Body.FillT1, d.Body.FillT2, d.Body.FillPD}
 	const sxy, sz = 4, 3
@@ -564,5 +569,31 @@ func TestIdentifyGrids(t *testing.T) {
 	}
 	if id := res.QA.Identity; id.Status != IdentityUndetermined || !strings.Contains(id.Reason, "different grids") || res.QA.Verdict != Undetermined {
 		t.Errorf("disagreeing grids: identity %s (%s), verdict %s", id.Status, id.Reason, res.QA.Verdict)
+	}
+}
+
+// TestIdentifyBadVials: a ring of 10 with two vials far off their
+// references (×1.6 and ×0.5: a spoilt fill) is still identified, since the
+// match measure caps each vial's mismatch; those two vials fail.
+func TestIdentifyBadVials(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 4))
+	lay := &testLayout{"ring of 10 with two spoilt vials", ringDef(10, 55, 9, false, "", rng), 1, 5}
+	for p := 0; p < 4; p++ {
+		m := randomScene(lay, rng, uint64(p))
+		m.spoil = map[int]float64{2: 1.6, 7: 0.5}
+		o := identifyScene(t, m, true)
+		if o.status != IdentityFound {
+			t.Fatalf("placement %d: identity %s (%s)", p, o.status, o.res.QA.Identity.Reason)
+		}
+		for _, v := range o.res.QA.Vials {
+			want := Pass
+			if v.ID == "V03" || v.ID == "V08" {
+				want = Fail
+			}
+			if v.Verdict != want {
+				t.Errorf("placement %d: %s %s verdict %s, want %s", p, v.ID, v.Quantity, v.Verdict, want)
+			}
+		}
+		t.Logf("placement %d: margin z %.1f", p, o.z)
 	}
 }
