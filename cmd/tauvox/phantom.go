@@ -371,7 +371,7 @@ func printQA(e *env, qa *phantom.QA, out string) {
 		for _, g := range id.Groups {
 			line := fmt.Sprintf("  identity (%s): %s", strings.Join(g.Quantities, "+"), g.Status)
 			if g.Z != nil {
-				line += fmt.Sprintf(", margin %.1f noise units over the next placement (threshold %g), %d placements", *g.Z, id.Threshold, g.Placements)
+				line += fmt.Sprintf(", %d placements measured, margin over the next %.1f × its noise spread (threshold %g)", g.Placements, *g.Z, id.Threshold)
 			}
 			if g.Reason != "" {
 				line += "; " + g.Reason

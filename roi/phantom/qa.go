@@ -87,6 +87,9 @@ type Localisation struct {
 	// Residual is the RMS distance (mm) between the vial centres found in
 	// the image and those predicted by the fitted placement.
 	Residual float64 `json:"residual_mm"`
+	// SpherePlane is the fractional slice index of the spheres' plane
+	// found from the images (absent without spheres or with one slice).
+	SpherePlane *float64 `json:"sphere_plane_slice,omitempty"`
 }
 
 // VialQA is the result of one vial for one quantity.

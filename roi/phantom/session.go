@@ -205,6 +205,10 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 		ref.Quantity = in.Quantity
 		ref.Localisation = Localisation{Center: pl.Center, Rotation: pl.Rotation, Mirrored: pl.Mirrored,
 			Slice: pl.Slice, Confidence: pl.Confidence, Method: pl.Method, Residual: pl.Residual}
+		if !math.IsNaN(pl.Plane) {
+			p := pl.Plane
+			ref.Localisation.SpherePlane = &p
+		}
 		qa.Series = append(qa.Series, ref)
 		qa.Vials = append(qa.Vials, vials...)
 	}
