@@ -597,3 +597,37 @@ func TestIdentifyBadVials(t *testing.T) {
 		t.Logf("placement %d: margin z %.1f", p, o.z)
 	}
 }
+
+// TestSphereNotInSlab: a ring of 10 spheres of which one lies 30 mm above
+// the others, outside the imaged slab: that sphere is not measured (noted
+// not in the imaged slab, not a failure), the others are identified and
+// pass. The images cannot tell the ring's 20 placements apart (the missing
+// sphere is just not seen), so all 20 are candidates.
+func TestSphereNotInSlab(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 8))
+	d := ringDef(10, 55, 9, false, ShapeSphere, rng)
+	d.Body.Length = 100
+	d.Vials[0].Z = 30
+	if n := len(d.Symmetries()); n != 20 {
+		t.Errorf("%d symmetries, want 20", n)
+	}
+	lay := &testLayout{"ring of 10 spheres, one out of the slab", d, 3, 4}
+	for p := 0; p < 4; p++ {
+		m := randomScene(lay, rng, uint64(p))
+		o := identifyScene(t, m, true)
+		if o.status != IdentityFound {
+			t.Fatalf("placement %d (%+v): identity %s (%s)", p, *m, o.status, o.res.QA.Identity.Reason)
+		}
+		for _, v := range o.res.QA.Vials {
+			switch {
+			case v.ID == "V01" && (v.Verdict != NotMeasured || v.Note != NotInSlab):
+				t.Errorf("V01 %s: verdict %s note %q", v.Quantity, v.Verdict, v.Note)
+			case v.ID != "V01" && v.Verdict != Pass:
+				t.Errorf("%s %s: verdict %s (%s)", v.ID, v.Quantity, v.Verdict, v.Note)
+			}
+		}
+		if o.res.QA.Verdict != Pass {
+			t.Errorf("session verdict %s", o.res.QA.Verdict)
+		}
+	}
+}

@@ -36,7 +36,7 @@ type Placement struct {
 	// Plane is the fractional slice index of the spheres' plane when it
 	// was found from the images (NaN otherwise).
 	Plane float64
-	// zbar is the spheres' mean z (mm), the definition's height of Plane.
+	// zbar is the height (z_mm) of the spheres' plane (hasSpheres).
 	zbar float64
 	// alts are the other distinct placements of nearly the best contrast
 	// (at least altFraction of it), for the identity step.

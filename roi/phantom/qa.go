@@ -138,7 +138,9 @@ func Judge(r *VialQA, v *Vial, tol map[string]Tolerance, field, temp float64, ex
 	}
 	r.Tolerance = math.Max(t.Pct/100*ref, t.Abs)
 	if r.N < minN || math.IsNaN(r.Median) {
-		r.Note = fmt.Sprintf("%d usable voxels", r.N)
+		if r.Note == "" {
+			r.Note = fmt.Sprintf("%d usable voxels", r.N)
+		}
 		return nil
 	}
 	r.Deviation = 100 * (r.Median - ref) / ref

@@ -90,21 +90,28 @@ func SphereRegion(im *volume.Image, c, n [3]float64, r, frac float64) (idx []int
 	return idx, used, rmin
 }
 
-// hasSpheres reports whether any vial of def is a sphere, and the mean z
-// of the spheres (their plane when they share one).
+// hasSpheres reports whether any vial of def is a sphere, and the height
+// of the spheres' plane: the z_mm shared by most spheres (the smallest in
+// size among equally common ones). A slab usually images one layer of
+// spheres; with several layers the commonest is taken to be the one
+// imaged.
 func (d *Definition) hasSpheres() (bool, float64) {
-	var s float64
-	n := 0
+	count := map[float64]int{}
 	for i := range d.Vials {
 		if d.Vials[i].IsSphere() {
-			s += d.Vials[i].Z
-			n++
+			count[d.Vials[i].Z]++
 		}
 	}
-	if n == 0 {
+	if len(count) == 0 {
 		return false, 0
 	}
-	return true, s / float64(n)
+	best, bn := 0.0, -1
+	for z, n := range count {
+		if n > bn || n == bn && (math.Abs(z) < math.Abs(best) || math.Abs(z) == math.Abs(best) && z < best) {
+			best, bn = z, n
+		}
+	}
+	return true, best
 }
 
 // locatePlane finds the plane of the spheres along the slice normal when
@@ -113,7 +120,7 @@ func (d *Definition) hasSpheres() (bool, float64) {
 // the best slice and its two neighbours gives the peak to a fraction of a
 // slice (the vertex of the parabola through three points, within a slice
 // of the best). The placement's centre moves along the normal so
-// that the spheres' mean z lies on that plane. It returns the plane's
+// that the spheres' plane height (hasSpheres) lies on it. It returns the plane's
 // fractional slice index.
 func locatePlane(sc *scorer, pl *Placement, zbar float64) float64 {
 	sl := sc.sl
@@ -141,7 +148,7 @@ func locatePlane(sc *scorer, pl *Placement, zbar float64) float64 {
 			plane = math.Max(float64(best)-1, math.Min(float64(best)+1, v))
 		}
 	}
-	// Move the centre onto the plane, then back by the spheres' mean z.
+	// Move the centre onto the plane, then back by the plane's height.
 	inv := sl.inv
 	ci, cj, _ := inv.Apply(pl.Center[0], pl.Center[1], pl.Center[2])
 	x, y, z := sl.im.Affine.Apply(ci, cj, plane)

@@ -6,9 +6,13 @@ import (
 )
 
 // Symmetry is a turn of the phantom's plane about its centre, after an
-// optional turn face down (x → −x, z → −z), that carries the vial layout
-// onto itself: every vial lands on a vial of the same shape and radius.
-// Perm[i] is the vial that vial i lands on.
+// optional turn face down (x → −x, z → −z), that carries the vial layout,
+// as a slice sees it, onto itself: every vial's circle (centre x, y and
+// radius) lands on another's. Heights and shapes are left aside: a slice
+// through a sphere's centre shows the same circle as a cylinder, and a
+// vial outside the imaged slab shows nothing, so the images cannot rule
+// such placements out; the values decide. Perm[i] is the vial that vial i
+// lands on.
 type Symmetry struct {
 	Rotation float64 // degrees, counter-clockwise
 	Mirrored bool
@@ -118,24 +122,16 @@ func hasSymmetry(list []Symmetry, s *Symmetry) bool {
 func (d *Definition) landing(s *Symmetry) ([]int, bool) {
 	perm := make([]int, len(d.Vials))
 	used := make([]bool, len(d.Vials))
-	// Heights count from the spheres' plane: the images show that plane,
-	// not the phantom's centre along its axis.
-	_, zbar := d.hasSpheres()
 	for i := range d.Vials {
 		v := &d.Vials[i]
-		x, y, z := s.apply(v.X, v.Y, v.Z-zbar)
-		z += zbar
+		x, y, _ := s.apply(v.X, v.Y, 0)
 		found := -1
 		for j := range d.Vials {
 			w := &d.Vials[j]
-			if used[j] || w.IsSphere() != v.IsSphere() || math.Abs(w.Radius-v.Radius) > 0.5 {
+			if used[j] || math.Abs(w.Radius-v.Radius) > 0.5 {
 				continue
 			}
-			dz := 0.0
-			if v.IsSphere() {
-				dz = z - w.Z
-			}
-			if math.Sqrt((x-w.X)*(x-w.X)+(y-w.Y)*(y-w.Y)+dz*dz) <= symmetryTol {
+			if math.Hypot(x-w.X, y-w.Y) <= symmetryTol {
 				found = j
 				break
 			}
