@@ -631,3 +631,39 @@ func TestSphereNotInSlab(t *testing.T) {
 		}
 	}
 }
+
+// TestIdentifyTooFewVials: when fewer than three vials can be measured the
+// values cannot decide between a ring's placements: undetermined, with the
+// reason.
+func TestIdentifyTooFewVials(t *testing.T) {
+	rng := rand.New(rand.NewPCG(2, 2))
+	lay := &testLayout{"ring of 8", ringDef(8, 55, 10, false, "", rng), 1, 5}
+	m := &mapScene{lay: lay, cx: 5, cy: 5, rot: 20, snr: 60, seed: 3}
+	t1, t2, loc := m.paint()
+	// Only two vials keep fitted values.
+	pl, err := Locate(loc, lay.def, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	keep := map[int]bool{}
+	for _, v := range []int{0, 1} {
+		idx := VialRegion(t2, pl.Point(lay.def.Vials[v].X, lay.def.Vials[v].Y), pl.N, 12, []int{0})
+		for _, i := range idx {
+			keep[i] = true
+		}
+	}
+	for i := range t2.Data {
+		if !keep[i] {
+			t1.Data[i], t2.Data[i] = float32(math.NaN()), float32(math.NaN())
+		}
+	}
+	res, err := Assess(lay.def, []Input{{Quantity: "T1", Map: t1, Locator: loc}, {Quantity: "T2", Map: t2, Locator: loc}},
+		&Options{Session: Session{Field: 1.5, Temperature: 20}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	id := res.QA.Identity
+	if id.Status != IdentityUndetermined || !strings.Contains(id.Reason, "only 2 vials measured") || res.QA.Verdict != Undetermined {
+		t.Errorf("identity %s (%s), verdict %s", id.Status, id.Reason, res.QA.Verdict)
+	}
+}
