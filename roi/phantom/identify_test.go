@@ -674,3 +674,26 @@ func TestIdentifyTooFewVials(t *testing.T) {
 		t.Errorf("identity %s (%s), verdict %s", id.Status, id.Reason, res.QA.Verdict)
 	}
 }
+
+// TestSpherePlaneOffCentre: spheres whose plane lies two to three slices
+// from the middle of a 7-slice slab: the slice that shows them is found,
+// the plane located, and the ring identified.
+func TestSpherePlaneOffCentre(t *testing.T) {
+	rng := rand.New(rand.NewPCG(4, 4))
+	d := ringDef(10, 55, 9, false, ShapeSphere, rng)
+	lay := &testLayout{"ring of 10 spheres, plane off the slab's middle", d, 7, 4}
+	for p := 0; p < 6; p++ {
+		m := randomScene(lay, rng, uint64(p))
+		m.plane = float64(1-2*(p%2)) * (8 + 4*rng.Float64())
+		o := identifyScene(t, m, true)
+		if o.status != IdentityFound {
+			t.Errorf("placement %d (plane %.1f mm): identity %s (%s)", p, m.plane, o.status, o.res.QA.Identity.Reason)
+			continue
+		}
+		for _, v := range o.res.QA.Vials {
+			if v.Verdict != Pass {
+				t.Errorf("placement %d: %s %s verdict %s (%s)", p, v.ID, v.Quantity, v.Verdict, v.Note)
+			}
+		}
+	}
+}

@@ -111,6 +111,10 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 		}
 	} else if k, err = sl.bestSlice(); err != nil {
 		return nil, err
+	} else if sph, _ := def.hasSpheres(); sph && im.Dims[2] > 1 {
+		// Spheres show only on the slices near their plane, which need
+		// not be the slab's middle.
+		k = sl.busiestSlice(k)
 	}
 	sl.setSlice(k)
 	pl := &Placement{Slice: k, U: sl.u, V: sl.v, N: sl.n, Method: "found", Plane: math.NaN()}
@@ -352,6 +356,41 @@ func (s *slicer) bestSlice() (int, error) {
 		}
 	}
 	return ks[len(ks)/2], nil
+}
+
+// busiestSlice returns, among the slices whose object area is at least half
+// the largest, the one whose object voxels vary most (SD above the Otsu
+// threshold): the spheres' contrast adds to the spread where a slice cuts
+// them. It returns fallback when no slice qualifies.
+func (s *slicer) busiestSlice(fallback int) int {
+	nx, ny, nz := s.im.Dims[0], s.im.Dims[1], s.im.Dims[2]
+	area := make([]int, nz)
+	sd := make([]float64, nz)
+	top := 0
+	for k := 0; k < nz; k++ {
+		var sum, sum2 float64
+		for j := 0; j < ny; j++ {
+			for i := 0; i < nx; i++ {
+				v := float64(s.im.Data[i+nx*(j+ny*k)])
+				if v >= s.thr {
+					area[k]++
+					sum += v
+					sum2 += v * v
+				}
+			}
+		}
+		if n := float64(area[k]); n > 1 {
+			sd[k] = math.Sqrt(math.Max(0, (sum2-sum*sum/n)/(n-1)))
+		}
+		top = max(top, area[k])
+	}
+	best := fallback
+	for k := 0; k < nz; k++ {
+		if 2*area[k] >= top && sd[k] > sd[best] {
+			best = k
+		}
+	}
+	return best
 }
 
 // Slices returns the slices whose object area is at least frac of the
