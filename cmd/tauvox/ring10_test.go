@@ -127,6 +127,14 @@ func TestPhantomBadDefinition(t *testing.T) {
 		{"z-inf", def(vial("A", 0, `,"z_mm":1e999`)), "z_mm"},
 		{"z-text", def(vial("A", 0, `,"z_mm":"NaN"`)), "z_mm"},
 	}
+	// Bad --face values are usage errors too.
+	for _, args := range [][]string{{"--face", "sideways"}, {"--face", "up", "--mirrored"}} {
+		out := filepath.Join(t.TempDir(), "qa")
+		code, _, stderr := tauvox(t, append([]string{"phantom", t2, "--def", "demo", "--temperature", "20", "--out", out}, args...)...)
+		if code != 2 || !strings.Contains(stderr, "--face") {
+			t.Errorf("%v: exit %d, stderr %q", args, code, stderr)
+		}
+	}
 	for _, c := range cases {
 		dir := t.TempDir()
 		path := filepath.Join(dir, c.name+".json")
