@@ -39,8 +39,12 @@ type Result struct {
 	Slices     [][]int
 }
 
-// Assess localises the phantom in every input, measures each vial and
-// judges it against the definition. It returns an error for a temperature
+// Assess localises the phantom once per grid (maps on one grid share it),
+// tells the vials apart by their values over every placement the layout's
+// symmetry allows (identify; QA.Identity reports how), measures each vial
+// and judges it against the definition. When the identity is undetermined
+// every measured vial gets the verdict Undetermined, as do vials whose
+// references another vial shares. It returns an error for a temperature
 // outside a reference table (unless Extrapolate), maps whose grids differ
 // from their locator or status, or a phantom that cannot be found.
 func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
@@ -82,21 +86,7 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 			return nil, fmt.Errorf("%s: status map has %d voxels, the %s map %d", in.Ref.Map, len(in.Status), in.Quantity, in.Map.Voxels())
 		}
 	}
-	// Maps on one grid get one identity.
-	var groups [][]int
-	for i, in := range inputs {
-		found := false
-		for g := range groups {
-			if volume.SameGrid(inputs[groups[g][0]].Map, in.Map, 1e-3) {
-				groups[g] = append(groups[g], i)
-				found = true
-				break
-			}
-		}
-		if !found {
-			groups = append(groups, []int{i})
-		}
-	}
+	groups := groupByGrid(inputs)
 	id := &Identity{Status: IdentityFound, Measure: MatchMeasure, Threshold: IdentityThreshold}
 	measured := make([][]VialQA, len(inputs))
 	var chosen []*Placement
@@ -139,36 +129,7 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 		chosen = append(chosen, p)
 		id.Groups = append(id.Groups, ig)
 	}
-	for g := 1; g < len(chosen); g++ {
-		if !agree(def, chosen[0], chosen[g]) {
-			for k := range id.Groups {
-				id.Groups[k].Status = IdentityUndetermined
-			}
-			id.Status = IdentityUndetermined
-			id.Reason = fmt.Sprintf("the %s and %s maps lie on different grids and their identities put the vials in different places",
-				strings.Join(id.Groups[0].Quantities, "+"), strings.Join(id.Groups[g].Quantities, "+"))
-		}
-	}
-	if id.Status != IdentityUndetermined {
-		given := true
-		for _, ig := range id.Groups {
-			switch ig.Status {
-			case IdentityUndetermined:
-				id.Status, id.Reason = IdentityUndetermined, ig.Reason
-			case IdentityFound:
-				given = false
-			}
-		}
-		if id.Status != IdentityUndetermined {
-			if given {
-				id.Status = IdentityGiven
-			}
-			id.Reason = id.Groups[0].Reason
-		}
-	}
-	if id.Status == IdentityUndetermined {
-		id.Fix = fixHint
-	}
+	settle(id, def, chosen)
 	qa.Identity = id
 	// Vials of the same values are ambiguous wherever the values decide.
 	var tw map[int][]string
@@ -214,4 +175,60 @@ func Assess(def *Definition, inputs []Input, opt *Options) (*Result, error) {
 	}
 	qa.Verdict = Overall(qa.Vials)
 	return res, nil
+}
+
+// groupByGrid returns the indices of the inputs by grid: maps on one grid
+// get one identity.
+func groupByGrid(inputs []Input) [][]int {
+	var groups [][]int
+	for i, in := range inputs {
+		found := false
+		for g := range groups {
+			if volume.SameGrid(inputs[groups[g][0]].Map, in.Map, 1e-3) {
+				groups[g] = append(groups[g], i)
+				found = true
+				break
+			}
+		}
+		if !found {
+			groups = append(groups, []int{i})
+		}
+	}
+	return groups
+}
+
+// settle sets the session's identity from its groups': undetermined when
+// any group is, or when groups on different grids place the vials
+// differently; given when every group's was given; found otherwise.
+func settle(id *Identity, def *Definition, chosen []*Placement) {
+	for g := 1; g < len(chosen); g++ {
+		if !agree(def, chosen[0], chosen[g]) {
+			for k := range id.Groups {
+				id.Groups[k].Status = IdentityUndetermined
+			}
+			id.Status = IdentityUndetermined
+			id.Reason = fmt.Sprintf("the %s and %s maps lie on different grids and their identities put the vials in different places",
+				strings.Join(id.Groups[0].Quantities, "+"), strings.Join(id.Groups[g].Quantities, "+"))
+		}
+	}
+	if id.Status != IdentityUndetermined {
+		given := true
+		for _, ig := range id.Groups {
+			switch ig.Status {
+			case IdentityUndetermined:
+				id.Status, id.Reason = IdentityUndetermined, ig.Reason
+			case IdentityFound:
+				given = false
+			}
+		}
+		if id.Status != IdentityUndetermined {
+			if given {
+				id.Status = IdentityGiven
+			}
+			id.Reason = id.Groups[0].Reason
+		}
+	}
+	if id.Status == IdentityUndetermined {
+		id.Fix = fixHint
+	}
 }
