@@ -150,10 +150,11 @@ printed. Exit code 1 when any vial fails or is undetermined.
 	if !a.quiet {
 		printQA(e, qa, a.out)
 	}
-	if id := qa.Identity; id != nil && id.Status == phantom.IdentityUndetermined {
-		fmt.Fprintf(e.stderr, "tauvox phantom: identity undetermined: %s; to fix: %s\n", id.Reason, id.Fix)
+	undetermined := qa.Identity != nil && qa.Identity.Status == phantom.IdentityUndetermined
+	if undetermined {
+		fmt.Fprintf(e.stderr, "tauvox phantom: identity undetermined: %s; to fix: %s\n", qa.Identity.Reason, qa.Identity.Fix)
 	}
-	if qa.Verdict == phantom.Fail || qa.Verdict == phantom.Undetermined {
+	if qa.Verdict == phantom.Fail || qa.Verdict == phantom.Undetermined || undetermined {
 		return &exitError{code: 1}
 	}
 	return nil

@@ -285,7 +285,9 @@ func matchCost(meas [][]VialQA, ins []identityInput, minN int) (cost float64, n 
 		}
 	}
 	if terms == 0 {
-		return math.Inf(1), 0
+		// Nothing to compare: every placement matches alike (n = 0 makes
+		// the identity undetermined when there is a choice).
+		return 0, 0
 	}
 	return s / float64(terms), len(measured)
 }
