@@ -27,6 +27,7 @@ import (
 
 type phantomArgs struct {
 	def, out, scanner, date, clock string
+	face                           string
 	temp, field, rotation, frac    float64
 	center                         vecFlag
 	centerSet, rotSet              bool
@@ -76,7 +77,11 @@ vial (median, mean, SD over a cylinder of --roi-fraction of its radius through
 the phantom's interior slices), compares it with the reference interpolated
 to the session's temperature and field, and writes qa.json, qa.csv and
 report.html into DIR. A vial passes when |median − reference| ≤ max(pct %,
-abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
+abs_ms) of the definition's tolerance. The vials are told apart by their
+values: every placement the layout's symmetry allows is measured and the
+one matching the references best is taken when it wins by a clear margin;
+otherwise every vial is undetermined (no pass or fail) and the reason is
+printed. Exit code 1 when any vial fails or is undetermined.
 --def demo uses the built-in definition of the invented demo phantom.`, e)
 	fs.StringVar(&a.def, "def", "", "phantom definition (JSON, format tauvox-phantom/1) or \"demo\" (required)")
 	fs.Var(optFloat{&a.temp, &tempSet}, "temperature", "phantom temperature, °C (required)")
@@ -88,7 +93,8 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	fs.StringVar(&a.clock, "time", "", "session time HH:MM (default: acquisition time)")
 	fs.Var(setVec{&a.center, &a.centerSet}, "center", "phantom centre x,y,z in scanner RAS mm (default: found)")
 	fs.Var(optFloat{&a.rotation, &a.rotSet}, "rotation", "phantom rotation in the slice plane, degrees (default: found)")
-	fs.BoolVar(&a.mirrored, "mirrored", false, "with --rotation: the phantom lies face down")
+	fs.StringVar(&a.face, "face", "", "up or down: the phantom's face (default: found)")
+	fs.BoolVar(&a.mirrored, "mirrored", false, "the phantom lies face down (the same as --face down)")
 	fs.BoolVar(&a.extrapolate, "extrapolate", false, "allow a temperature outside the reference tables")
 	fs.Float64Var(&a.frac, "roi-fraction", phantom.DefaultROIFraction, "measurement radius as a fraction of the vial radius")
 	fs.BoolVar(&a.quiet, "quiet", false, "print nothing on success")
@@ -108,6 +114,13 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 		return errors.New("--out is required")
 	case !(a.frac > 0 && a.frac <= 1):
 		return errors.New("--roi-fraction must be in (0, 1]")
+	case a.face != "" && a.face != "up" && a.face != "down":
+		return fmt.Errorf("--face %q: want up or down", a.face)
+	case a.mirrored && a.face == "up":
+		return errors.New("--mirrored contradicts --face up")
+	}
+	if a.mirrored {
+		a.face = "down"
 	}
 	if !fieldSet {
 		a.field = math.NaN()
@@ -156,7 +169,11 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	if !a.quiet {
 		printQA(e, qa, a.out)
 	}
-	if qa.Verdict == phantom.Fail {
+	undetermined := qa.Identity != nil && qa.Identity.Status == phantom.IdentityUndetermined
+	if undetermined {
+		fmt.Fprintf(e.stderr, "tauvox phantom: identity undetermined: %s; to fix: %s\n", qa.Identity.Reason, qa.Identity.Fix)
+	}
+	if qa.Verdict == phantom.Fail || qa.Verdict == phantom.Undetermined || undetermined {
 		return &exitError{code: 1}
 	}
 	return nil
@@ -229,8 +246,12 @@ func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result
 		opt.Locate.Center = &c
 	}
 	if a.rotSet {
-		r, m := a.rotation, a.mirrored
-		opt.Locate.Rotation, opt.Locate.Mirrored = &r, &m
+		r := a.rotation
+		opt.Locate.Rotation = &r
+	}
+	if a.face != "" {
+		m := a.face == "down"
+		opt.Locate.Mirrored = &m
 	}
 	res, err := phantom.Assess(def, inputs, opt)
 	if err != nil {
@@ -363,8 +384,20 @@ func printQA(e *env, qa *phantom.QA, out string) {
 	fmt.Fprintf(e.stdout, "%s, %s %s, %g T, %g °C: %s\n", s.Phantom, s.Scanner, strings.TrimSpace(s.Date+" "+s.Time), s.Field, s.Temperature, strings.ToUpper(qa.Verdict))
 	for _, sr := range qa.Series {
 		l := sr.Localisation
-		fmt.Fprintf(e.stdout, "  %s: phantom at (%.1f, %.1f, %.1f) mm, turned %.1f°%s, slice %d, confidence %.2f\n",
-			sr.Quantity, l.Center[0], l.Center[1], l.Center[2], l.Rotation, map[bool]string{true: ", face down"}[l.Mirrored], l.Slice, l.Confidence)
+		fmt.Fprintf(e.stdout, "  %s: phantom at (%.1f, %.1f, %.1f) mm, turned %.1f°, face %s, slice %d, geometric residual %s mm\n",
+			sr.Quantity, l.Center[0], l.Center[1], l.Center[2], l.Rotation, map[bool]string{true: "down", false: "up"}[l.Mirrored], l.Slice, fmtNum(l.Residual, 2))
+	}
+	if id := qa.Identity; id != nil {
+		for _, g := range id.Groups {
+			line := fmt.Sprintf("  identity (%s): %s", strings.Join(g.Quantities, "+"), g.Status)
+			if g.Z != nil {
+				line += fmt.Sprintf(", %d placements measured, margin over the next %.1f × its noise spread (threshold %g)", g.Placements, *g.Z, id.Threshold)
+			}
+			if g.Reason != "" {
+				line += "; " + g.Reason
+			}
+			fmt.Fprintln(e.stdout, line)
+		}
 	}
 	fmt.Fprintf(e.stdout, "  %-5s %-3s %9s %9s %8s %6s  %s\n", "vial", "q", "median", "ref", "dev %", "tol", "verdict")
 	for _, v := range qa.Vials {
