@@ -145,8 +145,17 @@ func newFixtures(t *testing.T) *fixtures {
 	if code, _, e := tauvox(t, "fit", f.nii, "--model", "t2", "--out", f.maps, "--quiet"); code != 0 {
 		t.Fatal(e)
 	}
+	// The QA session comes from a full-size simulation (the 16×16 maps hold
+	// too few vials for their identity to be told): 96×96, one slice.
+	qsim := f.path("qsim")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t2", "--out", qsim, "--slices", "1"); code != 0 {
+		t.Fatal(e)
+	}
+	if code, _, e := tauvox(t, "fit", filepath.Join(qsim, "t2.nii.gz"), "--model", "t2", "--out", f.path("qmaps"), "--quiet", "--no-preview"); code != 0 {
+		t.Fatal(e)
+	}
 	qa := f.path("qa")
-	if code, _, e := tauvox(t, "phantom", f.maps, "--def", "demo", "--temperature", "20", "--date", "2026-05-01", "--out", qa); code > 1 {
+	if code, _, e := tauvox(t, "phantom", f.path("qmaps"), "--def", "demo", "--temperature", "20", "--date", "2026-05-01", "--out", qa); code > 1 {
 		t.Fatal(e)
 	}
 	f.qa = filepath.Join(qa, "qa.json")

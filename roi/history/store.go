@@ -245,19 +245,11 @@ func ParseQA(b []byte, name string) (*phantom.QA, error) {
 	if err := json.Unmarshal(b, &qa); err != nil {
 		return nil, fmt.Errorf("%s: %v", name, err)
 	}
-	s := qa.Session
-	switch {
-	case strings.TrimSpace(s.Scanner) == "":
-		return nil, fmt.Errorf("%s: session has no scanner", name)
-	case len(s.Date) != 10:
-		return nil, fmt.Errorf("%s: session date %q, want YYYY-MM-DD", name, s.Date)
-	case strings.TrimSpace(s.Phantom) == "":
-		return nil, fmt.Errorf("%s: session has no phantom name", name)
-	case len(qa.Vials) == 0:
-		return nil, fmt.Errorf("%s: no vial results", name)
+	if err := phantom.Validate(&qa); err != nil {
+		return nil, fmt.Errorf("%s: %v", name, err)
 	}
-	if _, err := time.Parse("2006-01-02", s.Date); err != nil {
-		return nil, fmt.Errorf("%s: session date %q is not a date", name, s.Date)
+	if qa.Verdict == phantom.Undetermined {
+		return nil, fmt.Errorf("%s: the vials of this session could not be told apart (verdict undetermined), so its values belong to no vial; give the phantom's rotation and face to tauvox phantom and record the new qa.json", name)
 	}
 	return &qa, nil
 }
