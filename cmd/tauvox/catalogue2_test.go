@@ -362,3 +362,32 @@ func TestEmptyOutputAccepted(t *testing.T) {
 		t.Error(err)
 	}
 }
+
+// TestHistoryReadersLeaveNothing: history list, export and chart leave no
+// -wal or -shm file beside the database (they open it allowing no change,
+// so the last connection folds the log back and removes them), nor does the
+// demo in its output folder.
+func TestHistoryReadersLeaveNothing(t *testing.T) {
+	f := newFixtures(t)
+	for _, args := range [][]string{
+		{"history", "list", "--db", f.db},
+		{"history", "export", "--db", f.db, "--out", f.path("e.csv")},
+		{"history", "chart", "--db", f.db, "--out", f.path("charts")},
+	} {
+		if code, _, e := tauvox(t, args...); code > 1 {
+			t.Fatalf("%v: exit %d: %s", args, code, e)
+		}
+		for _, ext := range []string{"-wal", "-shm"} {
+			if _, err := os.Stat(f.db + ext); err == nil {
+				t.Errorf("%v left %s", args, filepath.Base(f.db+ext))
+			}
+		}
+	}
+	out := f.path("demo")
+	if code, _, e := tauvox(t, "demo", "--out", out, "--sessions", "3"); code > 1 {
+		t.Fatalf("demo: exit %d: %s", code, e)
+	}
+	if m, _ := filepath.Glob(filepath.Join(out, "*-[ws][ah][lm]")); len(m) > 0 {
+		t.Errorf("demo left %v", m)
+	}
+}

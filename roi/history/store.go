@@ -107,7 +107,18 @@ func Open(path string, opt *Options) (*Store, error) {
 	}
 	dsn := fmt.Sprintf("file:%s?_pragma=busy_timeout(%d)&_pragma=foreign_keys(1)&_txlock=immediate", path, bt.Milliseconds())
 	if opt.ReadOnly {
-		dsn += "&mode=ro"
+		if writable(path) {
+			// Opened for reading and writing but allowed no change, so that
+			// the last connection folds the write-ahead log back into the
+			// file and removes the -wal and -shm files when it closes (a
+			// mode=ro connection cannot, and leaves them beside the
+			// database).
+			dsn += "&_pragma=query_only(1)"
+		} else {
+			// A read-only medium (or file): nothing can change the file, and
+			// nothing beside it can be created; SQLite reads it as immutable.
+			dsn += "&mode=ro&immutable=1"
+		}
 	}
 	db, err := sql.Open("sqlite", dsn)
 	if err != nil {
