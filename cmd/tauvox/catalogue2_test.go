@@ -391,3 +391,40 @@ func TestHistoryReadersLeaveNothing(t *testing.T) {
 		t.Errorf("demo left %v", m)
 	}
 }
+
+// TestNoEscapesToTerminal: escape sequences in a qa.json's scanner,
+// phantom, vial id and tool version (text from files) reach the terminal
+// through no history command: history add, list and chart print them
+// through printable (U+FFFD for control characters).
+func TestNoEscapesToTerminal(t *testing.T) {
+	f := newFixtures(t)
+	b, _ := os.ReadFile(f.qa)
+	var q map[string]any
+	if err := json.Unmarshal(b, &q); err != nil {
+		t.Fatal(err)
+	}
+	const esc = "\x1b]0;owned\x07\x1b[2J"
+	q["session"].(map[string]any)["scanner"] = "MR" + esc
+	q["session"].(map[string]any)["phantom"] = "P" + esc
+	q["tool"].(map[string]any)["version"] = "v" + esc
+	for _, v := range q["vials"].([]any) {
+		m := v.(map[string]any)
+		m["id"] = m["id"].(string) + esc
+	}
+	out, _ := json.Marshal(q)
+	hostile := f.write(t, "hostile.json", out)
+	db := f.path("hostile.db")
+	for _, args := range [][]string{
+		{"history", "add", "--db", db, hostile},
+		{"history", "list", "--db", db},
+		{"history", "chart", "--db", db, "--out", f.path("hc")},
+	} {
+		code, stdout, stderr := tauvox(t, args...)
+		if code > 1 {
+			t.Fatalf("%v: exit %d: %s", args, code, stderr)
+		}
+		if strings.ContainsAny(stdout+stderr, "\x1b\x07") {
+			t.Errorf("%v: an escape reached the output: %q", args, stdout+stderr)
+		}
+	}
+}

@@ -140,7 +140,7 @@ verdict table and the drift table.`, e)
 	if err != nil {
 		return err
 	}
-	sum, err := writeCharts(a.out, ss, a.settings(), "history.db")
+	sum, err := writeCharts(ctx, a.out, ss, a.settings(), "history.db")
 	if err != nil {
 		return err
 	}

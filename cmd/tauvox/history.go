@@ -134,7 +134,7 @@ func historyList(ctx context.Context, args []string, e *env) error {
 	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "id\tscanner\tacquired\tphantom\tfield T\ttemp °C\tresults\tfailed\ttool")
 	for _, si := range list {
-		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%g\t%g\t%d\t%d\t%s\n", si.ID, oneLine(si.Scanner), si.Acquired, oneLine(si.Phantom), si.Field, si.Temperature, si.Vials, si.Failed, si.Tool)
+		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%g\t%g\t%d\t%d\t%s\n", si.ID, oneLine(si.Scanner), oneLine(si.Acquired), oneLine(si.Phantom), si.Field, si.Temperature, si.Vials, si.Failed, oneLine(si.Tool))
 	}
 	tw.Flush()
 	fmt.Fprintf(e.stdout, "%d sessions\n", len(list))
@@ -179,7 +179,17 @@ func historyExport(ctx context.Context, args []string, e *env) error {
 	}
 	w.Flush()
 	if out == "" {
-		_, err := e.stdout.Write(b.Bytes())
+		data := b.Bytes()
+		if isTerminal(e.stdout) {
+			// Text from qa.json files never reaches a terminal raw; a
+			// pipe or file gets the exact CSV.
+			lines := strings.Split(b.String(), "\n")
+			for i := range lines {
+				lines[i] = printable(lines[i])
+			}
+			data = []byte(strings.Join(lines, "\n"))
+		}
+		_, err := e.stdout.Write(data)
 		return err
 	}
 	return series.WriteFileAtomic(out, b.Bytes())
@@ -255,7 +265,7 @@ func driftTable(e *env, ss []*history.Series) {
 		if f == history.FindingTooFew {
 			f = fmt.Sprintf("not enough sessions (%d of %d)", s.Sessions, s.MinSessions)
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%s\t%s\t[%s, %s]\t%s\t%s\t\n", oneLine(s.Scanner), s.Vial, s.Quantity, len(s.Points),
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%s\t%s\t[%s, %s]\t%s\t%s\t\n", oneLine(s.Scanner), oneLine(s.Vial), oneLine(s.Quantity), len(s.Points),
 			fmtNum(s.BaselineMean, 2), fmtNum(s.Value[len(s.Value)-1], 2), fmtNum(s.Slope, 2), fmtNum(s.SlopeLow, 2), fmtNum(s.SlopeHigh, 2), strings.Join(v, ";"), f)
 	}
 	tw.Flush()

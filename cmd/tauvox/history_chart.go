@@ -129,7 +129,7 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 		return err
 	}
 	defer st.Abort()
-	sum, err := writeCharts(st.Path(""), ss, a.settings(), filepath.Base(a.db))
+	sum, err := writeCharts(ctx, st.Path(""), ss, a.settings(), filepath.Base(a.db))
 	if err != nil {
 		return err
 	}
@@ -138,7 +138,7 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	}
 	driftTable(e, ss)
 	fmt.Fprintf(e.stdout, "wrote %s (index.html, drift.csv, charts)\n", a.out)
-	fmt.Fprintln(e.stdout, report.HistoryHeadline(sum))
+	fmt.Fprintln(e.stdout, oneLine(report.HistoryHeadline(sum)))
 	return chartExit(sum, a.strict, filepath.Join(a.out, report.HistoryIndex))
 }
 
@@ -156,9 +156,9 @@ func chartExit(sum *report.HistorySummary, strict bool, see string) error {
 
 // writeCharts writes the charts, index.html and drift.csv of ss into the
 // existing folder dir and returns the summary.
-func writeCharts(dir string, ss []*history.Series, set *history.Settings, source string) (*report.HistorySummary, error) {
+func writeCharts(ctx context.Context, dir string, ss []*history.Series, set *history.Settings, source string) (*report.HistorySummary, error) {
 	if err := mkdirAll(dir); err != nil {
 		return nil, err
 	}
-	return report.WriteHistory(dir, ss, &report.HistoryOptions{Settings: set, Source: source, Tool: "tauvox " + version()})
+	return report.WriteHistory(dir, ss, &report.HistoryOptions{Settings: set, Source: source, Tool: "tauvox " + version(), Context: ctx})
 }
