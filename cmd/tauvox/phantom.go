@@ -351,12 +351,8 @@ func parseAcquired(s string) (time.Time, bool) {
 	return time.Time{}, false
 }
 
-func fmtNum(v float64, prec int) string {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return ""
-	}
-	return fmt.Sprintf("%.*f", prec, v)
-}
+// fmtNum formats a table cell (output.Num).
+func fmtNum(v float64, prec int) string { return output.Num(v, prec) }
 
 // qaCSV renders the per-vial results; times in ms.
 func qaCSV(qa *phantom.QA) []byte {
