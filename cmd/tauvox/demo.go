@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -13,8 +12,8 @@ import (
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/pipeline"
+	"github.com/tauvox/tauvox/internal/qarun"
 	"github.com/tauvox/tauvox/internal/report"
-	"github.com/tauvox/tauvox/io/sidecar"
 	"github.com/tauvox/tauvox/roi/history"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
@@ -88,24 +87,19 @@ verdict table and the drift table.`, e)
 			}
 			fits = append(fits, fitDir)
 		}
-		pa := &phantomArgs{def: "demo", temp: temp, field: math.NaN(), frac: phantom.DefaultROIFraction}
-		qa, res, inputs, def, err := assessPhantom(pa, fits)
+		qs, err := qarun.Assess(&qarun.Config{Def: "demo", Maps: fits, Options: phantom.Options{
+			Session: phantom.Session{Temperature: temp, Field: math.NaN()}, ROIFraction: phantom.DefaultROIFraction,
+			Tool: phantom.Tool{Name: "tauvox", Version: version()}}})
 		if err != nil {
 			return err
 		}
+		qa := qs.QA
 		qaDir := st.Path(filepath.Join(dir, "qa"))
 		if err := mkdirAll(qaDir); err != nil {
 			return err
 		}
-		b, err := json.MarshalIndent(qa, "", "  ")
+		b, err := qs.JSON()
 		if err != nil {
-			return fmt.Errorf("%s: qa.json: %v", qaDir, err)
-		}
-		b = append(sidecar.Tidy(b), '\n')
-		if err := output.WriteFile(filepath.Join(qaDir, "qa.json"), b); err != nil {
-			return err
-		}
-		if err := output.WriteFile(filepath.Join(qaDir, "qa.csv"), qaCSV(qa)); err != nil {
 			return err
 		}
 		if _, err := db.Add(ctx, b, filepath.Join(dir, "qa", "qa.json")); err != nil {
@@ -113,12 +107,11 @@ verdict table and the drift table.`, e)
 		}
 		// The report shows a passing vial that its history so far flags
 		// as warn.
-		pts, err := db.Points(ctx, qa.Session.Scanner)
+		hist, err := qs.HistoryFlags(ctx, db, true)
 		if err != nil {
 			return err
 		}
-		hist := report.HistoryFlags(history.Analyse(pts, nil))
-		if err := writeReport(filepath.Join(qaDir, "report.html"), qa, res, inputs, def.Tolerance, hist); err != nil {
+		if err := qs.Write(qaDir, hist); err != nil {
 			return err
 		}
 		fmt.Fprintf(e.stdout, "session %2d  %s  %4.1f °C  phantom at (%5.1f, %5.1f) mm, %5.1f°: %s\n", n+1, when.Format("2006-01-02"), temp,
