@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
 	"math"
 	"strings"
@@ -10,7 +9,6 @@ import (
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/internal/pipeline"
-	"github.com/tauvox/tauvox/io/sidecar"
 )
 
 const validateSummary = `Monte Carlo study of a model and protocol: for every true time constant,
@@ -36,7 +34,7 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 		te, ti, tr, fa, t2, t2s, t1    listFlag
 	)
 	fs := newFlags("validate", "--model M [--snr S] [--t2 LIST | --t1 LIST] [options]", validateSummary, e)
-	fs.StringVar(&model, "model", "", "signal model: "+strings.Join(validModels(), ", ")+" (required)")
+	fs.StringVar(&model, "model", "", "signal model: "+strings.Join(pipeline.StudyModels(), ", ")+" (required)")
 	fs.StringVar(&method, "method", "", "estimation method (default: the model's first)")
 	fs.BoolVar(&efficiency, "efficiency", false, "t1-sr: fit the saturation efficiency")
 	fs.Var(&te, "te", "echo times, ms")
@@ -70,73 +68,39 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 	case plotFile != "" && !strings.HasSuffix(strings.ToLower(plotFile), ".svg") && !strings.HasSuffix(strings.ToLower(plotFile), ".png"):
 		return fmt.Errorf("--plot must name a .svg or .png file")
 	}
-	info, ok := fit.Lookup(model)
-	if !ok || info.Simulate == nil || info.Simulate.Truth == "" {
-		return fmt.Errorf("validate supports models %s, not %q", strings.Join(validModels(), ", "), model)
-	}
-	def := info.Simulate.Truth
-	m0, err := fit.New(fit.Spec{Model: model})
-	if err != nil {
-		return err
-	}
-	first := m0.Outputs()[0].Name // T2, T2star or T1
-	quantity := strings.Replace(first, "star", "*", 1)
-	truthFlag := map[string]*listFlag{"T2": &t2, "T2star": &t2s, "T1": &t1}[first]
-	if truthFlag == nil {
-		return fmt.Errorf("validate has no flag for the true %s values of model %s", first, model)
-	}
-	for name, f := range map[string]*listFlag{"t2": &t2, "t2star": &t2s, "t1": &t1} {
-		if f.set && f != truthFlag {
-			return fmt.Errorf("--%s does not apply to model %s (give the %s values)", name, model, quantity)
+	study := &pipeline.Study{Model: model, Method: method, Efficiency: efficiency, Truth: map[string][]float64{},
+		TE: te.list(), TI: ti.list(), TR: tr.list(), FA: fa.list(), SNR: snr, Noise: noise, Trials: trials, Seed: seed, Workers: workers}
+	for name, f := range map[string]*listFlag{"T2": &t2, "T2star": &t2s, "T1": &t1} {
+		if f.set {
+			study.Truth[name] = f.list()
 		}
 	}
-	truth := truthFlag.list()
-	if truth == nil {
-		truth, _ = sidecar.ParseList(def)
-	}
-	acq := info.Simulate.Acq()
-	if acq, err = pipeline.OverrideProtocol(acq, te.list(), ti.list(), tr.list(), fa.list()); err != nil {
-		return err
-	}
-	m, err := fit.New(fit.Spec{Model: model, Method: method, Efficiency: efficiency})
+	r, err := study.Run(ctx)
 	if err != nil {
 		return err
-	}
-	nz := fit.GaussianNoise
-	if noise == "rician" {
-		nz = fit.RicianNoise
-	}
-	v := &fit.Validation{Model: m, Acq: acq, Truth: truth, SNR: snr, Noise: nz, Trials: trials, Seed: seed, Workers: workers}
-	rows, err := fit.Validate(ctx, v)
-	if err != nil {
-		return fmt.Errorf("model %s: %v", model, err)
 	}
 	if plotFile != "" {
-		if err := pipeline.ValidationPlot(plotFile, rows, m, quantity, snr, noise); err != nil {
+		if err := r.Plot(plotFile); err != nil {
 			return err
 		}
 	}
 	if jsonOut {
-		out := map[string]any{
-			"format": "tauvox-validation/1", "model": m.Name(), "method": m.Method(), "snr": snr, "noise": noise,
-			"trials": trials, "seed": seed, "quantity": quantity, "protocol": pipeline.ProtocolRecords(acq),
-			"crlb": "Gaussian-noise Cramér–Rao bound", "rows": pipeline.JSONRows(rows),
-		}
-		b, err := json.MarshalIndent(out, "", "  ")
+		b, err := r.JSON()
 		if err != nil {
 			return err
 		}
 		_, err = fmt.Fprintln(e.stdout, string(b))
 		return err
 	}
+	m, acq, quantity := r.Model, r.Acq, r.Quantity
 	fmt.Fprintf(e.stdout, "%s/%s, %d points, SNR %g (σ = %g), %s noise, %d trials per value, seed %d\n",
 		m.Name(), m.Method(), len(acq), snr, 1/snr, noise, trials, seed)
 	fmt.Fprintf(e.stdout, "protocol: %s\n", pipeline.ProtocolLine(acq))
 	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "true %s (ms)\tok\tmean\tbias %%\tSD\tCRLB SD\tefficiency\tmean SE\t±1 SE\t±1.96 SE\t\n", quantity)
-	for _, r := range rows {
+	for _, v := range r.Rows {
 		fmt.Fprintf(tw, "%g\t%d\t%.3f\t%+.2f\t%.3f\t%.3f\t%.3f\t%.3f\t%.3f\t%.3f\t\n",
-			r.Truth, r.OK, r.Mean, r.BiasPct, r.SD, r.CRLB, r.Efficiency, r.MeanSE, r.Cover1, r.Cover196)
+			v.Truth, v.OK, v.Mean, v.BiasPct, v.SD, v.CRLB, v.Efficiency, v.MeanSE, v.Cover1, v.Cover196)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
@@ -145,16 +109,4 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 		fmt.Fprintln(e.stdout, "CRLB: the Gaussian-noise bound; with Rician noise it is approached only at high SNR.")
 	}
 	return nil
-}
-
-// validModels lists the models validate can study: those with a
-// simulator protocol and a default true-value range in the registry.
-func validModels() []string {
-	var n []string
-	for _, m := range fit.Models() {
-		if m.Simulate != nil && m.Simulate.Truth != "" {
-			n = append(n, m.Name)
-		}
-	}
-	return n
 }
