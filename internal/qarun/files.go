@@ -6,6 +6,7 @@ import (
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
+	"os"
 	"path/filepath"
 
 	"github.com/tauvox/tauvox/internal/output"
@@ -118,4 +119,22 @@ func (s *Session) HistoryFlags(ctx context.Context, db *history.Store, recorded 
 		pts = history.WithSession(pts, s.QA)
 	}
 	return report.HistoryFlags(history.Analyse(pts, nil)), nil
+}
+
+// HistoryFrom returns what the stability history in the database at path
+// (opened read only) flags per vial with the session added to it
+// (HistoryFlags); nil for path "".
+func (s *Session) HistoryFrom(ctx context.Context, path string) (map[string]string, error) {
+	if path == "" {
+		return nil, nil
+	}
+	if _, err := os.Stat(path); err != nil {
+		return nil, err
+	}
+	db, err := history.Open(path, &history.Options{ReadOnly: true})
+	if err != nil {
+		return nil, err
+	}
+	defer db.Close()
+	return s.HistoryFlags(ctx, db, false)
 }
