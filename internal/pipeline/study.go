@@ -4,8 +4,11 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
+	"io"
+	"math"
 	"sort"
 	"strings"
+	"text/tabwriter"
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/sidecar"
@@ -29,6 +32,7 @@ type Study struct {
 	Trials         int
 	Seed           uint64
 	Workers        int
+	Plot           string // "" or a .svg or .png file for Run to draw the result into
 }
 
 // StudyResult is a study's outcome.
@@ -52,9 +56,32 @@ func StudyModels() []string {
 	return n
 }
 
-// Run checks the study against the registry, makes the protocol and runs
-// fit.Validate.
+// check refuses settings out of range, naming the flag that sets them.
+func (s *Study) check() error {
+	lower := strings.ToLower(s.Plot)
+	switch {
+	case s.Model == "":
+		return fmt.Errorf("--model is required (see --help)")
+	case !(s.SNR > 0) || math.IsInf(s.SNR, 0):
+		return fmt.Errorf("--snr must be positive")
+	case s.Trials < 2 || s.Trials > 10_000_000:
+		return fmt.Errorf("--trials must be 2 to 10000000")
+	case fit.CheckWorkers(s.Workers) != nil:
+		return fit.CheckWorkers(s.Workers)
+	case s.Noise != "gaussian" && s.Noise != "rician":
+		return fmt.Errorf("--noise must be gaussian or rician")
+	case s.Plot != "" && !strings.HasSuffix(lower, ".svg") && !strings.HasSuffix(lower, ".png"):
+		return fmt.Errorf("--plot must name a .svg or .png file")
+	}
+	return nil
+}
+
+// Run checks the study's settings and the model against the registry,
+// makes the protocol, runs fit.Validate and draws the plot when asked.
 func (s *Study) Run(ctx context.Context) (*StudyResult, error) {
+	if err := s.check(); err != nil {
+		return nil, err
+	}
 	info, ok := fit.Lookup(s.Model)
 	if !ok || info.Simulate == nil || info.Simulate.Truth == "" {
 		return nil, fmt.Errorf("validate supports models %s, not %q", strings.Join(StudyModels(), ", "), s.Model)
@@ -99,13 +126,35 @@ func (s *Study) Run(ctx context.Context) (*StudyResult, error) {
 	if err != nil {
 		return nil, fmt.Errorf("model %s: %v", s.Model, err)
 	}
+	if s.Plot != "" {
+		if err := ValidationPlot(s.Plot, rows, m, quantity, s.SNR, s.Noise); err != nil {
+			return nil, err
+		}
+	}
 	return &StudyResult{Study: s, Model: m, Quantity: quantity, Acq: acq, Rows: rows}, nil
 }
 
-// Plot draws the result's SD and CRLB against the true value into path
-// (.svg or .png; ValidationPlot).
-func (r *StudyResult) Plot(path string) error {
-	return ValidationPlot(path, r.Rows, r.Model, r.Quantity, r.Study.SNR, r.Study.Noise)
+// WriteTable writes the result as text: the study's settings, the
+// protocol, and per true value the converged trials, mean, bias, SD, CRLB,
+// efficiency, mean reported SE and its coverage.
+func (r *StudyResult) WriteTable(w io.Writer) error {
+	s, m := r.Study, r.Model
+	fmt.Fprintf(w, "%s/%s, %d points, SNR %g (σ = %g), %s noise, %d trials per value, seed %d\n",
+		m.Name(), m.Method(), len(r.Acq), s.SNR, 1/s.SNR, s.Noise, s.Trials, s.Seed)
+	fmt.Fprintf(w, "protocol: %s\n", ProtocolLine(r.Acq))
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "true %s (ms)\tok\tmean\tbias %%\tSD\tCRLB SD\tefficiency\tmean SE\t±1 SE\t±1.96 SE\t\n", r.Quantity)
+	for _, v := range r.Rows {
+		fmt.Fprintf(tw, "%g\t%d\t%.3f\t%+.2f\t%.3f\t%.3f\t%.3f\t%.3f\t%.3f\t%.3f\t\n",
+			v.Truth, v.OK, v.Mean, v.BiasPct, v.SD, v.CRLB, v.Efficiency, v.MeanSE, v.Cover1, v.Cover196)
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	if s.Noise == "rician" {
+		fmt.Fprintln(w, "CRLB: the Gaussian-noise bound; with Rician noise it is approached only at high SNR.")
+	}
+	return nil
 }
 
 // JSON returns the result as a tauvox-validation/1 document.
