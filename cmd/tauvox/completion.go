@@ -53,33 +53,10 @@ func runCompletion(_ context.Context, args []string, e *env) error {
 	for _, m := range fit.Models() {
 		models = append(models, m.Name)
 	}
-	var cmds []completion.Command
-	for _, c := range commands() {
-		cc := completion.Command{Name: c.name}
-		switch {
-		case c.name == "help":
-			cc.Words = append([]string(nil), names...)
-			for _, t := range helpTopics() {
-				if _, isCmd := commandFlags(t); !isCmd {
-					cc.Words = append(cc.Words, t)
-				}
-			}
-		case c.name == "completion":
-			cc.Words = []string{"bash", "zsh"}
-		case subcommands[c.name] != nil:
-			for _, s := range subcommands[c.name] {
-				f, _ := commandFlags(c.name, s)
-				cc.Subs = append(cc.Subs, completion.Command{Name: s, Flags: f})
-			}
-		default:
-			cc.Flags, _ = commandFlags(c.name)
-		}
-		cmds = append(cmds, cc)
-	}
 	script := completion.Bash
 	if pos[0] == "zsh" {
 		script = completion.Zsh
 	}
-	fmt.Fprint(e.stdout, script(cmds, models))
+	fmt.Fprint(e.stdout, script(completion.Table(names, subcommands, helpTopics(), commandFlags), models))
 	return nil
 }

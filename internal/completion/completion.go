@@ -38,6 +38,38 @@ func Flags(help string) []string {
 	return flags
 }
 
+// Table describes the commands names for the scripts: "help" completes
+// the command names and the topics that are not commands, "completion"
+// the shells, a command with sub-commands (subs) those with each one's
+// flags, and any other command its flags. flags returns the flags of a
+// command or sub-command and whether it is a command.
+func Table(names []string, subs map[string][]string, topics []string, flags func(path ...string) ([]string, bool)) []Command {
+	var cmds []Command
+	for _, name := range names {
+		c := Command{Name: name}
+		switch {
+		case name == "help":
+			c.Words = slices.Clone(names)
+			for _, t := range topics {
+				if _, isCmd := flags(t); !isCmd {
+					c.Words = append(c.Words, t)
+				}
+			}
+		case name == "completion":
+			c.Words = []string{"bash", "zsh"}
+		case subs[name] != nil:
+			for _, s := range subs[name] {
+				f, _ := flags(name, s)
+				c.Subs = append(c.Subs, Command{Name: s, Flags: f})
+			}
+		default:
+			c.Flags, _ = flags(name)
+		}
+		cmds = append(cmds, c)
+	}
+	return cmds
+}
+
 // Zsh returns the zsh script: the bash script through zsh's bashcompinit.
 func Zsh(cmds []Command, models []string) string {
 	return "#compdef tauvox\nautoload -U +X bashcompinit && bashcompinit\n" + Bash(cmds, models)

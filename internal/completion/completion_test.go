@@ -3,6 +3,7 @@ package completion
 import (
 	"bytes"
 	"flag"
+	"fmt"
 	"slices"
 	"strings"
 	"testing"
@@ -45,5 +46,27 @@ func TestBash(t *testing.T) {
 	}
 	if z := Zsh(cmds, nil); !strings.HasPrefix(z, "#compdef tauvox\n") || !strings.HasSuffix(z, Bash(cmds, nil)) {
 		t.Error("zsh script is not the bash script behind bashcompinit")
+	}
+}
+
+// TestTable: each kind of command gets its completion, and help lists the
+// topics that are not commands after the command names.
+func TestTable(t *testing.T) {
+	flags := func(path ...string) ([]string, bool) {
+		switch strings.Join(path, " ") {
+		case "fit":
+			return []string{"--out"}, true
+		case "history add":
+			return []string{"--db"}, true
+		case "help", "completion", "history":
+			return nil, true
+		}
+		return nil, false
+	}
+	got := Table([]string{"fit", "history", "completion", "help"}, map[string][]string{"history": {"add"}}, []string{"fit", "models"}, flags)
+	want := []Command{{Name: "fit", Flags: []string{"--out"}}, {Name: "history", Subs: []Command{{Name: "add", Flags: []string{"--db"}}}},
+		{Name: "completion", Words: []string{"bash", "zsh"}}, {Name: "help", Words: []string{"fit", "history", "completion", "help", "models"}}}
+	if fmt.Sprint(got) != fmt.Sprint(want) {
+		t.Errorf("Table =\n%v\nwant\n%v", got, want)
 	}
 }
