@@ -3,7 +3,6 @@ package main
 import (
 	"context"
 	"errors"
-	"flag"
 	"fmt"
 	"math"
 
@@ -29,10 +28,10 @@ func runPhantom(ctx context.Context, args []string, e *env) error {
 	var (
 		out, face, history     string
 		force, mirrored, quiet bool
-		center                 vecFlag
-		rotation               float64
 	)
-	c := &qarun.Config{Options: phantom.Options{Tool: phantom.Tool{Name: "tauvox", Version: version()}}}
+	// A NaN temperature is not given; a NaN field comes from the maps.
+	c := &qarun.Config{Options: phantom.Options{Tool: phantom.Tool{Name: "tauvox", Version: version()},
+		Session: phantom.Session{Temperature: math.NaN(), Field: math.NaN()}}}
 	o := &c.Options
 	fs := newFlags("phantom", "MAPS... --def FILE --temperature C --out DIR [options]",
 		`Locates the phantom's vials in each map (T1map, T2map of fit output folders or
@@ -55,8 +54,15 @@ printed. Exit code 1 when any vial fails or is undetermined.
 	fs.StringVar(&o.Session.Scanner, "scanner", "", "scanner name (default: from the headers)")
 	fs.StringVar(&o.Session.Date, "date", "", "session date YYYY-MM-DD (default: acquisition date)")
 	fs.StringVar(&o.Session.Time, "time", "", "session time HH:MM (default: acquisition time)")
-	fs.Var(&center, "center", "phantom centre x,y,z in scanner RAS mm (default: found)")
-	fs.Var(finite{&rotation}, "rotation", "phantom rotation in the slice plane, degrees (default: found)")
+	fs.Func("center", "phantom centre x,y,z in scanner RAS mm (default: found)", func(s string) error {
+		var v vecFlag
+		o.Locate.Center = &v.v
+		return v.Set(s)
+	})
+	fs.Func("rotation", "phantom rotation in the slice plane, degrees (default: found)", func(s string) error {
+		o.Locate.Rotation = new(float64)
+		return finite{o.Locate.Rotation}.Set(s)
+	})
 	fs.StringVar(&face, "face", "", "up or down: the phantom's face (default: found)")
 	fs.BoolVar(&mirrored, "mirrored", false, "the phantom lies face down (the same as --face down)")
 	fs.BoolVar(&o.Extrapolate, "extrapolate", false, "allow a temperature outside the reference tables")
@@ -66,14 +72,12 @@ printed. Exit code 1 when any vial fails or is undetermined.
 	if err := parse(fs, args, &c.Maps); err != nil {
 		return err
 	}
-	set := map[string]bool{}
-	fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
 	switch {
 	case len(c.Maps) == 0:
 		return errors.New("give at least one fit output folder or map (see --help)")
 	case c.Def == "":
 		return errors.New("--def is required (a definition file, or demo)")
-	case !set["temperature"]:
+	case math.IsNaN(o.Session.Temperature):
 		return errors.New("--temperature is required (°C)")
 	case out == "":
 		return errors.New("--out is required")
@@ -83,15 +87,6 @@ printed. Exit code 1 when any vial fails or is undetermined.
 		return fmt.Errorf("--face %q: want up or down", face)
 	case mirrored && face == "up":
 		return errors.New("--mirrored contradicts --face up")
-	}
-	if !set["field"] {
-		o.Session.Field = math.NaN()
-	}
-	if set["center"] {
-		o.Locate.Center = &center.v
-	}
-	if set["rotation"] {
-		o.Locate.Rotation = &rotation
 	}
 	if face != "" || mirrored {
 		m := face == "down" || mirrored
