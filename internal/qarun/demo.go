@@ -15,11 +15,11 @@ import (
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
-// DemoDrift is the invented yearly drift of vial A7's material in the demo.
-const DemoDrift = -0.05
+// demoDrift is the invented yearly drift of vial A7's material in the demo.
+const demoDrift = -0.05
 
-// DemoScanner is the invented scanner of the demo's sessions.
-const DemoScanner = "HARBOUR-MR2"
+// demoScanner is the invented scanner of the demo's sessions.
+const demoScanner = "HARBOUR-MR2"
 
 // Demo is a run of the built-in scenario.
 type Demo struct {
@@ -59,7 +59,7 @@ func (d *Demo) Run(ctx context.Context) (*DemoResult, error) {
 	defer db.Close()
 	rng := rand.New(rand.NewPCG(2026, 12))
 	start := time.Date(2026, 1, 12, 8, 30, 0, 0, time.UTC)
-	res := &DemoResult{Index: &report.DemoIndex{Scanner: DemoScanner, Phantom: phantom.Demo().Name, History: "history/index.html"}}
+	res := &DemoResult{Index: &report.DemoIndex{Scanner: demoScanner, Phantom: phantom.Demo().Name, History: "history/index.html"}}
 	for n := 0; n < d.Sessions; n++ {
 		when := start.AddDate(0, n, rng.IntN(7)-3)
 		years := when.Sub(start).Hours() / 24 / 365.2425
@@ -74,13 +74,15 @@ func (d *Demo) Run(ctx context.Context) (*DemoResult, error) {
 				return nil, err
 			}
 			scene := &phantom.Scene{Def: phantom.Demo(), Field: 1.5, Temperature: temp, Center: center, Rotation: rot, Matrix: 96, Slices: 3,
-				Sigma: 10, B1: 1, Efficiency: 1, Seed: uint64(100 + n), Shift: map[string]float64{"A7": 1 + DemoDrift*years}}
-			sim := &pipeline.Simulation{Kind: j.kind, Scene: scene, Scanner: DemoScanner, Acquired: when, Temperature: temp, Noise: 10, B1: 1}
+				Sigma: 10, B1: 1, Efficiency: 1, Seed: uint64(100 + n), Shift: map[string]float64{"A7": 1 + demoDrift*years}}
+			sim := &pipeline.Simulation{Kind: j.kind, Scene: scene, Scanner: demoScanner, Acquired: when, Temperature: temp, Noise: 10, B1: 1}
 			if _, err := pipeline.Simulate(sub, sim); err != nil {
 				return nil, err
 			}
 			c := &pipeline.Config{Series: filepath.Join(sub, j.kind+".nii.gz"), Out: filepath.Join(d.Dir, dir, "fit-"+j.kind),
 				Spec: fit.Spec{Model: j.model}, Rician: j.noise == "rician", Version: d.Version}
+			// The summary's notes tell of leftovers of an earlier, killed
+			// run of the same output, which the fresh demo folder cannot hold.
 			if _, err := pipeline.Run(ctx, c, nil); err != nil {
 				return nil, err
 			}
