@@ -19,20 +19,18 @@ var subcommands = map[string][]string{
 // its --help text lists them (the FlagSet's PrintDefaults), with "--".
 // So completion and the docs check follow the FlagSets by themselves.
 func commandFlags(path ...string) ([]string, bool) {
-	var run func(context.Context, []string, *env) error
-	found := false
 	for _, c := range commands() {
-		if c.name == path[0] {
-			run, found = c.run, true
+		if c.name != path[0] {
+			continue
 		}
+		if c.run == nil {
+			return nil, true // "help" has no flags
+		}
+		var out bytes.Buffer
+		c.run(context.Background(), append(append([]string(nil), path[1:]...), "--help"), &env{stdout: &out, stderr: &bytes.Buffer{}})
+		return completion.Flags(out.String()), true
 	}
-	if run == nil {
-		return nil, found // "help" has no flags
-	}
-	var out bytes.Buffer
-	e := &env{stdout: &out, stderr: &bytes.Buffer{}}
-	run(context.Background(), append(append([]string(nil), path[1:]...), "--help"), e)
-	return completion.Flags(out.String()), true
+	return nil, false
 }
 
 func runCompletion(_ context.Context, args []string, e *env) error {
