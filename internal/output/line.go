@@ -1,6 +1,7 @@
 package output
 
 import (
+	"math"
 	"strconv"
 	"strings"
 )
@@ -26,3 +27,12 @@ const Caution = "tauvox is a quality-assurance and research tool, not a medical 
 // (a message wrapped over lines) becomes one space, and any other control
 // character is escaped as by Line.
 func Message(s string) string { return Line(strings.Join(strings.Fields(s), " ")) }
+
+// Num formats v with prec decimals for a table cell or a CSV field; a
+// value that is not finite (NaN: not measured) gives "".
+func Num(v float64, prec int) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return ""
+	}
+	return strconv.FormatFloat(v, 'f', prec, 64)
+}
