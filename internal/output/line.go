@@ -4,6 +4,7 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"unicode"
 )
 
 // Line returns s fit for one line of a message: when s holds a control
@@ -36,3 +37,19 @@ func Num(v float64, prec int) string {
 	}
 	return strconv.FormatFloat(v, 'f', prec, 64)
 }
+
+// Printable replaces control and format characters (a terminal escape
+// sequence in a series description, say) and invalid UTF-8 with U+FFFD.
+func Printable(s string) string {
+	return strings.Map(func(r rune) rune {
+		if unicode.IsControl(r) || unicode.Is(unicode.Cf, r) {
+			return unicode.ReplacementChar
+		}
+		return r
+	}, strings.ToValidUTF8(s, "\uFFFD"))
+}
+
+// Cell is text from a file made fit for one terminal line or table cell:
+// Message, then Printable, so that no escape sequence in a file (a phantom
+// name, a scanner name) reaches the terminal.
+func Cell(s string) string { return Printable(Message(s)) }

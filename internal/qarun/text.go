@@ -15,7 +15,8 @@ import (
 func Summary(w io.Writer, qa *phantom.QA) {
 	num := output.Num
 	s := qa.Session
-	fmt.Fprintf(w, "%s, %s %s, %g T, %g °C: %s\n", s.Phantom, s.Scanner, strings.TrimSpace(s.Date+" "+s.Time), s.Field, s.Temperature, strings.ToUpper(qa.Verdict))
+	cell := output.Cell
+	fmt.Fprintf(w, "%s, %s %s, %g T, %g °C: %s\n", cell(s.Phantom), cell(s.Scanner), cell(strings.TrimSpace(s.Date+" "+s.Time)), s.Field, s.Temperature, strings.ToUpper(cell(qa.Verdict)))
 	for _, sr := range qa.Series {
 		l := sr.Localisation
 		fmt.Fprintf(w, "  %s: phantom at (%.1f, %.1f, %.1f) mm, turned %.1f°, face %s, slice %d, geometric residual %s mm\n",
@@ -28,14 +29,14 @@ func Summary(w io.Writer, qa *phantom.QA) {
 				line += fmt.Sprintf(", %d placements measured, margin over the next %.1f × its noise spread (threshold %g)", g.Placements, *g.Z, id.Threshold)
 			}
 			if g.Reason != "" {
-				line += "; " + g.Reason
+				line += "; " + cell(g.Reason)
 			}
 			fmt.Fprintln(w, line)
 		}
 	}
 	fmt.Fprintf(w, "  %-5s %-3s %9s %9s %8s %6s  %s\n", "vial", "q", "median", "ref", "dev %", "tol", "verdict")
 	for _, v := range qa.Vials {
-		fmt.Fprintf(w, "  %-5s %-3s %9s %9s %8s %6s  %s\n", v.ID, v.Quantity, num(v.Median, 1), num(v.Reference, 1),
-			num(v.Deviation, 2), num(v.Tolerance, 1), v.Verdict)
+		fmt.Fprintf(w, "  %-5s %-3s %9s %9s %8s %6s  %s\n", cell(v.ID), cell(v.Quantity), num(v.Median, 1), num(v.Reference, 1),
+			num(v.Deviation, 2), num(v.Tolerance, 1), cell(v.Verdict))
 	}
 }
