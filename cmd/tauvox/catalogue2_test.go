@@ -199,19 +199,18 @@ func TestSecondCatalogue(t *testing.T) {
 	qNoMedian := qaWith("q_nomedian.json", func(q map[string]any) { vial0(q)["verdict"] = "pass"; delete(vial0(q), "median_ms") })
 	qNoID := qaWith("q_noid.json", func(q map[string]any) { delete(vial0(q), "id") })
 	qHuge := qaWith("q_huge.json", func(q map[string]any) { vial0(q)["median_ms"] = 1e308 })
-	qMany := qaWith("q_many.json", func(q map[string]any) {
-		v := vial0(q)
-		vs := make([]any, 150000)
-		for i := range vs {
-			c := map[string]any{}
-			for k, x := range v {
-				c[k] = x
-			}
-			c["id"] = fmt.Sprintf("V%d", i)
-			vs[i] = c
+	// 150,000 vial results, written as text (building them as maps and
+	// marshalling them is slow under the race detector).
+	var many strings.Builder
+	many.WriteString(`{"format":"tauvox-qa/1","session":{"scanner":"S","date":"2026-05-01","field_T":1.5,"temperature_C":20,"phantom":"p"},"verdict":"pass","vials":[`)
+	for i := 0; i < 150000; i++ {
+		if i > 0 {
+			many.WriteByte(',')
 		}
-		q["vials"] = vs
-	})
+		fmt.Fprintf(&many, `{"id":"V%d","quantity":"T1","n":1,"median_ms":100,"reference_ms":100,"deviation_pct":0,"tolerance_ms":5,"verdict":"pass"}`, i)
+	}
+	many.WriteString("]}")
+	qMany := f.write(t, "q_many.json", []byte(many.String()))
 	qUnd := qaWith("q_und.json", func(q map[string]any) {
 		q["verdict"] = "undetermined"
 		for _, v := range q["vials"].([]any) {

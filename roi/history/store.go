@@ -243,14 +243,20 @@ func Hash(b []byte) string {
 
 // ParseQA decodes and checks a qa.json; name is used in errors.
 func ParseQA(b []byte, name string) (*phantom.QA, error) {
+	// The probe counts the vial results without decoding them, so that a
+	// file of a hundred thousand vials is refused at the cost of a scan.
 	var probe struct {
-		Format string `json:"format"`
+		Format string            `json:"format"`
+		Vials  []json.RawMessage `json:"vials"`
 	}
 	if err := json.Unmarshal(b, &probe); err != nil {
 		return nil, fmt.Errorf("%s: not a qa.json: %v", name, err)
 	}
 	if probe.Format != phantom.QAFormat {
 		return nil, fmt.Errorf("%s: format %q, this tauvox reads %q", name, probe.Format, phantom.QAFormat)
+	}
+	if len(probe.Vials) > phantom.MaxVials {
+		return nil, fmt.Errorf("%s: %d vial results, above the limit of %d per session", name, len(probe.Vials), phantom.MaxVials)
 	}
 	var qa phantom.QA
 	if err := json.Unmarshal(b, &qa); err != nil {
