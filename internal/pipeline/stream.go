@@ -162,7 +162,8 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 
 	// Pass 1: threshold and noise level over the whole series.
 	t1 := time.Now()
-	auto := c.Threshold <= 0 && c.Mask == "" && !c.NoMask
+	auto := c.auto()
+	var am fit.AutoMask
 	needSigma := c.Rician && c.Spec.Sigma == 0
 	thr := c.Threshold
 	var first *volume.Image // the one slab, when the series is a single slab
@@ -183,12 +184,14 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 			return nil, err
 		}
 		if auto {
-			thr = fit.PeaksThreshold(peaks)
+			am = fit.PeaksMask(peaks, nvol)
+			thr = am.Threshold
 		}
 	} else if auto {
-		if thr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
+		if am, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
 			return nil, err
 		}
+		thr = am.Threshold
 	}
 	if needSigma {
 		sthr := c.Threshold
@@ -199,8 +202,12 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 				// threshold even when a mask or --no-mask decides the fit.
 				if nslab == 1 {
 					sthr = fit.AutoThreshold(first)
-				} else if sthr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
-					return nil, err
+				} else {
+					m, err := streamThreshold(ctx, nslab, slab, tmpDir)
+					if err != nil {
+						return nil, err
+					}
+					sthr = m.Threshold
 				}
 			}
 		}
@@ -230,7 +237,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	settings["memory_bytes"], settings["slabs"], settings["slices_per_slab"] = c.memory(), nslab, plan.Slices
 	timings := map[string]float64{}
 	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: settings, StatusNames: statusNames(),
-		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings, Sums: sums}
+		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings, Sums: sums, AutoMask: c.autoRecord(am)}
 	w, err := mapset.NewWriter(st, outputs(model), [3]int{nx, ny, nz}, affine, info)
 	if err != nil {
 		return nil, err
