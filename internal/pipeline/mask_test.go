@@ -27,7 +27,9 @@ func maskPhantom() *phantom.Definition {
 		Body: &phantom.Body{Radius: 95, Length: 200, FillT1: 1200, FillT2: 90, FillPD: 1}}
 	for i, v := range t1 {
 		a := 2 * math.Pi * float64(i) / float64(len(t1))
-		row := func(x float64) []phantom.Row { return []phantom.Row{{Field: 1.5, Temperature: 20, Value: x, Uncertainty: 1}} }
+		row := func(x float64) []phantom.Row {
+			return []phantom.Row{{Field: 1.5, Temperature: 20, Value: x, Uncertainty: 1}}
+		}
 		d.Vials = append(d.Vials, phantom.Vial{ID: fmt.Sprintf("V%02d", i+1), X: 62 * math.Cos(a), Y: 62 * math.Sin(a), Radius: 11,
 			PD: 0.6 + 0.4*float64(i%3)/2, Reference: map[string][]phantom.Row{"T1": row(v), "T2": row(math.Min(0.5*v, 400))}})
 	}
