@@ -20,6 +20,7 @@ func Run(ctx context.Context, c *Config, progress Progress) (*Summary, error) {
 	if err := c.check(); err != nil {
 		return nil, err
 	}
+	c.Overrides.Notices = nil
 	if c.Image == nil && !c.Whole {
 		if st, err := os.Stat(c.Series); err == nil && !st.IsDir() && series.IsNIfTI(c.Series) {
 			return runSlabs(ctx, c, progress)
@@ -98,7 +99,7 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 		return nil, err
 	}
 	defer st.Abort()
-	notes := st.Notes()
+	notes := append(append([]string(nil), c.Overrides.Notices...), st.Notes()...)
 	tLoad := time.Since(t0)
 	if progress != nil {
 		total := im.Voxels()

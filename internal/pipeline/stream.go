@@ -40,7 +40,9 @@ func openSlabSource(c *Config, tmpDir string) (*slabSource, error) {
 		r.Close()
 		return nil, err
 	}
-	s.acq, s.inputs, err = series.NIfTIProtocol(c.Series, nt, &s.src, &series.Overrides{TE: c.Overrides.TE, TI: c.Overrides.TI, TR: c.Overrides.TR, FA: c.Overrides.FA})
+	o := series.Overrides{TE: c.Overrides.TE, TI: c.Overrides.TI, TR: c.Overrides.TR, FA: c.Overrides.FA}
+	s.acq, s.inputs, err = series.NIfTIProtocol(c.Series, nt, &s.src, &o)
+	c.Overrides.Notices = append(c.Overrides.Notices, o.Notices...)
 	if err != nil {
 		return fail(err)
 	}
@@ -79,12 +81,12 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		return nil, err
 	}
 	defer st.Abort()
-	notes := st.Notes()
 	tmpDir := st.Path("")
 	src, err := openSlabSource(c, tmpDir)
 	if err != nil {
 		return nil, err
 	}
+	notes := append(append([]string(nil), c.Overrides.Notices...), st.Notes()...)
 	defer src.r.Close()
 	if _, err := model.NewFitter(src.acq); err != nil {
 		return nil, c.protocolError(model, err)
