@@ -15,10 +15,11 @@ import (
 //	S(2α)/S(α) = sin 2θ/sin θ = 2·cos θ,   θ = arccos(S(2α)/(2·S(α))),
 //
 // and B1 = θ/α. The magnitude of S(2α) folds beyond θ = 90°, so the method
-// is unambiguous only for B1·α ≤ 90° (α = 60° covers B1 up to 1.5). A
-// finite TR biases θ up for short-T1 material (the α image recovers less
-// than the 2α one, common practice); the protocol check does not know T1
-// and cannot refuse it.
+// is unambiguous only for B1·α ≤ 90° (α = 60° covers B1 up to 1.5). A TR
+// that is not ≫ T1 biases θ up for long-T1 material: the spoiled
+// steady state multiplies the ratio by (1 − E1·cos θ)/(1 − E1·cos 2θ) < 1
+// (about +0.4 % at TR 10 s, T1 2000 ms, α = 60°); the protocol check does
+// not know T1 and cannot refuse it.
 //
 // Output: TB1map, percent of the nominal angle. Standard errors and R² are
 // NaN: two samples determine (M0, θ) exactly.
