@@ -76,11 +76,12 @@ func (l *listFlag) list() []float64 {
 // fitArgs are the flags of tauvox fit: the pipeline's Config and what only
 // the command line needs.
 type fitArgs struct {
-	c                         pipeline.Config
-	noise, cpuprofile, window string
-	quiet                     bool
-	te, ti, tr, fa            listFlag
-	memory                    byteFlag
+	c                 pipeline.Config
+	noise, cpuprofile string
+	window            rangeFlag
+	quiet             bool
+	te, ti, tr, fa    listFlag
+	memory            byteFlag
 }
 
 // only returns a flag usage suffix naming the models that take the option.
@@ -119,7 +120,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&a.quiet, "quiet", false, "no progress bar or summary")
 	fs.BoolVar(&c.Overrides.KeepIdentifiers, "keep-identifiers", false, "copy the patient name, ID, birth date and accession number of a DICOM series into provenance.json (left out by default)")
 	fs.BoolVar(&c.NoPreview, "no-preview", false, "do not write the PNG previews of the maps")
-	fs.StringVar(&a.window, "range", "", "preview display window LO,HI in the map's unit (default 1st–99th percentile)")
+	fs.Var(&a.window, "range", rangeUsage)
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
 	a.memory = byteFlag(pipeline.DefaultMemory)
 	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
@@ -141,13 +142,11 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	case a.noise != "gaussian" && a.noise != "rician":
 		return fmt.Errorf("--noise must be gaussian or rician")
 	}
-	if a.window != "" {
-		w, err := preview.ParseWindow(a.window)
-		if err != nil {
-			return fmt.Errorf("--range: %v", err)
-		}
-		c.Window = w
+	w, err := preview.ParseWindows(a.window)
+	if err != nil {
+		return fmt.Errorf("--range: %v", err)
 	}
+	c.Window = w
 	c.Series = pos[0]
 	c.Rician = a.noise == "rician"
 	c.Overrides.TE, c.Overrides.TI, c.Overrides.TR, c.Overrides.FA = a.te.list(), a.ti.list(), a.tr.list(), a.fa.list()

@@ -53,10 +53,10 @@ type Config struct {
 	// Out is the output folder; Force replaces an existing one.
 	Out   string
 	Force bool
-	// NoPreview leaves out the PNG previews; Window is their display
-	// window (zero: 1st–99th percentile).
+	// NoPreview leaves out the PNG previews; Window are their display
+	// windows by quantity (zero: 1st–99th percentile).
 	NoPreview bool
-	Window    preview.Window
+	Window    preview.Windows
 	// Whole makes a NIfTI series load whole, as DICOM series are (tests
 	// compare the two ways).
 	Whole bool
