@@ -208,7 +208,7 @@ func assessPhantom(a *phantomArgs, paths []string) (*phantom.QA, *phantom.Result
 	}
 	switch {
 	case sess.Date == "":
-		return nil, nil, nil, nil, errors.New("session date unknown: give --date YYYY-MM-DD")
+		return nil, nil, nil, nil, fmt.Errorf("session date unknown: %s records no acquisition date (the series' sidecar has no AcquisitionDateTime, the DICOM no AcquisitionDate); give --date YYYY-MM-DD", strings.Join(paths, ", "))
 	case !dateRE.MatchString(sess.Date):
 		return nil, nil, nil, nil, fmt.Errorf("--date %q: want YYYY-MM-DD", sess.Date)
 	case sess.Time != "" && !clockRE.MatchString(sess.Time):

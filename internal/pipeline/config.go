@@ -173,8 +173,12 @@ func (c *Config) protocolError(m fit.Model, err error) error {
 	hint := ""
 	if errors.Is(err, fit.ErrProtocol) {
 		hint = c.Hint
-		if hint == "" {
+		switch {
+		case hint != "":
+		case series.IsNIfTI(c.Series):
 			hint = "; the sidecar (" + series.SidecarName(c.Series) + ") or --te/--ti/--tr/--fa give the parameters"
+		default:
+			hint = "; the DICOM headers or --te/--ti/--tr/--fa give the parameters"
 		}
 	}
 	return c.errorf("model %s: %v%s", m.Name(), err, hint)
