@@ -172,7 +172,7 @@ basis, refocusangle (degrees).`,
 		Help: `S(α) = M0·sin(B1·α) with full recovery (TR ≥ 5·T1); S(2α)/S(α) = 2·cos θ,
 θ = arccos(S(2α)/(2·S(α))), B1 = θ/α (Insko & Bolinger 1993). Two volumes at
 α and 2α (α < 90°; unambiguous for B1·α ≤ 90°). --min/--max do not apply.
-Output: TB1map (percent of the nominal angle), for fit --b1.`,
+Outputs: TB1map (percent of the nominal angle), for fit --b1.`,
 	},
 	{
 		Name: "b1-afi", Methods: []string{"ratio"}, Needs: "RepetitionTime", Sequence: SeqGradientEcho, Suggest: false,
@@ -185,8 +185,8 @@ Output: TB1map (percent of the nominal angle), for fit --b1.`,
 pair (n = TR2/TR1 > 1, ideal spoiling, TR ≪ T1): r = S2/S1,
 θ = arccos((r·n − 1)/(n − r)), B1 = θ/α (Yarnykh 2007). The TR ≪ T1
 approximation biases B1 low by < 0.5 % for T1 ≥ 1000 ms at TR 20/100 ms.
---min/--max do not apply. Output: TB1map (percent of the nominal angle),
-for fit --b1.`,
+--min/--max do not apply.
+Outputs: TB1map (percent of the nominal angle), for fit --b1.`,
 	},
 }
 

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -60,5 +61,44 @@ func TestDICOMProtocolHint(t *testing.T) {
 	code, _, errs := tauvox(t, "fit", dir, "--model", "t1-ir", "--out", filepath.Join(t.TempDir(), "m"))
 	if code != 2 || strings.Contains(errs, ".json") || !strings.Contains(errs, "the DICOM headers or --te/--ti/--tr/--fa give the parameters") {
 		t.Errorf("%d %s", code, errs)
+	}
+}
+
+// TestForceOwnFilesOnly (issue 17): fit --force replaces a folder that
+// holds only tauvox's outputs, refuses one that also holds a file of the
+// user's (exit 2, naming it, nothing touched), and replaces it when the
+// user names the folder (--force=DIR); --force=DIR naming another folder
+// is refused.
+func TestForceOwnFilesOnly(t *testing.T) {
+	series := simulated(t, "t2", "--matrix", "24")
+	out := filepath.Join(t.TempDir(), "maps")
+	fitTo := func(force string) (int, string) {
+		code, _, errs := tauvox(t, "fit", series, "--model", "t2", "--out", out, "--quiet", force)
+		return code, errs
+	}
+	if code, errs := fitTo("--no-preview"); code != 0 {
+		t.Fatal(errs)
+	}
+	if code, errs := fitTo("--force"); code != 0 {
+		t.Fatalf("own outputs: %d %s", code, errs)
+	}
+	mine := filepath.Join(out, "notes.txt")
+	if err := os.WriteFile(mine, []byte("mine"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, errs := fitTo("--force"); code != 2 || !strings.Contains(errs, "holds files tauvox did not write (notes.txt)") || !strings.Contains(errs, "--force="+out) {
+		t.Errorf("foreign file: %d %s", code, errs)
+	}
+	if b, err := os.ReadFile(mine); err != nil || string(b) != "mine" {
+		t.Error("the user's file was touched")
+	}
+	if code, errs := fitTo("--force=" + filepath.Join(t.TempDir(), "other")); code != 2 || !strings.Contains(errs, "names another folder") {
+		t.Errorf("another folder named: %d %s", code, errs)
+	}
+	if code, errs := fitTo("--force=" + out + "/"); code != 0 {
+		t.Fatalf("named: %d %s", code, errs)
+	}
+	if _, err := os.Stat(mine); !os.IsNotExist(err) {
+		t.Error("the named folder was not replaced")
 	}
 }

@@ -83,6 +83,7 @@ type fitArgs struct {
 	noise, cpuprofile string
 	window            rangeFlag
 	quiet             bool
+	force             forceFlag
 	te, ti, tr, fa    listFlag
 	memory            byteFlag
 }
@@ -124,7 +125,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.StringVar(&c.Spec.Method, "method", "", "estimation method (default: the model's first)")
 	fs.StringVar(&c.Out, "out", "", "output folder (required; refused if it exists, see --force)")
 	fs.StringVar(&c.Overrides.Series, "series", "", "DICOM series id when SERIES is a folder holding several (see tauvox scan)")
-	fs.BoolVar(&c.Force, "force", false, "replace an existing output folder")
+	fs.Var(&a.force, "force", forceUsage)
 	fs.StringVar(&c.Mask, "mask", "", "NIfTI mask on the series grid; voxels > 0 are fitted")
 	fs.Float64Var(&c.Threshold, "threshold", 0, "fit voxels whose largest sample reaches this value (default automatic)")
 	fs.BoolVar(&c.NoMask, "no-mask", false, "fit every voxel (no automatic threshold)")
@@ -183,6 +184,10 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	}
 	c.Window = w
 	c.Series = pos[0]
+	c.Force = a.force.on
+	if c.ForceAll, err = a.force.all(c.Out); err != nil {
+		return err
+	}
 	c.Rician = a.noise == "rician"
 	c.Overrides.TE, c.Overrides.TI, c.Overrides.TR, c.Overrides.FA = a.te.list(), a.ti.list(), a.tr.list(), a.fa.list()
 	c.Memory = int64(a.memory)

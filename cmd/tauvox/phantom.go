@@ -30,7 +30,8 @@ type phantomArgs struct {
 	temp, field, rotation, frac    float64
 	center                         vecFlag
 	centerSet, rotSet              bool
-	mirrored, extrapolate, force   bool
+	mirrored, extrapolate          bool
+	force                          forceFlag
 	quiet                          bool
 	history                        string
 }
@@ -81,7 +82,7 @@ abs_ms) of the definition's tolerance. Exit code 1 when any vial fails.
 	fs.StringVar(&a.def, "def", "", "phantom definition (JSON, format tauvox-phantom/1) or \"demo\" (required)")
 	fs.Var(optFloat{&a.temp, &tempSet}, "temperature", "phantom temperature, °C (required)")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
-	fs.BoolVar(&a.force, "force", false, "replace an existing output folder")
+	fs.Var(&a.force, "force", forceUsage)
 	fs.Var(optFloat{&a.field, &fieldSet}, "field", "field strength, T (default: from the maps' provenance)")
 	fs.StringVar(&a.scanner, "scanner", "", "scanner name (default: from the headers)")
 	fs.StringVar(&a.date, "date", "", "session date YYYY-MM-DD (default: acquisition date)")

@@ -56,7 +56,7 @@ type simArgs struct {
 	scanner, date, clock string
 	description          string
 	kind, out            string
-	force                bool
+	force                forceFlag
 	field, temp, sigma   float64
 	rotation, b1, ineff  float64
 	mirrored             bool
@@ -77,7 +77,7 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 		"Writes a synthetic series of the built-in demo phantom (invented values) with\nknown truth: DIR/<kind>.nii.gz with its BIDS sidecar, and truth_<Q>map.nii.gz\n(NaN outside whole-voxel vial interiors). Kinds:\n"+b.String(), e)
 	fs.StringVar(&a.kind, "kind", "", "acquisition to simulate (required)")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
-	fs.BoolVar(&a.force, "force", false, "replace an existing output folder")
+	fs.Var(&a.force, "force", forceUsage)
 	fs.Float64Var(&a.field, "field", 1.5, "field strength, T (reference rows exist at 1.5 and 3)")
 	fs.Float64Var(&a.temp, "temperature", 20, "phantom temperature, °C")
 	fs.Float64Var(&a.sigma, "sigma", 10, "Rician noise SD (fully relaxed signal of PD 1 is 1000); 0 for none")

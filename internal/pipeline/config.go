@@ -3,6 +3,7 @@ package pipeline
 import (
 	"errors"
 	"fmt"
+	"github.com/tauvox/tauvox/io/mapset"
 	"math"
 	"runtime"
 	"time"
@@ -50,9 +51,12 @@ type Config struct {
 	// Memory is the slab budget in bytes for NIfTI series; 0 means
 	// DefaultMemory.
 	Memory int64
-	// Out is the output folder; Force replaces an existing one.
-	Out   string
-	Force bool
+	// Out is the output folder; Force replaces an existing one that holds
+	// only what tauvox wrote there, ForceAll (the user named the folder)
+	// whatever it holds.
+	Out      string
+	Force    bool
+	ForceAll bool
 	// NoPreview leaves out the PNG previews; Window are their display
 	// windows by quantity (zero: 1st–99th percentile).
 	NoPreview bool
@@ -191,4 +195,13 @@ func (c *Config) errorf(format string, args ...any) error {
 		return fmt.Errorf(format, args...)
 	}
 	return fmt.Errorf("%s: "+format, append([]any{c.Series}, args...)...)
+}
+
+// newStage starts the output folder out (mapset.NewStage, or
+// mapset.NewStageReplacing with all).
+func newStage(out string, force, all bool) (*mapset.Stage, error) {
+	if all {
+		return mapset.NewStageReplacing(out)
+	}
+	return mapset.NewStage(out, force)
 }

@@ -94,7 +94,7 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 	if _, err := model.NewFitter(im.Acq); err != nil {
 		return nil, c.protocolError(model, err)
 	}
-	st, err := mapset.NewStage(c.Out, c.Force)
+	st, err := newStage(c.Out, c.Force, c.ForceAll)
 	if err != nil {
 		return nil, err
 	}

@@ -76,7 +76,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	if err != nil {
 		return nil, err
 	}
-	st, err := mapset.NewStage(c.Out, c.Force)
+	st, err := newStage(c.Out, c.Force, c.ForceAll)
 	if err != nil {
 		return nil, err
 	}
