@@ -4,16 +4,21 @@ BIN     := bin/tauvox
 PKGS    := ./...
 BENCHTIME ?= 2s
 
-.PHONY: all build test lint vet bench bench-peers bench-memory demo fuzz clean slurm-test
+.PHONY: all build test test-race lint vet bench bench-peers bench-memory demo fuzz clean slurm-test
 
 all: build
 
 build:
 	$(GO) build -o $(BIN) ./cmd/tauvox
 
-# make test: vet, the formatting check and every test (race detector on).
+# make test: vet, the formatting check and every test (times in README.md).
 test: lint vet
-	$(GO) test -race -count=1 $(PKGS)
+	$(GO) test -count=1 $(PKGS)
+
+# make test-race: every test under the race detector (several times slower;
+# .ci/run runs it after make test).
+test-race:
+	$(GO) test -race -count=1 -timeout 30m $(PKGS)
 
 vet:
 	$(GO) vet $(PKGS)

@@ -402,7 +402,11 @@ func PlanSlabs(nz int, perSlice, budget int64) SlabPlan {
 // is known. The result equals AutoThreshold of the whole series exactly.
 // The zero value is ready for Peaks.
 type PeakHistogram struct {
-	h threshold.Histogram
+	h    threshold.Histogram
+	fine fineHist
+	// Volumes is the number of volumes of the series (set by Peaks; set it
+	// when the peaks come from ResetPeaks and MaxInto).
+	Volumes int
 }
 
 // Peaks writes into dst (allocated when nil or short; returned) the
@@ -415,6 +419,7 @@ func (p *PeakHistogram) Peaks(dst []float32, im *volume.Image) []float32 {
 		dst = make([]float32, nv)
 	}
 	dst = ResetPeaks(dst[:nv])
+	p.Volumes = nt
 	for t := 0; t < nt; t++ {
 		MaxInto(dst, im.Data[t*nv:(t+1)*nv])
 	}
@@ -451,11 +456,27 @@ func (p *PeakHistogram) Top() float64 { return p.h.Top }
 
 // Add bins peaks found by Peaks; call it for every part after all parts
 // have passed through Peaks.
-func (p *PeakHistogram) Add(peaks []float32) { p.h.Add(peaks) }
+func (p *PeakHistogram) Add(peaks []float32) {
+	p.h.Add(peaks)
+	p.fine.add(peaks, p.h.Top)
+}
 
-// Threshold returns the automatic threshold: half of Otsu's threshold of
-// the binned peaks, 0 when no sample is positive (as AutoThreshold).
-func (p *PeakHistogram) Threshold() float64 { return p.h.Otsu() / 2 }
+// Threshold returns the automatic threshold of the binned peaks, 0 when no
+// sample is positive (as AutoThreshold).
+func (p *PeakHistogram) Threshold() float64 { return p.Mask().Threshold }
+
+// Mask returns the automatic mask of the binned peaks (as AutoMaskOf).
+func (p *PeakHistogram) Mask() AutoMask {
+	otsu := p.h.Otsu() / 2
+	if !(otsu > 0) {
+		return AutoMask{}
+	}
+	m, why := p.fine.noiseMask(otsu, p.Volumes)
+	if why != "" {
+		return AutoMask{Threshold: otsu, Rule: "otsu", Otsu: otsu, Why: why}
+	}
+	return m
+}
 
 // Background accumulates BackgroundSigma over a series seen in parts of
 // whole voxels, in voxel order; the result equals BackgroundSigma of the

@@ -122,12 +122,16 @@ func TestRunMaskAndErrors(t *testing.T) {
 }
 
 func TestAutoThreshold(t *testing.T) {
-	// Object at 1000, air Rayleigh noise with σ = 10: the threshold must
-	// fall between them.
+	// Object at 1000, air Rayleigh noise with σ = 10 (a ring of 240 air
+	// voxels): the noise rule applies, and the threshold is
+	// NoiseThreshold(σ, 2) ≈ 39 within 10 %, far below the object (≥ 600).
 	im := decaySeries(32, 32, 1, []float64{10, 20}, 10, 3)
 	thr := AutoThreshold(im)
-	if !(thr > 60 && thr < 400) {
-		t.Errorf("threshold %g, want between the air (≈ 30) and the object (≥ 600)", thr)
+	if m := AutoMaskOf(im); m.Rule != "noise" {
+		t.Fatalf("rule %q (%s), want noise", m.Rule, m.Why)
+	}
+	if want := NoiseThreshold(10, 2); math.Abs(thr/want-1) > 0.1 {
+		t.Errorf("threshold %g, want %g ± 10 %%", thr, want)
 	}
 }
 

@@ -84,4 +84,6 @@ func ExampleModels() {
 	// t1-ll: [rdnls], varies InversionTime
 	// t2-epg: [nlls dictionary], varies EchoTime
 	// t2-spectrum: [nnls], varies EchoTime
+	// b1-dam: [ratio], varies FlipAngle
+	// b1-afi: [ratio], varies RepetitionTime
 }

@@ -14,6 +14,9 @@ const (
 	Dictionary Method = "dictionary"
 	// NNLS is non-negative least squares on a fixed basis (t2-spectrum).
 	NNLS Method = "nnls"
+	// Ratio is the closed-form flip angle from the ratio of two signals
+	// (b1-dam, b1-afi).
+	Ratio Method = "ratio"
 )
 
 // Solver selects the numerical engine of a nonlinear method.

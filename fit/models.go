@@ -159,6 +159,35 @@ Outputs: MWFmap (percent of the spectrum in the short window), T2short and
 T2long (geometric-mean T2 of each window, ms), M0map (Σs); with the EPG
 basis, refocusangle (degrees).`,
 	},
+	{
+		Name: "b1-dam", Methods: []string{"ratio"}, Needs: "FlipAngle", Sequence: SeqGradientEcho, Suggest: false,
+		Summary: "double-angle B1 map: flip angles α and 2α, full recovery, θ = arccos(S(2α)/2S(α))",
+		Options: []string{}, Suffixes: []string{},
+		Reference: "Insko EK, Bolinger L. Mapping of the radiofrequency field. J Magn Reson A 1993;103(1):82-85",
+		Simulate: &Protocol{Summary: "gradient echo, flip angles 60° and 120°, TR 10000 ms, TE 2 ms", Seq: SeqGradientEcho, Acq: func() []volume.Acquisition {
+			fa := []float64{60, 120}
+			return protocol(len(fa), func(i int, a *volume.Acquisition) { a.FlipAngle, a.RepetitionTime, a.EchoTime = fa[i], 10000, 2 })
+		}},
+		make: func(s Spec, meth Method, solver Solver) Model { return &DoubleAngle{} },
+		Help: `S(α) = M0·sin(B1·α) with full recovery (TR ≥ 5·T1); S(2α)/S(α) = 2·cos θ,
+θ = arccos(S(2α)/(2·S(α))), B1 = θ/α (Insko & Bolinger 1993). Two volumes at
+α and 2α (α < 90°; unambiguous for B1·α ≤ 90°). --min/--max do not apply.
+Outputs: TB1map (percent of the nominal angle), for fit --b1.`,
+	},
+	{
+		Name: "b1-afi", Methods: []string{"ratio"}, Needs: "RepetitionTime", Sequence: SeqGradientEcho, Suggest: false,
+		Summary: "actual flip-angle imaging B1 map: one angle, interleaved TR1 < TR2",
+		Options: []string{}, Suffixes: []string{},
+		Reference: "Yarnykh VL. Actual flip-angle imaging in the pulsed steady state: a method for rapid three-dimensional mapping of the transmitted radiofrequency field. Magn Reson Med 2007;57(1):192-200. doi:10.1002/mrm.21120",
+		Simulate:  nil,
+		make:      func(s Spec, meth Method, solver Solver) Model { return &ActualFlipAngle{} },
+		Help: `Two images of one flip angle α in the TR1 and TR2 intervals of an interleaved
+pair (n = TR2/TR1 > 1, ideal spoiling, TR ≪ T1): r = S2/S1,
+θ = arccos((r·n − 1)/(n − r)), B1 = θ/α (Yarnykh 2007). The TR ≪ T1
+approximation biases B1 low by < 0.5 % for T1 ≥ 1000 ms at TR 20/100 ms.
+--min/--max do not apply.
+Outputs: TB1map (percent of the nominal angle), for fit --b1.`,
+	},
 }
 
 // protocol makes n volumes of unknown parameters and lets set fill each.

@@ -98,6 +98,21 @@ var modelCases = map[string]modelCase{
 	},
 	// One component: the regularised spectrum's long-window geometric
 	// mean is near it and the short window empty (Whittall & MacKay 1989).
+	"b1-dam": {
+		acq: acqOf(2, func(i int, a *volume.Acquisition) { a.FlipAngle, a.RepetitionTime = 60*float64(i+1), 10000 }),
+		signal: func(y []float64) {
+			y[0], y[1] = DAMSignal(1000, 0.9, 60)
+		},
+		truth: map[string]float64{"B1": 90},
+	},
+	"b1-afi": {
+		acq: acqOf(2, func(i int, a *volume.Acquisition) { a.FlipAngle, a.RepetitionTime = 60, 20+80*float64(i) }),
+		signal: func(y []float64) {
+			y[0], y[1] = AFISignal(1000, 1000, 20, 100, 0.9, 60)
+		},
+		truth: map[string]float64{"B1": 90},
+		tol:   map[string]float64{"ratio": 0.005}, // the TR ≪ T1 approximation of Yarnykh 2007 eq. 4 at T1 = 1000 ms
+	},
 	"t2-spectrum": {
 		acq:    acqOf(32, func(i int, a *volume.Acquisition) { a.EchoTime, a.RepetitionTime = 10*float64(i+1), 4000 }),
 		signal: func(y []float64) { expDecay(y, 10, 1000, 80) },

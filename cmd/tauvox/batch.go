@@ -27,11 +27,11 @@ sidecar (BIDS inheritance applies), or one 4-D file listing them. Only
 part-mag (or no part) is fitted. --model SUFFIX=MODEL changes a suffix's
 model (or adds a suffix); MODEL "skip" leaves the suffix out.
 
-Names: <source>_T2map.nii.gz (T1map, T2starmap, R1map, R2map, R2starmap
-alike), <source>_desc-sd_T2map (standard error), and for the other outputs
-<source>_desc-<SUFFIX>_M0map, _desc-<SUFFIX>_fitquality,
-_desc-<SUFFIX>_status, _desc-<SUFFIX>_provenance.json; <source> is the
-series' name without echo-/inv-/flip-/part-. Times are in ms (Units).
+Names: every output of one series carries desc-<SUFFIX>:
+<source>_desc-MESE_T2map.nii.gz (R2map, M0map, T1map, inveff, fitquality,
+status alike), <source>_desc-MESEsd_T2map (a standard error appends sd to
+the label), <source>_desc-MESE_provenance.json; <source> is the series'
+name without echo-/inv-/flip-/part-. Times are in ms (Units).
 
 Resumable: a series whose provenance records the same input checksums and
 settings is skipped; otherwise (or with --force) it is fitted again. --jobs

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/nifti"
 )
 
@@ -73,19 +74,31 @@ func TestBatch(t *testing.T) {
 			t.Errorf("work file left behind: %s", f)
 		}
 	}
+	// Every name (bids.DerivativeName, docs/formats.md): each output of one
+	// input carries desc-<SUFFIX>; a standard error appends sd to the label.
 	a1 := "sub-01/ses-1/anat/sub-01_ses-1_"
-	for _, f := range []string{"dataset_description.json",
-		a1 + "T2map.nii.gz", a1 + "T2map.json", a1 + "desc-sd_T2map.nii.gz", a1 + "R2map.nii.gz",
-		a1 + "desc-MESE_M0map.nii.gz", a1 + "desc-MESEsd_M0map.json", a1 + "desc-MESE_status.nii.gz",
-		a1 + "desc-MESE_fitquality.nii.gz", a1 + "desc-MESE_provenance.json",
-		a1 + "T1map.nii.gz", a1 + "desc-IRT1_M0map.nii.gz", a1 + "desc-IRT1_inveff.nii.gz", a1 + "desc-IRT1_provenance.json",
-		"sub-02/ses-1/anat/sub-02_ses-1_T2map.nii.gz", "sub-02/ses-1/anat/sub-02_ses-1_desc-MESE_provenance.json"} {
-		if !have[f] {
-			t.Errorf("missing %s", f)
+	want := []string{"dataset_description.json"}
+	for _, job := range []struct{ prefix, suffix, model string }{
+		{a1, "MESE", "t2"}, {a1, "IRT1", "t1-ir"}, {"sub-02/ses-1/anat/sub-02_ses-1_", "MESE", "t2"},
+	} {
+		m, err := fit.New(fit.Spec{Model: job.model})
+		if err != nil {
+			t.Fatal(err)
 		}
+		d := job.prefix + "desc-" + job.suffix
+		for _, o := range m.Outputs() {
+			for _, ext := range []string{".nii.gz", ".json"} {
+				want = append(want, d+"_"+o.Map+ext, d+"sd_"+o.Map+ext)
+			}
+		}
+		for _, stem := range []string{"fitquality", "status"} {
+			want = append(want, d+"_"+stem+".nii.gz", d+"_"+stem+".json")
+		}
+		want = append(want, d+"_provenance.json")
 	}
-	if len(files) != 2*(8+10+8)+3+1 { // map + sidecar (t2: 8 maps, t1-ir: 10), 3 provenance, the description
-		t.Errorf("%d files:\n%s", len(files), strings.Join(files, "\n"))
+	sort.Strings(want)
+	if strings.Join(files, "\n") != strings.Join(want, "\n") {
+		t.Errorf("derivative names:\n%s\nwant:\n%s", strings.Join(files, "\n"), strings.Join(want, "\n"))
 	}
 
 	var desc map[string]any
@@ -97,7 +110,7 @@ func TestBatch(t *testing.T) {
 		t.Errorf("GeneratedBy %v", g)
 	}
 	var side map[string]any
-	b, _ = os.ReadFile(filepath.Join(out, a1+"T2map.json"))
+	b, _ = os.ReadFile(filepath.Join(out, a1+"desc-MESE_T2map.json"))
 	if err := json.Unmarshal(b, &side); err != nil {
 		t.Fatal(err)
 	}
@@ -116,7 +129,7 @@ func TestBatch(t *testing.T) {
 
 	// The truth of the generator: T2 = 40 + 80·i/15 ms inside the disc;
 	// noise SD 2 on M0 1000, so within 3 %.
-	m, err := nifti.Read(filepath.Join(out, "sub-02/ses-1/anat/sub-02_ses-1_T2map.nii.gz"))
+	m, err := nifti.Read(filepath.Join(out, "sub-02/ses-1/anat/sub-02_ses-1_desc-MESE_T2map.nii.gz"))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -159,7 +172,7 @@ func TestBatchResume(t *testing.T) {
 	if files := listTree(t, out); len(files) != 2*8+1+1 || !strings.HasPrefix(files[1], "sub-02/") {
 		t.Fatalf("participant 02 only: %v", files)
 	}
-	t2 := filepath.Join(out, "sub-02/ses-1/anat/sub-02_ses-1_T2map.nii.gz")
+	t2 := filepath.Join(out, "sub-02/ses-1/anat/sub-02_ses-1_desc-MESE_T2map.nii.gz")
 	first, err := nifti.Read(t2)
 	if err != nil {
 		t.Fatal(err)

@@ -69,6 +69,21 @@ func TestDocsMentionRealFlags(t *testing.T) {
 	if checked < 20 {
 		t.Errorf("only %d mentions checked; is the parser still finding them?", checked)
 	}
+	// The help topics (tauvox help TOPIC): every line that names a command.
+	topics, _ := filepath.Glob(filepath.Join("help", "*.txt"))
+	inHelp := 0
+	for _, path := range topics {
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for n, line := range strings.Split(string(b), "\n") {
+			inHelp += checkMention(t, path, n+1, line)
+		}
+	}
+	if inHelp < 5 {
+		t.Errorf("only %d mentions checked in the help topics", inHelp)
+	}
 }
 
 var wordTauvox = regexp.MustCompile(`(?:^|[\s/("'=])tauvox\s+([a-z][a-z0-9-]*)((?:\s+[^\s|;&]+)*)`)

@@ -23,14 +23,15 @@ DIR must not exist (or give --force).`
 
 func runExport(ctx context.Context, args []string, e *env) error {
 	var out, like, seriesID, maps string
-	var keep, force, quiet bool
+	var keep, quiet bool
+	var force forceFlag
 	fs := newFlags("export", "MAPS_DIR --dicom DIR [--like SOURCE_DICOM_DIR] [options]", exportSummary, e)
 	fs.StringVar(&out, "dicom", "", "output folder for the DICOM files (required)")
 	fs.StringVar(&like, "like", "", "source DICOM folder: copy its study and frame of reference")
 	fs.StringVar(&seriesID, "series", "", "series id within --like (see tauvox scan)")
 	fs.BoolVar(&keep, "keep-identifiers", false, "copy the patient name, ID, birth date and accession number of --like")
 	fs.StringVar(&maps, "maps", "", "comma list of map stems to write (default: all but *_sd and status)")
-	fs.BoolVar(&force, "force", false, "replace an existing output folder")
+	fs.Var(&force, "force", forceUsage)
 	fs.BoolVar(&quiet, "quiet", false, "print nothing on success")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
@@ -46,7 +47,11 @@ func runExport(ctx context.Context, args []string, e *env) error {
 	case seriesID != "" && like == "":
 		return fmt.Errorf("--series needs --like")
 	}
-	stems, err := pipeline.Export(ctx, pos[0], &pipeline.ExportOptions{Out: out, Force: force, Maps: maps, Like: like,
+	all, err := force.all(out)
+	if err != nil {
+		return err
+	}
+	stems, err := pipeline.Export(ctx, pos[0], &pipeline.ExportOptions{Out: out, Force: force.on, ForceAll: all, Maps: maps, Like: like,
 		Series: seriesID, KeepIdentifiers: keep, Software: "tauvox " + version()})
 	if err != nil {
 		return err

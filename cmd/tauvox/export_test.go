@@ -83,7 +83,13 @@ func TestExportDICOM(t *testing.T) {
 	if code, _, stderr := tauvox(t, "export", maps, "--dicom", out, "--like", filepath.Join(sim, "t2"), "--keep-identifiers", "--maps", "T2map", "--force", "--quiet"); code != 0 {
 		t.Fatal(stderr)
 	}
-	files, _ := os.ReadDir(out)
+	var files []string // the DICOM files; .tauvox-written lists them for --force
+	ents, _ := os.ReadDir(out)
+	for _, e := range ents {
+		if e.Name() != ".tauvox-written" {
+			files = append(files, e.Name())
+		}
+	}
 	c, err = dicom.Scan([]string{out}, &dicom.ScanOptions{Derived: true, KeepIdentifiers: true})
 	if err != nil || len(files) != 1 || len(c.Series) != 1 || c.Series[0].Identifiers.PatientName != src.Series[0].Identifiers.PatientName {
 		t.Errorf("keep identifiers: %d files, %v", len(files), err)

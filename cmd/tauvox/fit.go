@@ -2,8 +2,8 @@ package main
 
 import (
 	"context"
-	"errors"
 	"fmt"
+	"io"
 	"os"
 	"runtime/pprof"
 	"sort"
@@ -33,9 +33,12 @@ times; --te/--ti/--tr/--fa (ms, degrees) as lists "10,20,30" or ranges
 
 Models:
 ` + "%s" + `
-Masking: a voxel is fitted when its largest sample reaches half of Otsu's
-threshold of all voxels' largest samples (air is left out); --threshold sets
-the level, --mask FILE gives a mask (non-zero = fit), --no-mask fits all.`
+Masking: a voxel is fitted when its largest sample stands above the noise:
+σ is estimated from the air and the level is the one an air voxel exceeds
+with probability 1/1000 (without usable air: half of Otsu's threshold of
+all voxels' largest samples); provenance.json records the rule, level and
+σ. --threshold sets the level, --mask FILE gives a mask (non-zero = fit),
+--no-mask fits all.`
 
 // modelList is the model table of fit --help, read from the registry.
 func modelList() string {
@@ -76,11 +79,39 @@ func (l *listFlag) list() []float64 {
 // fitArgs are the flags of tauvox fit: the pipeline's Config and what only
 // the command line needs.
 type fitArgs struct {
-	c                         pipeline.Config
-	noise, cpuprofile, window string
-	quiet                     bool
-	te, ti, tr, fa            listFlag
-	memory                    byteFlag
+	c                 pipeline.Config
+	noise, cpuprofile string
+	window            rangeFlag
+	quiet             bool
+	force             forceFlag
+	te, ti, tr, fa    listFlag
+	memory            byteFlag
+}
+
+// modelArg returns the value of --model (or -model, --model=M) in args,
+// "" when there is none.
+func modelArg(args []string) string {
+	for i, a := range args {
+		a = "-" + strings.TrimLeft(a, "-")
+		if v, ok := strings.CutPrefix(a, "-model="); ok {
+			return v
+		}
+		if a == "-model" && i+1 < len(args) {
+			return args[i+1]
+		}
+	}
+	return ""
+}
+
+// modelHelp is the section of one model, from the registry: for fit
+// --model M --help and tauvox help model M.
+func modelHelp(m fit.ModelInfo) string {
+	opts := "none"
+	if len(m.Options) > 0 {
+		opts = "--" + strings.Join(m.Options, ", --")
+	}
+	return fmt.Sprintf("Model %s: %s\nmethods: %s (default %s); needs %s per volume; options: %s\nreference: %s\n\n%s\n",
+		m.Name, m.Summary, strings.Join(m.Methods, ", "), m.Methods[0], m.Needs, opts, m.Reference, m.Help)
 }
 
 // only returns a flag usage suffix naming the models that take the option.
@@ -94,7 +125,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.StringVar(&c.Spec.Method, "method", "", "estimation method (default: the model's first)")
 	fs.StringVar(&c.Out, "out", "", "output folder (required; refused if it exists, see --force)")
 	fs.StringVar(&c.Overrides.Series, "series", "", "DICOM series id when SERIES is a folder holding several (see tauvox scan)")
-	fs.BoolVar(&c.Force, "force", false, "replace an existing output folder")
+	fs.Var(&a.force, "force", forceUsage)
 	fs.StringVar(&c.Mask, "mask", "", "NIfTI mask on the series grid; voxels > 0 are fitted")
 	fs.Float64Var(&c.Threshold, "threshold", 0, "fit voxels whose largest sample reaches this value (default automatic)")
 	fs.BoolVar(&c.NoMask, "no-mask", false, "fit every voxel (no automatic threshold)")
@@ -119,16 +150,22 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&a.quiet, "quiet", false, "no progress bar or summary")
 	fs.BoolVar(&c.Overrides.KeepIdentifiers, "keep-identifiers", false, "copy the patient name, ID, birth date and accession number of a DICOM series into provenance.json (left out by default)")
 	fs.BoolVar(&c.NoPreview, "no-preview", false, "do not write the PNG previews of the maps")
-	fs.StringVar(&a.window, "range", "", "preview display window LO,HI in the map's unit (default 1st–99th percentile)")
+	fs.Var(&a.window, "range", rangeUsage)
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
 	a.memory = byteFlag(pipeline.DefaultMemory)
 	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
+	if m, ok := fit.Lookup(modelArg(args)); ok {
+		// fit --model M --help: the model first, then the options.
+		setHelp(fs, func() {
+			fmt.Fprint(e.stdout, modelHelp(m))
+			fmt.Fprintf(e.stdout, "\nUsage: tauvox fit SERIES --model %s --out DIR [options]\n(tauvox fit --help for the other models and the input rules)\n\nOptions:\n", m.Name)
+			fs.SetOutput(e.stdout)
+			fs.PrintDefaults()
+			fs.SetOutput(io.Discard)
+		})
+	}
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
-		if m, ok := fit.Lookup(c.Spec.Model); ok && errors.Is(err, errHelp) {
-			fmt.Fprintf(e.stdout, "\nModel %s: %s\nmethods: %s (default %s); needs %s per volume\n\n%s\n", m.Name, m.Summary,
-				strings.Join(m.Methods, ", "), m.Methods[0], m.Needs, m.Help)
-		}
 		return err
 	}
 	switch {
@@ -141,14 +178,16 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	case a.noise != "gaussian" && a.noise != "rician":
 		return fmt.Errorf("--noise must be gaussian or rician")
 	}
-	if a.window != "" {
-		w, err := preview.ParseWindow(a.window)
-		if err != nil {
-			return fmt.Errorf("--range: %v", err)
-		}
-		c.Window = w
+	w, err := preview.ParseWindows(a.window)
+	if err != nil {
+		return fmt.Errorf("--range: %v", err)
 	}
+	c.Window = w
 	c.Series = pos[0]
+	c.Force = a.force.on
+	if c.ForceAll, err = a.force.all(c.Out); err != nil {
+		return err
+	}
 	c.Rician = a.noise == "rician"
 	c.Overrides.TE, c.Overrides.TI, c.Overrides.TR, c.Overrides.FA = a.te.list(), a.ti.list(), a.tr.list(), a.fa.list()
 	c.Memory = int64(a.memory)

@@ -29,6 +29,9 @@ func helpTopics() []string {
 
 // helpTopic prints the text of a topic and reports whether there is one.
 func helpTopic(name string, w io.Writer) bool {
+	if name == "model" {
+		name = "models"
+	}
 	if name == "models" {
 		fmt.Fprintln(w, "Models (tauvox fit --model M; tauvox fit --model M --help for one)")
 		fmt.Fprintln(w)

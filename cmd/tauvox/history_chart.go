@@ -17,7 +17,8 @@ type chartArgs struct {
 	baseline, minSessions      int
 	minDrift, minLimit         float64
 	horizon                    float64
-	force, strict              bool
+	strict                     bool
+	force                      forceFlag
 }
 
 func chartFlags(a *chartArgs, e *env) *flag.FlagSet {
@@ -39,7 +40,7 @@ code 1 only for action items, or also for watch items with --strict.`, e)
 	fs.StringVar(&a.db, "db", "", "history database file (required)")
 	fs.StringVar(&a.scanner, "scanner", "", "only this scanner")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
-	fs.BoolVar(&a.force, "force", false, "replace an existing output folder")
+	fs.Var(&a.force, "force", forceUsage)
 	fs.IntVar(&a.baseline, "baseline", history.DefaultBaseline, "baseline: the first N sessions")
 	fs.StringVar(&a.from, "baseline-from", "", "baseline: sessions from this date (YYYY-MM-DD) instead")
 	fs.StringVar(&a.to, "baseline-to", "", "baseline: sessions up to this date (with --baseline-from)")

@@ -18,6 +18,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"github.com/tauvox/tauvox/fit"
 	"io"
 	"os"
 	"os/signal"
@@ -97,7 +98,20 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	name := args[0]
+	if name == "--version" || name == "-version" || name == "-V" {
+		name, args = "version", append([]string{"version"}, args[1:]...)
+	}
 	if name == "-h" || name == "--help" || name == "help" {
+		if len(args) > 2 && name == "help" && (args[1] == "model" || args[1] == "models") {
+			// tauvox help model M: one model's section from the registry.
+			m, ok := fit.Lookup(args[2])
+			if !ok {
+				fmt.Fprintf(stderr, "tauvox help: unknown model %q (choose %s)\n", args[2], fit.Names())
+				return 2
+			}
+			fmt.Fprint(stdout, modelHelp(m))
+			return 0
+		}
 		if len(args) > 1 && name == "help" {
 			if helpTopic(args[1], stdout) {
 				return 0
@@ -202,6 +216,13 @@ func newFlags(name, args, summary string, e *env) *flag.FlagSet {
 		fs.SetOutput(io.Discard)
 	}
 	return fs
+}
+
+// setHelp replaces the --help printer of a FlagSet made by newFlags.
+func setHelp(fs *flag.FlagSet, help func()) {
+	helpMu.Lock()
+	defer helpMu.Unlock()
+	helpText[fs] = help
 }
 
 // parse parses flags that may come before or after the positional

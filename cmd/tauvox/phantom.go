@@ -26,8 +26,9 @@ func (o finite) Set(s string) error {
 
 func runPhantom(ctx context.Context, args []string, e *env) error {
 	var (
-		out, face, history     string
-		force, mirrored, quiet bool
+		out, face, history string
+		mirrored, quiet    bool
+		force              forceFlag
 	)
 	// A NaN temperature is not given; a NaN field comes from the maps.
 	c := &qarun.Config{Options: phantom.Options{Tool: phantom.Tool{Name: "tauvox", Version: version()},
@@ -49,7 +50,7 @@ printed. Exit code 1 when any vial fails or is undetermined.
 	fs.StringVar(&c.Def, "def", "", "phantom definition (JSON, format tauvox-phantom/1) or \"demo\" (required)")
 	fs.Var(finite{&o.Session.Temperature}, "temperature", "phantom temperature, °C (required)")
 	fs.StringVar(&out, "out", "", "output folder (required)")
-	fs.BoolVar(&force, "force", false, "replace an existing output folder")
+	fs.Var(&force, "force", forceUsage)
 	fs.Var(finite{&o.Session.Field}, "field", "field strength, T (default: from the maps' provenance)")
 	fs.StringVar(&o.Session.Scanner, "scanner", "", "scanner name (default: from the headers)")
 	fs.StringVar(&o.Session.Date, "date", "", "session date YYYY-MM-DD (default: acquisition date)")

@@ -19,19 +19,34 @@ T2/T2*/R2/R2* viridis, rates reversed, fractions cividis, others grey), a
 colour bar labelled with the unit, and voxels without a value (failed or
 masked fits, NaN) in black, apart from the darkest valid colour.
 
-The display window is the 1st to 99th percentile of each map unless
---range LO,HI gives one (for every map written; choose them with --maps).
-By default every map except the standard errors (_sd) and status is drawn.
-Existing PNGs are replaced only with --force.`
+The display window is the 1st to 99th percentile of each map unless --range
+gives one: --range T2=0,300 for the maps of one quantity (repeat the flag
+for others), a bare --range 0,300 for every map in ms; the other maps keep
+their automatic windows. By default every map except the standard errors
+(_sd) and status is drawn. The previews a fit drew in MAPS_DIR are replaced;
+existing PNGs in another --out folder only with --force.`
+
+// rangeUsage describes the --range flag of fit and preview.
+const rangeUsage = "display window QUANTITY=LO,HI (e.g. T2=0,300; repeatable), or LO,HI for every map in ms (default 1st–99th percentile)"
+
+// rangeFlag collects the repeatable --range flag (a value holds a comma).
+type rangeFlag []string
+
+func (r *rangeFlag) String() string { return strings.Join(*r, " ") }
+func (r *rangeFlag) Set(s string) error {
+	*r = append(*r, s)
+	return nil
+}
 
 func runPreview(ctx context.Context, args []string, e *env) error {
-	var rangeS, out, maps string
+	var ranges rangeFlag
+	var out, maps string
 	var force, quiet bool
-	fs := newFlags("preview", "MAPS_DIR [--range LO,HI] [--out DIR] [--maps LIST]", previewSummary, e)
-	fs.StringVar(&rangeS, "range", "", "display window LO,HI in the map's unit (default 1st–99th percentile)")
+	fs := newFlags("preview", "MAPS_DIR [--range QUANTITY=LO,HI] [--out DIR] [--maps LIST]", previewSummary, e)
+	fs.Var(&ranges, "range", rangeUsage)
 	fs.StringVar(&out, "out", "", "folder for the PNG files (default MAPS_DIR)")
 	fs.StringVar(&maps, "maps", "", "comma list of map stems to draw (default: all but *_sd and status)")
-	fs.BoolVar(&force, "force", false, "replace existing PNG files")
+	fs.BoolVar(&force, "force", false, "replace existing PNG files in another --out folder")
 	fs.BoolVar(&quiet, "quiet", false, "print nothing on success")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
@@ -40,13 +55,9 @@ func runPreview(ctx context.Context, args []string, e *env) error {
 	if len(pos) != 1 {
 		return fmt.Errorf("give exactly one MAPS_DIR (see --help)")
 	}
-	var win preview.Window
-	if rangeS != "" {
-		w, err := preview.ParseWindow(rangeS)
-		if err != nil {
-			return fmt.Errorf("--range: %v", err)
-		}
-		win = w
+	win, err := preview.ParseWindows(ranges)
+	if err != nil {
+		return fmt.Errorf("--range: %v", err)
 	}
 	folder, err := mapset.Open(pos[0])
 	if err != nil {
@@ -56,13 +67,14 @@ func runPreview(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	if out == "" {
+	own := out == ""
+	if own {
 		out = pos[0]
 	}
 	if err := os.MkdirAll(out, 0o755); err != nil {
 		return err
 	}
-	if !force {
+	if !force && !own {
 		for _, s := range stems {
 			p := filepath.Join(out, s+".png")
 			if _, err := os.Stat(p); err == nil {

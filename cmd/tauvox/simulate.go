@@ -56,10 +56,10 @@ type simArgs struct {
 	scanner, date, clock string
 	description          string
 	kind, out            string
-	force                bool
+	force                forceFlag
 	field, temp, sigma   float64
 	rotation, b1, ineff  float64
-	mirror               bool
+	mirrored             bool
 	seed                 uint64
 	matrix, slices       int
 	center               vecFlag
@@ -77,13 +77,13 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 		"Writes a synthetic series of the built-in demo phantom (invented values) with\nknown truth: DIR/<kind>.nii.gz with its BIDS sidecar, and truth_<Q>map.nii.gz\n(NaN outside whole-voxel vial interiors). Kinds:\n"+b.String(), e)
 	fs.StringVar(&a.kind, "kind", "", "acquisition to simulate (required)")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
-	fs.BoolVar(&a.force, "force", false, "replace an existing output folder")
+	fs.Var(&a.force, "force", forceUsage)
 	fs.Float64Var(&a.field, "field", 1.5, "field strength, T (reference rows exist at 1.5 and 3)")
 	fs.Float64Var(&a.temp, "temperature", 20, "phantom temperature, °C")
 	fs.Float64Var(&a.sigma, "sigma", 10, "Rician noise SD (fully relaxed signal of PD 1 is 1000); 0 for none")
 	fs.Var(&a.center, "center", "phantom centre in scanner RAS mm, x,y,z")
 	fs.Float64Var(&a.rotation, "rotation", 0, "in-plane rotation of the phantom, degrees")
-	fs.BoolVar(&a.mirror, "mirror", false, "phantom lies face down (mirror image)")
+	fs.BoolVar(&a.mirrored, "mirrored", false, "phantom lies face down (mirror image), as phantom --mirrored")
 	fs.Float64Var(&a.b1, "b1", 1, "transmit field scale applied to every flip angle")
 	fs.Float64Var(&a.ineff, "inversion-efficiency", 1, "inversion efficiency (1 = perfect 180°)")
 	fs.Uint64Var(&a.seed, "seed", 1, "noise seed")
@@ -111,7 +111,7 @@ func (a *simArgs) scene() *phantom.Scene {
 		sigma = -1
 	}
 	return &phantom.Scene{Def: phantom.Demo(), Field: a.field, Temperature: a.temp, Center: a.center.v,
-		Rotation: a.rotation, Mirror: a.mirror, Matrix: a.matrix, Slices: a.slices, Sigma: sigma,
+		Rotation: a.rotation, Mirror: a.mirrored, Matrix: a.matrix, Slices: a.slices, Sigma: sigma,
 		B1: a.b1, Efficiency: a.ineff, Seed: a.seed, Shift: a.drift, Tilt: a.tilt}
 }
 

@@ -22,33 +22,18 @@ type Job struct {
 }
 
 // Plan makes one job per collection of ds, with the model modelOf names
-// for its suffix, writing into the derivative dataset out. Relaxometry
-// maps that two series of one folder would both write get desc-<SUFFIX>.
+// for its suffix, writing into the derivative dataset out. Every output of
+// a job carries desc-<SUFFIX> (bids.DerivativeName).
 func Plan(ds *bids.Dataset, out string, modelOf map[string]string) ([]*Job, error) {
 	var jobs []*Job
-	claims := map[string][]*Job{}
 	for _, c := range ds.Collections {
 		m, err := fit.New(fit.Spec{Model: modelOf[c.Suffix]})
 		if err != nil {
 			return nil, err
 		}
 		info, _ := fit.Lookup(m.Name())
-		j := &Job{Model: m, Root: ds.Root, Pub: bids.Publication{Collection: c, Dir: filepath.Join(out, filepath.FromSlash(c.Dir)),
-			Stems: Stems(m), Reference: info.Reference}}
-		jobs = append(jobs, j)
-		for _, s := range j.Pub.Stems {
-			if bids.IsQuantityMap(s) {
-				k := filepath.Join(j.Pub.Dir, j.Pub.Name(s, ""))
-				claims[k] = append(claims[k], j)
-			}
-		}
-	}
-	for _, js := range claims {
-		if len(js) > 1 {
-			for _, j := range js {
-				j.Pub.Labelled = true
-			}
-		}
+		jobs = append(jobs, &Job{Model: m, Root: ds.Root, Pub: bids.Publication{Collection: c, Dir: filepath.Join(out, filepath.FromSlash(c.Dir)),
+			Stems: Stems(m), Reference: info.Reference}})
 	}
 	return jobs, nil
 }
@@ -75,7 +60,7 @@ func (j *Job) config(workers int, version string) *Config {
 	return &Config{Spec: fit.Spec{Model: j.Model.Name()}, Workers: workers,
 		Out: filepath.Join(j.Pub.Dir, ".tauvox-"+c.Base.String()+"_"+c.Suffix), Force: true, NoPreview: true, Version: version,
 		Hint:  " (the sidecars give the parameters)",
-		Extra: map[string]any{"suffix": c.Suffix, "source": c.ID(), "labelled": j.Pub.Labelled}}
+		Extra: map[string]any{"suffix": c.Suffix, "source": c.ID()}}
 }
 
 // Run loads, fits and writes the job's series through Run into the hidden

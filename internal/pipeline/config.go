@@ -3,6 +3,7 @@ package pipeline
 import (
 	"errors"
 	"fmt"
+	"github.com/tauvox/tauvox/io/mapset"
 	"math"
 	"runtime"
 	"time"
@@ -50,13 +51,16 @@ type Config struct {
 	// Memory is the slab budget in bytes for NIfTI series; 0 means
 	// DefaultMemory.
 	Memory int64
-	// Out is the output folder; Force replaces an existing one.
-	Out   string
-	Force bool
-	// NoPreview leaves out the PNG previews; Window is their display
-	// window (zero: 1st–99th percentile).
+	// Out is the output folder; Force replaces an existing one that holds
+	// only what tauvox wrote there, ForceAll (the user named the folder)
+	// whatever it holds.
+	Out      string
+	Force    bool
+	ForceAll bool
+	// NoPreview leaves out the PNG previews; Window are their display
+	// windows by quantity (zero: 1st–99th percentile).
 	NoPreview bool
-	Window    preview.Window
+	Window    preview.Windows
 	// Whole makes a NIfTI series load whole, as DICOM series are (tests
 	// compare the two ways).
 	Whole bool
@@ -173,8 +177,12 @@ func (c *Config) protocolError(m fit.Model, err error) error {
 	hint := ""
 	if errors.Is(err, fit.ErrProtocol) {
 		hint = c.Hint
-		if hint == "" {
+		switch {
+		case hint != "":
+		case series.IsNIfTI(c.Series):
 			hint = "; the sidecar (" + series.SidecarName(c.Series) + ") or --te/--ti/--tr/--fa give the parameters"
+		default:
+			hint = "; the DICOM headers or --te/--ti/--tr/--fa give the parameters"
 		}
 	}
 	return c.errorf("model %s: %v%s", m.Name(), err, hint)
@@ -187,4 +195,13 @@ func (c *Config) errorf(format string, args ...any) error {
 		return fmt.Errorf(format, args...)
 	}
 	return fmt.Errorf("%s: "+format, append([]any{c.Series}, args...)...)
+}
+
+// newStage starts the output folder out (mapset.NewStage, or
+// mapset.NewStageReplacing with all).
+func newStage(out string, force, all bool) (*mapset.Stage, error) {
+	if all {
+		return mapset.NewStageReplacing(out)
+	}
+	return mapset.NewStage(out, force)
 }

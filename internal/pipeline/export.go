@@ -14,7 +14,9 @@ import (
 // ExportOptions are the settings of Export.
 type ExportOptions struct {
 	Out   string // output folder of the DICOM files
-	Force bool   // replace an existing Out
+	Force bool   // replace an existing Out holding only what tauvox wrote
+	// ForceAll replaces Out whatever it holds (the user named it).
+	ForceAll bool
 	// Maps is a comma list of map stems ("" for all but standard errors
 	// and status; see mapset.Folder.Choose).
 	Maps string
@@ -66,7 +68,7 @@ func Export(ctx context.Context, dir string, o *ExportOptions) ([]string, error)
 			}
 		}
 	}
-	st, err := mapset.NewStage(o.Out, o.Force)
+	st, err := newStage(o.Out, o.Force, o.ForceAll)
 	if err != nil {
 		return nil, err
 	}

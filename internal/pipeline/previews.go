@@ -18,7 +18,7 @@ import (
 )
 
 // Previews draws a PNG montage of each map stem of folder into out.
-func Previews(ctx context.Context, folder *mapset.Folder, stems []string, out string, win preview.Window) error {
+func Previews(ctx context.Context, folder *mapset.Folder, stems []string, out string, win preview.Windows) error {
 	jobs := make([]previewJob, len(stems))
 	for i, s := range stems {
 		jobs[i] = previewJob{stem: s, path: folder.Maps[s]}
@@ -40,7 +40,7 @@ type previewJob struct {
 // (maps read from files are drawn one at a time: a map and its montage of
 // a large series take hundreds of megabytes). It returns the first error
 // (in job order).
-func drawPreviews(ctx context.Context, jobs []previewJob, out string, win preview.Window, parallel int) error {
+func drawPreviews(ctx context.Context, jobs []previewJob, out string, win preview.Windows, parallel int) error {
 	errs := make([]error, len(jobs))
 	sem := make(chan struct{}, max(parallel, 1))
 	var wg sync.WaitGroup
@@ -65,7 +65,7 @@ func drawPreviews(ctx context.Context, jobs []previewJob, out string, win previe
 	return nil
 }
 
-func drawPreview(j previewJob, out string, win preview.Window) error {
+func drawPreview(j previewJob, out string, win preview.Windows) error {
 	im := j.im
 	if im == nil {
 		var err error
@@ -88,7 +88,11 @@ func drawPreview(j previewJob, out string, win preview.Window) error {
 	if unit == "arbitrary" {
 		unit = "a.u."
 	}
-	img, err := preview.Montage(im, &preview.Options{Quantity: q, Unit: unit, Window: win, Title: j.stem})
+	w := win.For(q, unit)
+	if strings.HasSuffix(j.stem, "fitquality") {
+		w = preview.Window{}
+	}
+	img, err := preview.Montage(im, &preview.Options{Quantity: q, Unit: unit, Window: w, Title: j.stem})
 	if err != nil {
 		return fmt.Errorf("%s: %v", j.path, err)
 	}
@@ -101,7 +105,7 @@ func drawPreview(j previewJob, out string, win preview.Window) error {
 // by stem, for a fit of one slab) it draws them from memory and may run
 // while the map files are still being written; otherwise it reads the
 // files, which must be complete.
-func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.Window, inMemory map[string]*volume.Image) error {
+func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.Windows, inMemory map[string]*volume.Image) error {
 	var jobs []previewJob
 	if inMemory != nil {
 		for _, p := range outs {

@@ -20,6 +20,7 @@ func Run(ctx context.Context, c *Config, progress Progress) (*Summary, error) {
 	if err := c.check(); err != nil {
 		return nil, err
 	}
+	c.Overrides.Notices = nil
 	if c.Image == nil && !c.Whole {
 		if st, err := os.Stat(c.Series); err == nil && !st.IsDir() && series.IsNIfTI(c.Series) {
 			return runSlabs(ctx, c, progress)
@@ -67,11 +68,18 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 		}
 		inputs = append(inputs, series.Input{Path: c.B1, Role: "b1"})
 	}
+	var auto fit.AutoMask
+	if c.auto() || (c.Rician && c.Spec.Sigma == 0 && c.Threshold <= 0) {
+		auto = fit.AutoMaskOf(im)
+	}
+	if c.auto() {
+		opt.Threshold, opt.NoThreshold = auto.Threshold, auto.Threshold <= 0
+	}
 	sigma := c.Spec.Sigma
 	if c.Rician && sigma == 0 {
 		thr := c.Threshold
 		if thr <= 0 {
-			thr = fit.AutoThreshold(im)
+			thr = auto.Threshold
 		}
 		s, ok := fit.BackgroundSigma(im, thr)
 		if !ok {
@@ -86,12 +94,12 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 	if _, err := model.NewFitter(im.Acq); err != nil {
 		return nil, c.protocolError(model, err)
 	}
-	st, err := mapset.NewStage(c.Out, c.Force)
+	st, err := newStage(c.Out, c.Force, c.ForceAll)
 	if err != nil {
 		return nil, err
 	}
 	defer st.Abort()
-	notes := st.Notes()
+	notes := append(append([]string(nil), c.Overrides.Notices...), st.Notes()...)
 	tLoad := time.Since(t0)
 	if progress != nil {
 		total := im.Voxels()
@@ -106,7 +114,7 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 		Workers: c.workers(), Slabs: 1, Fit: time.Since(t1), Sigma: sigma}
 	t2 := time.Now()
 	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: c.Settings(model, sigma), StatusNames: statusNames(),
-		Inputs: inputs, Source: im.Source, Acq: im.Acq,
+		Inputs: inputs, Source: im.Source, Acq: im.Acq, AutoMask: c.autoRecord(auto),
 		Timings: map[string]float64{"load": tLoad.Seconds(), "fit": sum.Fit.Seconds()}}
 	drawn := c.previews(ctx, st, model.Outputs(), wholeMaps(maps, im.Dims, im.Affine))
 	if _, err := mapset.Write(st, outputs(model), toSlab(maps), im, info); err != nil {
@@ -121,6 +129,18 @@ func runWhole(ctx context.Context, c *Config, progress Progress) (*Summary, erro
 	}
 	sum.Write = time.Since(t2)
 	return sum, nil
+}
+
+// auto reports whether the automatic mask decides which voxels are fitted.
+func (c *Config) auto() bool { return c.Threshold <= 0 && c.Mask == "" && !c.NoMask }
+
+// autoRecord returns the provenance record of the automatic mask m, nil
+// when the automatic mask was not applied.
+func (c *Config) autoRecord(m fit.AutoMask) *mapset.AutoMask {
+	if !c.auto() || m.Rule == "" {
+		return nil
+	}
+	return &mapset.AutoMask{Rule: m.Rule, Threshold: m.Threshold, Sigma: m.Sigma, Rate: m.Rate, Air: m.Air, Otsu: m.Otsu, Why: m.Why}
 }
 
 // wholeMaps returns the parameter maps of a fit of a whole grid by stem,

@@ -62,6 +62,9 @@ func Simulate(dir string, s *Simulation) ([]string, error) {
 		if o.l == nil {
 			continue
 		}
+		if err := series.CheckUnits(o.flag, o.l); err != nil {
+			return nil, err
+		}
 		if len(o.l) != len(acq) {
 			if len(o.l) < 2 {
 				return nil, fmt.Errorf("--%s needs at least two values", o.flag)

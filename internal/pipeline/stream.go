@@ -40,7 +40,9 @@ func openSlabSource(c *Config, tmpDir string) (*slabSource, error) {
 		r.Close()
 		return nil, err
 	}
-	s.acq, s.inputs, err = series.NIfTIProtocol(c.Series, nt, &s.src, &series.Overrides{TE: c.Overrides.TE, TI: c.Overrides.TI, TR: c.Overrides.TR, FA: c.Overrides.FA})
+	o := series.Overrides{TE: c.Overrides.TE, TI: c.Overrides.TI, TR: c.Overrides.TR, FA: c.Overrides.FA}
+	s.acq, s.inputs, err = series.NIfTIProtocol(c.Series, nt, &s.src, &o)
+	c.Overrides.Notices = append(c.Overrides.Notices, o.Notices...)
 	if err != nil {
 		return fail(err)
 	}
@@ -74,17 +76,17 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	if err != nil {
 		return nil, err
 	}
-	st, err := mapset.NewStage(c.Out, c.Force)
+	st, err := newStage(c.Out, c.Force, c.ForceAll)
 	if err != nil {
 		return nil, err
 	}
 	defer st.Abort()
-	notes := st.Notes()
 	tmpDir := st.Path("")
 	src, err := openSlabSource(c, tmpDir)
 	if err != nil {
 		return nil, err
 	}
+	notes := append(append([]string(nil), c.Overrides.Notices...), st.Notes()...)
 	defer src.r.Close()
 	if _, err := model.NewFitter(src.acq); err != nil {
 		return nil, c.protocolError(model, err)
@@ -162,7 +164,8 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 
 	// Pass 1: threshold and noise level over the whole series.
 	t1 := time.Now()
-	auto := c.Threshold <= 0 && c.Mask == "" && !c.NoMask
+	auto := c.auto()
+	var am fit.AutoMask
 	needSigma := c.Rician && c.Spec.Sigma == 0
 	thr := c.Threshold
 	var first *volume.Image // the one slab, when the series is a single slab
@@ -183,12 +186,14 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 			return nil, err
 		}
 		if auto {
-			thr = fit.PeaksThreshold(peaks)
+			am = fit.PeaksMask(peaks, nvol)
+			thr = am.Threshold
 		}
 	} else if auto {
-		if thr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
+		if am, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
 			return nil, err
 		}
+		thr = am.Threshold
 	}
 	if needSigma {
 		sthr := c.Threshold
@@ -199,8 +204,12 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 				// threshold even when a mask or --no-mask decides the fit.
 				if nslab == 1 {
 					sthr = fit.AutoThreshold(first)
-				} else if sthr, err = streamThreshold(ctx, nslab, slab, tmpDir); err != nil {
-					return nil, err
+				} else {
+					m, err := streamThreshold(ctx, nslab, slab, tmpDir)
+					if err != nil {
+						return nil, err
+					}
+					sthr = m.Threshold
 				}
 			}
 		}
@@ -230,7 +239,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	settings["memory_bytes"], settings["slabs"], settings["slices_per_slab"] = c.memory(), nslab, plan.Slices
 	timings := map[string]float64{}
 	info := &mapset.Info{Model: model.Name(), Method: model.Method(), Version: c.Version, Settings: settings, StatusNames: statusNames(),
-		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings, Sums: sums}
+		Inputs: inputs, Source: src.src, Acq: src.acq, Timings: timings, Sums: sums, AutoMask: c.autoRecord(am)}
 	w, err := mapset.NewWriter(st, outputs(model), [3]int{nx, ny, nz}, affine, info)
 	if err != nil {
 		return nil, err

@@ -2,6 +2,7 @@ package pipeline
 
 import (
 	"fmt"
+	"github.com/tauvox/tauvox/io/series"
 	"image/color"
 	"math"
 	"strings"
@@ -22,6 +23,11 @@ import (
 func OverrideProtocol(acq []volume.Acquisition, te, ti, tr, fa []float64) ([]volume.Acquisition, error) {
 	if te == nil && ti == nil && tr == nil && fa == nil {
 		return acq, nil
+	}
+	for i, l := range [][]float64{te, ti, tr, fa} {
+		if err := series.CheckUnits([]string{"te", "ti", "tr", "fa"}[i], l); err != nil {
+			return nil, err
+		}
 	}
 	n := 0
 	for _, l := range [][]float64{te, ti, tr, fa} {

@@ -87,7 +87,7 @@ func Assess(c *Config) (*Session, error) {
 	}
 	switch {
 	case sess.Date == "":
-		return nil, errors.New("session date unknown: give --date YYYY-MM-DD")
+		return nil, fmt.Errorf("session date unknown: %s records no acquisition date (the series' sidecar has no AcquisitionDateTime, the DICOM no AcquisitionDate); give --date YYYY-MM-DD", strings.Join(c.Maps, ", "))
 	case !dateRE.MatchString(sess.Date):
 		return nil, fmt.Errorf("--date %q: want YYYY-MM-DD", sess.Date)
 	case sess.Time != "" && !clockRE.MatchString(sess.Time):

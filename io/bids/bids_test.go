@@ -46,23 +46,18 @@ func TestParseName(t *testing.T) {
 func TestDerivativeName(t *testing.T) {
 	base, _ := ParseName("sub-01_ses-1_acq-fast_run-2_MESE")
 	base = base.Without()
-	cases := []struct {
-		stem     string
-		labelled bool
-		want     string
-	}{
-		{"T2map", false, "sub-01_ses-1_acq-fast_run-2_T2map.nii.gz"},
-		{"T2map_sd", false, "sub-01_ses-1_acq-fast_run-2_desc-sd_T2map.nii.gz"},
-		{"T2map", true, "sub-01_ses-1_acq-fast_run-2_desc-MESE_T2map.nii.gz"},
-		{"T2map_sd", true, "sub-01_ses-1_acq-fast_run-2_desc-MESEsd_T2map.nii.gz"},
-		{"M0map", false, "sub-01_ses-1_acq-fast_run-2_desc-MESE_M0map.nii.gz"},
-		{"M0map_sd", false, "sub-01_ses-1_acq-fast_run-2_desc-MESEsd_M0map.nii.gz"},
-		{"status", false, "sub-01_ses-1_acq-fast_run-2_desc-MESE_status.nii.gz"},
-		{"fitquality", true, "sub-01_ses-1_acq-fast_run-2_desc-MESE_fitquality.nii.gz"},
+	cases := []struct{ stem, want string }{
+		{"T2map", "sub-01_ses-1_acq-fast_run-2_desc-MESE_T2map.nii.gz"},
+		{"T2map_sd", "sub-01_ses-1_acq-fast_run-2_desc-MESEsd_T2map.nii.gz"},
+		{"R2map", "sub-01_ses-1_acq-fast_run-2_desc-MESE_R2map.nii.gz"},
+		{"M0map", "sub-01_ses-1_acq-fast_run-2_desc-MESE_M0map.nii.gz"},
+		{"M0map_sd", "sub-01_ses-1_acq-fast_run-2_desc-MESEsd_M0map.nii.gz"},
+		{"status", "sub-01_ses-1_acq-fast_run-2_desc-MESE_status.nii.gz"},
+		{"fitquality", "sub-01_ses-1_acq-fast_run-2_desc-MESE_fitquality.nii.gz"},
 	}
 	for _, c := range cases {
-		if got := DerivativeName(base, "MESE", c.stem, ".nii.gz", c.labelled); got != c.want {
-			t.Errorf("%s labelled=%v: %s, want %s", c.stem, c.labelled, got, c.want)
+		if got := DerivativeName(base, "MESE", c.stem, ".nii.gz"); got != c.want {
+			t.Errorf("%s: %s, want %s", c.stem, got, c.want)
 		}
 	}
 	// desc- goes after run- and before nothing else of the table.

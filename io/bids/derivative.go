@@ -11,49 +11,40 @@ import (
 	"github.com/tauvox/tauvox/internal/output"
 )
 
-// quantityMaps are the BIDS qMRI map suffixes (check-values §3.6) that
-// name one quantity of one series and so get a name without a desc-
-// entity.
+// quantityMaps are the BIDS qMRI map suffixes (check-values §3.6) of the
+// relaxometry maps.
 var quantityMaps = map[string]bool{"T1map": true, "T2map": true, "T2starmap": true, "R1map": true, "R2map": true, "R2starmap": true}
 
 // IsQuantityMap reports whether stem (a tauvox output stem such as
-// "T2map" or "M0map") is a BIDS relaxometry map suffix that DerivativeName
-// writes without a desc- entity.
+// "T2map" or "M0map") is a BIDS relaxometry map suffix.
 func IsQuantityMap(stem string) bool { return quantityMaps[stem] }
 
 // DerivativeName returns the file name, with extension ext (".nii.gz",
 // ".json"), of the output stem of a fit of the collection named base (the
 // source entities without index and part entities) whose source suffix is
-// source ("MESE"):
+// source ("MESE"). Every output of one input carries the same desc-
+// entity, its source suffix, so that the outputs of two series of one
+// session (IRT1 and VFA both give T1map and M0map) stay apart and a
+// listing groups them:
 //
-//	T2map, R2map, T1map, ...    <base>_T2map            (labelled: <base>_desc-MESE_T2map)
-//	T2map_sd                    <base>_desc-sd_T2map    (labelled: <base>_desc-MESEsd_T2map)
-//	M0map, inveff, status, ...  <base>_desc-MESE_M0map, <base>_desc-MESE_status
-//	M0map_sd                    <base>_desc-MESEsd_M0map
-//	provenance                  <base>_desc-MESE_provenance.json
+//	T2map, M0map, inveff, status, ...  <base>_desc-MESE_T2map, <base>_desc-MESE_status
+//	T2map_sd, M0map_sd, ...            <base>_desc-MESEsd_T2map
+//	provenance                         <base>_desc-MESE_provenance.json
 //
-// Relaxometry maps (IsQuantityMap) keep plain BIDS names; labelled asks for
-// the desc- entity on them too, for a session in which two series would
-// otherwise make the same map (IRT1 and VFA both give T1map). Every other
-// output names its source suffix in desc-, so that the M0map of a T2 fit and
-// of a T1 fit of one session stay apart; "sd" appended to the desc label
-// marks a standard-error map.
-func DerivativeName(base Name, source, stem, ext string, labelled bool) string {
+// A standard-error map keeps the suffix of its quantity (it is in the
+// quantity's unit) and appends "sd" to the desc label: BIDS allows one
+// desc entity whose label is alphanumeric, so the mark cannot be a
+// separate entity or a hyphenated label.
+func DerivativeName(base Name, source, stem, ext string) string {
 	q, sd := strings.CutSuffix(stem, "_sd")
-	desc := ""
-	if !quantityMaps[q] || labelled {
-		desc = source
-	}
+	desc := source
 	if sd {
 		desc += "sd"
 	}
 	n := base.Without("desc")
 	n.Ext = ext
 	n.Suffix = q
-	if desc != "" {
-		n = n.With("desc", desc)
-	}
-	return n.String()
+	return n.With("desc", desc).String()
 }
 
 // URI returns the BIDS URI of a file of the dataset linked as name in

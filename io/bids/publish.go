@@ -19,7 +19,6 @@ import (
 type Publication struct {
 	Collection *Collection
 	Dir        string // the derivative folder of the collection
-	Labelled   bool   // relaxometry maps carry desc-<SUFFIX> (see DerivativeName)
 	// Stems are the map stems the fit wrote (T2map, T2map_sd, ...,
 	// fitquality, status).
 	Stems []string
@@ -30,7 +29,7 @@ type Publication struct {
 // Name returns the derivative file name of a stem of the publication.
 func (p *Publication) Name(stem, ext string) string {
 	c := p.Collection
-	return DerivativeName(c.Base, c.Suffix, stem, ext, p.Labelled)
+	return DerivativeName(c.Base, c.Suffix, stem, ext)
 }
 
 // ProvenancePath is where the publication's provenance is written; a

@@ -1,6 +1,7 @@
 package mapset
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -35,11 +36,76 @@ type Stage struct {
 // folder as being written by a living process.
 const ownerFile = ".tauvox-owner"
 
+// ErrForeign reports a folder that --force would replace but that holds
+// files tauvox did not write there.
+var ErrForeign = errors.New("holds files tauvox did not write")
+
+// writtenFile lists, in a finished output folder, the entries the stage put
+// there (one name a line), so that a later --force can tell them from
+// files of the user's.
+const writtenFile = ".tauvox-written"
+
 // NewStage prepares to write the folder dir: it refuses an existing dir
-// unless force is set or dir is an empty folder, and creates an empty
-// temporary folder beside it. It first tidies what earlier runs for the
-// same output left when they were killed (see Notes).
+// unless dir is an empty folder or force is set and dir holds only what
+// tauvox wrote there (Written), and creates an empty temporary folder
+// beside it. It first tidies what earlier runs for the same output left
+// when they were killed (see Notes).
 func NewStage(dir string, force bool) (*Stage, error) {
+	return newStage(dir, force, false)
+}
+
+// NewStageReplacing is NewStage with force for a folder the user named
+// explicitly for replacement (--force=DIR): it is replaced whatever it
+// holds.
+func NewStageReplacing(dir string) (*Stage, error) {
+	return newStage(dir, true, true)
+}
+
+// Written returns the entries of the folder dir that tauvox wrote there:
+// those listed in its .tauvox-written file (or, for a fit folder written
+// before that file existed, the outputs its provenance.json lists and
+// provenance.json), the PNG preview of any NIfTI map among them, and the
+// list itself; and the other entries, sorted.
+func Written(dir string) (own, other []string, err error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, nil, err
+	}
+	set := map[string]bool{writtenFile: true}
+	if b, err := os.ReadFile(filepath.Join(dir, writtenFile)); err == nil {
+		for _, n := range strings.Split(string(b), "\n") {
+			if n != "" {
+				set[n] = true
+			}
+		}
+	} else if b, err := os.ReadFile(filepath.Join(dir, "provenance.json")); err == nil {
+		var p struct {
+			Tool    string   `json:"tool"`
+			Outputs []string `json:"outputs"`
+		}
+		if json.Unmarshal(b, &p) == nil && p.Tool == "tauvox" {
+			set["provenance.json"] = true
+			for _, n := range p.Outputs {
+				set[n] = true
+			}
+		}
+	}
+	for n := range set {
+		if stem, ok := strings.CutSuffix(n, ".nii.gz"); ok {
+			set[stem+".png"] = true
+		}
+	}
+	for _, e := range ents {
+		if set[e.Name()] {
+			own = append(own, e.Name())
+		} else {
+			other = append(other, e.Name())
+		}
+	}
+	return own, other, nil
+}
+
+func newStage(dir string, force, named bool) (*Stage, error) {
 	dir = filepath.Clean(dir)
 	parent := filepath.Dir(dir)
 	if err := os.MkdirAll(parent, 0o755); err != nil {
@@ -56,6 +122,18 @@ func NewStage(dir string, force bool) (*Stage, error) {
 			return nil, fmt.Errorf("%s: %w", dir, ErrExists)
 		case !st.IsDir():
 			return nil, fmt.Errorf("%s: exists and is not a folder", dir)
+		case !empty && !named:
+			_, other, err := Written(dir)
+			if err != nil {
+				return nil, err
+			}
+			if len(other) > 0 {
+				list := other
+				if len(list) > 3 {
+					list = append(append([]string(nil), list[:3]...), "…")
+				}
+				return nil, fmt.Errorf("%s: %w (%s); move them away, or give --force=%s to replace the folder with everything in it", dir, ErrForeign, strings.Join(list, ", "), dir)
+			}
 		}
 		s.start, s.empty = st, empty
 	} else if !errors.Is(err, os.ErrNotExist) {
@@ -186,6 +264,9 @@ func (s *Stage) Commit() error {
 	changed := func(what string) error {
 		return fail(fmt.Errorf("%s: %w (%s); it was left as it is and the new outputs were not written", s.target, ErrChanged, what))
 	}
+	if err := s.writeList(); err != nil {
+		return fail(err)
+	}
 	now, err := os.Lstat(s.target)
 	switch {
 	case err != nil && !errors.Is(err, os.ErrNotExist):
@@ -239,6 +320,22 @@ func (s *Stage) Commit() error {
 	}
 	s.release(s.target)
 	return nil
+}
+
+// writeList writes the names of the stage's entries (the owner file
+// aside) into its .tauvox-written file.
+func (s *Stage) writeList() error {
+	ents, err := os.ReadDir(s.tmp)
+	if err != nil {
+		return err
+	}
+	var b strings.Builder
+	for _, e := range ents {
+		if n := e.Name(); n != ownerFile && n != writtenFile {
+			b.WriteString(n + "\n")
+		}
+	}
+	return os.WriteFile(filepath.Join(s.tmp, writtenFile), []byte(b.String()), 0o644)
 }
 
 // Abort removes the temporary folder. It is safe to call after Commit.

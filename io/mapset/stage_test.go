@@ -86,14 +86,14 @@ func TestCommitRaces(t *testing.T) {
 		{name: "appeared", during: func(out string) { put(out, "user.txt", "theirs") }, changed: true, keep: "user.txt"},
 		{name: "empty folder appeared", during: func(out string) { os.Mkdir(out, 0o755) }, changed: true},
 		{name: "replaced (force)", force: true,
-			before: func(out string) { put(out, "old.txt", "ours") },
+			before: func(out string) { put(out, "old.txt", "ours"); put(out, writtenFile, "old.txt\n") },
 			during: func(out string) { os.RemoveAll(out); put(out, "user.txt", "theirs") }, changed: true, keep: "user.txt"},
-		{name: "removed (force)", force: true, before: func(out string) { put(out, "old.txt", "ours") },
+		{name: "removed (force)", force: true, before: func(out string) { put(out, "old.txt", "ours"); put(out, writtenFile, "old.txt\n") },
 			during: func(out string) { os.RemoveAll(out) }, changed: true},
 		{name: "empty folder accepted", before: func(out string) { os.Mkdir(out, 0o755) }},
 		{name: "empty folder written into", before: func(out string) { os.Mkdir(out, 0o755) },
 			during: func(out string) { put(out, "user.txt", "theirs") }, changed: true, keep: "user.txt"},
-		{name: "replaced in place (force)", force: true, before: func(out string) { put(out, "old.txt", "ours") }},
+		{name: "replaced in place (force)", force: true, before: func(out string) { put(out, "old.txt", "ours"); put(out, writtenFile, "old.txt\n") }},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			out := filepath.Join(t.TempDir(), "maps")
@@ -182,6 +182,7 @@ func TestInterruptedReplacement(t *testing.T) {
 	// Killed while deleting the previous outputs: the target is complete.
 	os.Mkdir(old, 0o755)
 	os.WriteFile(filepath.Join(old, "T2map.nii.gz"), []byte("older"), 0o644)
+	os.WriteFile(filepath.Join(out, writtenFile), []byte("T2map.nii.gz\n"), 0o644)
 	s2, err := NewStage(out, true)
 	if err != nil {
 		t.Fatal(err)
@@ -205,5 +206,63 @@ func needLocks(t *testing.T) {
 		t.Skip("file locks unavailable here")
 	} else {
 		f.Close()
+	}
+}
+
+// TestForceReplacesOnlyOwnFiles (issue 17): --force replaces a folder that
+// holds only what tauvox wrote there (its .tauvox-written list, or the
+// outputs of a fit folder's provenance.json, with their PNG previews); a
+// folder holding anything else is refused, naming the files, unless the
+// user names the folder (NewStageReplacing); a committed stage lists what
+// it wrote.
+func TestForceReplacesOnlyOwnFiles(t *testing.T) {
+	read := func(p string) string { b, _ := os.ReadFile(p); return string(b) }
+	out := filepath.Join(t.TempDir(), "maps")
+	s, err := NewStage(out, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	os.WriteFile(s.Path("T2map.nii.gz"), []byte("a"), 0o644)
+	os.WriteFile(s.Path("provenance.json"), []byte("{}"), 0o644)
+	if err := s.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	if got := read(filepath.Join(out, writtenFile)); got != "T2map.nii.gz\nprovenance.json\n" {
+		t.Errorf("%s: %q", writtenFile, got)
+	}
+	// A preview drawn later is tauvox's too.
+	os.WriteFile(filepath.Join(out, "T2map.png"), []byte("png"), 0o644)
+	s, err = NewStage(out, true)
+	if err != nil {
+		t.Fatalf("own files: %v", err)
+	}
+	s.Abort()
+	os.WriteFile(filepath.Join(out, "notes.txt"), []byte("mine"), 0o644)
+	if _, err := NewStage(out, true); !errors.Is(err, ErrForeign) || !strings.Contains(err.Error(), "(notes.txt)") || !strings.Contains(err.Error(), "--force="+out) {
+		t.Errorf("foreign file: %v", err)
+	}
+	if read(filepath.Join(out, "notes.txt")) != "mine" {
+		t.Error("foreign file touched")
+	}
+	s, err = NewStageReplacing(out)
+	if err != nil {
+		t.Fatalf("named: %v", err)
+	}
+	s.Abort()
+	// A fit folder from before the list: its provenance.json decides.
+	old := filepath.Join(t.TempDir(), "old")
+	os.Mkdir(old, 0o755)
+	os.WriteFile(filepath.Join(old, "provenance.json"), []byte(`{"tool": "tauvox", "outputs": ["T2map.nii.gz", "T2map.json"]}`), 0o644)
+	os.WriteFile(filepath.Join(old, "T2map.nii.gz"), nil, 0o644)
+	os.WriteFile(filepath.Join(old, "T2map.json"), nil, 0o644)
+	os.WriteFile(filepath.Join(old, "T2map.png"), nil, 0o644)
+	if s, err := NewStage(old, true); err != nil {
+		t.Errorf("old fit folder: %v", err)
+	} else {
+		s.Abort()
+	}
+	own, other, _ := Written(old)
+	if len(own) != 4 || len(other) != 0 {
+		t.Errorf("own %v other %v", own, other)
 	}
 }

@@ -30,6 +30,9 @@ type Info struct {
 	// StatusNames name the status codes (code i is StatusNames[i]), for
 	// the status map's sidecar and the counts of provenance.json.
 	StatusNames []string
+	// AutoMask, when not nil, records the automatic mask (provenance.json
+	// and the status map's sidecar).
+	AutoMask *AutoMask
 	// Sums, when not nil, are the checksums of Inputs already under way
 	// (StartChecksums); otherwise NewWriter starts them.
 	Sums Sums
@@ -52,9 +55,22 @@ type Provenance struct {
 	Patient   *volume.Patient    `json:"patient,omitempty"`
 	Outputs   []string           `json:"outputs"`
 	Threshold float64            `json:"mask_threshold"`
+	AutoMask  *AutoMask          `json:"auto_mask,omitempty"`
 	Status    map[string]int     `json:"status_counts"`
 	Timings   map[string]float64 `json:"timings_s"`
 	Caution   string             `json:"caution"`
+}
+
+// AutoMask is the automatic mask's rule and level as provenance.json and
+// the status map's sidecar record them (the fields of fit.AutoMask).
+type AutoMask struct {
+	Rule      string  `json:"rule"`                        // "noise" or "otsu"
+	Threshold float64 `json:"threshold"`                   // level a voxel's largest sample must reach
+	Sigma     float64 `json:"noise_sd,omitempty"`          // noise SD from the air (noise rule)
+	Rate      float64 `json:"air_rate,omitempty"`          // designed false-exceedance rate per air voxel
+	Air       int     `json:"air_voxels,omitempty"`        // air voxels the noise estimate used
+	Otsu      float64 `json:"half_otsu"`                   // half of Otsu's threshold of the peaks
+	Why       string  `json:"noise_rule_unused,omitempty"` // why the noise rule did not apply
 }
 
 // InputRecord names an input file and its checksum.
@@ -226,6 +242,9 @@ func NewWriter(st *Stage, outs []Output, dims [3]int, affine volume.Affine, info
 	}
 	smeta := w.base("status", "code", "fit outcome per voxel")
 	smeta["Codes"] = codes
+	if info.AutoMask != nil {
+		smeta["AutoMask"] = info.AutoMask
+	}
 	if err := open("status", nifti.Uint8, smeta); err != nil {
 		w.Abort()
 		return nil, err
@@ -322,7 +341,7 @@ func (w *Writer) Close() ([]string, error) {
 		Tool: "tauvox", Version: info.Version, Created: time.Now().UTC().Format(time.RFC3339),
 		Model: info.Model, Method: info.Method, Settings: info.Settings,
 		Field: num(info.Source.FieldStrength), Scanner: info.Source.Scanner, Acquired: info.Source.AcquiredAt,
-		Series: info.Source.Description, Patient: info.Source.Patient, Outputs: append([]string(nil), names...), Threshold: w.thr,
+		Series: info.Source.Description, Patient: info.Source.Patient, Outputs: append([]string(nil), names...), Threshold: w.thr, AutoMask: info.AutoMask,
 		Status: map[string]int{}, Timings: info.Timings, Caution: Caution,
 	}
 	sums := <-w.sums

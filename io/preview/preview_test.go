@@ -396,3 +396,24 @@ func TestWritePNG(t *testing.T) {
 		t.Errorf("write into a missing folder: error %v, want one naming %s", err, bad)
 	}
 }
+
+// TestDrawableLabels (issue 17): every label of the quantities, units and
+// windows tauvox draws has a glyph in the 7×13 face (printable ASCII and
+// Latin-1: R², °, µ render); typographic signs outside it are folded.
+func TestDrawableLabels(t *testing.T) {
+	for _, s := range []string{"R²", "ms", "1/s", "a.u.", "percent", "°", "T2*", "µs", "fraction"} {
+		if Drawable(s) != s {
+			t.Errorf("%q folded to %q", s, Drawable(s))
+		}
+	}
+	for in, want := range map[string]string{"−12": "-12", "0–300": "0-300", "T1ρ": "T1rho", "≤ 5 σ": "<= 5 sigma", "→": "?"} {
+		if got := Drawable(in); got != want {
+			t.Errorf("%q: %q, want %q", in, got, want)
+		}
+	}
+	for _, r := range Drawable("−α≤…→") {
+		if !hasGlyph(r) {
+			t.Errorf("rune %q has no glyph", r)
+		}
+	}
+}

@@ -198,6 +198,56 @@ func (w Window) Resolve(values []float32) (lo, hi float64) {
 	return w.Lo, w.Hi
 }
 
+// Windows are the display windows of the maps of a folder: QUANTITY=LO,HI
+// sets the window of the maps of one quantity (T2, T1, M0, R2, ...; the
+// name as the map's sidecar gives it, any case); a bare LO,HI sets the
+// window of every map in ms (the time constants). Every other map keeps
+// its automatic window (AutoRange). The zero value is automatic for all.
+type Windows struct {
+	ByQuantity map[string]Window // by lower-case quantity
+	Times      Window            // maps in ms without their own window
+}
+
+// For returns the window of a map of quantity q in unit.
+func (w Windows) For(q, unit string) Window {
+	if x, ok := w.ByQuantity[strings.ToLower(q)]; ok {
+		return x
+	}
+	if unit == "ms" {
+		return w.Times
+	}
+	return Window{}
+}
+
+// ParseWindows parses the values of the --range flag (each "LO,HI" or
+// "QUANTITY=LO,HI").
+func ParseWindows(list []string) (Windows, error) {
+	var w Windows
+	for _, s := range list {
+		q, r, named := strings.Cut(s, "=")
+		if !named {
+			r = s
+		}
+		x, err := ParseWindow(r)
+		if err != nil {
+			return Windows{}, err
+		}
+		if !named {
+			w.Times = x
+			continue
+		}
+		q = strings.TrimSpace(q)
+		if q == "" {
+			return Windows{}, fmt.Errorf("range %q: want QUANTITY=LO,HI", s)
+		}
+		if w.ByQuantity == nil {
+			w.ByQuantity = map[string]Window{}
+		}
+		w.ByQuantity[strings.ToLower(q)] = x
+	}
+	return w, nil
+}
+
 // ParseWindow parses a display window written "LO,HI" or "LO:HI" (the
 // form of a --range option), e.g. "0,2000". LO must be below HI and both
 // finite.

@@ -23,15 +23,59 @@ const (
 	textPad = 2
 )
 
-// DrawText draws s with its top-left corner at (x, y) in colour c. Only
-// ASCII and Latin-1 letters have glyphs; others are drawn as boxes.
+// DrawText draws s with its top-left corner at (x, y) in colour c. The
+// face has glyphs for ASCII and Latin-1 only; Drawable folds the rest.
 func DrawText(dst draw.Image, x, y int, s string, c color.Color) {
 	d := font.Drawer{Dst: dst, Src: image.NewUniform(c), Face: face, Dot: fixed.P(x, y+ascent)}
-	d.DrawString(s)
+	d.DrawString(Drawable(s))
 }
 
 // TextWidth returns the width in pixels of s drawn by DrawText.
-func TextWidth(s string) int { return font.MeasureString(face, s).Ceil() }
+func TextWidth(s string) int { return font.MeasureString(face, Drawable(s)).Ceil() }
+
+// Drawable returns s with every rune the face has no glyph for replaced,
+// so that no label shows a missing-glyph box: typographic minus and dashes
+// by "-", ≤ ≥ by "<=" ">=", Greek letters of units by their names (µ is
+// Latin-1 and stays), anything else by "?".
+func Drawable(s string) string {
+	ok := true
+	for _, r := range s {
+		if !hasGlyph(r) {
+			ok = false
+			break
+		}
+	}
+	if ok {
+		return s
+	}
+	var b []rune
+	for _, r := range s {
+		switch {
+		case hasGlyph(r):
+			b = append(b, r)
+		case r == '−' || r == '–' || r == '—' || r == '‐':
+			b = append(b, '-')
+		case r == '≤':
+			b = append(b, '<', '=')
+		case r == '≥':
+			b = append(b, '>', '=')
+		case r == '…':
+			b = append(b, '.', '.', '.')
+		case r == 'α':
+			b = append(b, []rune("alpha")...)
+		case r == 'σ':
+			b = append(b, []rune("sigma")...)
+		case r == 'ρ':
+			b = append(b, []rune("rho")...)
+		default:
+			b = append(b, '?')
+		}
+	}
+	return string(b)
+}
+
+// hasGlyph reports whether the face draws r (printable ASCII and Latin-1).
+func hasGlyph(r rune) bool { return r >= 0x20 && r <= 0x7e || r >= 0xa1 && r <= 0xff }
 
 // TextHeight is the height in pixels of a line drawn by DrawText.
 const TextHeight = 13

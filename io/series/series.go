@@ -28,6 +28,9 @@ type Overrides struct {
 	// KeepIdentifiers keeps the patient identifiers of a DICOM series in
 	// Image.Source.Patient (left out by default).
 	KeepIdentifiers bool
+	// Notices receives one line for every list that replaced different
+	// values of the sidecar or the DICOM headers, naming both.
+	Notices []string
 }
 
 // Input describes one file read to make a series (volume.Input).
@@ -58,7 +61,7 @@ func Load(path string, o *Overrides) (*volume.Image, []Input, error) {
 			return nil, nil, err
 		}
 		if o != nil {
-			if err := applyTo(im.Acq, o, path); err != nil {
+			if err := applyTo(im.Acq, o, path, "the DICOM headers"); err != nil {
 				return nil, nil, err
 			}
 		}
@@ -97,7 +100,9 @@ func NIfTIProtocol(path string, nt int, src *volume.Source, o *Overrides) ([]vol
 		src.Description = filepath.Base(path)
 	}
 	src.FieldStrength = math.NaN()
+	from := ""
 	if sc, ok := sidecar.ForImage(path); ok {
+		from = "the sidecar " + filepath.Base(sc)
 		s, err := sidecar.Read(sc)
 		if err != nil {
 			return nil, nil, err
@@ -109,7 +114,7 @@ func NIfTIProtocol(path string, nt int, src *volume.Source, o *Overrides) ([]vol
 		inputs = append(inputs, Input{Path: sc, Role: "sidecar"})
 	}
 	if o != nil {
-		if err := applyTo(acq, o, path); err != nil {
+		if err := applyTo(acq, o, path, from); err != nil {
 			return nil, nil, err
 		}
 	}
@@ -182,31 +187,87 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 }
 
 // applyTo replaces the parameters o lists: one value for every volume or
-// one per volume.
-func applyTo(acq []volume.Acquisition, o *Overrides, path string) error {
+// one per volume. A list that replaces different values of from (the
+// sidecar or the DICOM headers; "" when there is none) adds a notice to o.
+func applyTo(acq []volume.Acquisition, o *Overrides, path, from string) error {
 	nt := len(acq)
-	set := func(flag string, vals []float64, put func(a *volume.Acquisition, v float64)) error {
+	set := func(flag, key, unit string, vals []float64, field func(a *volume.Acquisition) *float64) error {
 		if vals == nil {
 			return nil
 		}
 		if len(vals) != 1 && len(vals) != nt {
 			return fmt.Errorf("%s: --%s lists %d values but the image has %d volumes", path, flag, len(vals), nt)
 		}
+		if err := CheckUnits(flag, vals); err != nil {
+			return err
+		}
+		old := make([]float64, nt)
+		differ := false
 		for t := range acq {
 			v := vals[0]
 			if len(vals) == nt {
 				v = vals[t]
 			}
-			put(&acq[t], v)
+			p := field(&acq[t])
+			old[t] = *p
+			differ = differ || (!math.IsNaN(*p) && math.Abs(*p-v) > 1e-9*math.Max(1, math.Abs(v)))
+			*p = v
+		}
+		if differ && from != "" {
+			o.Notices = append(o.Notices, fmt.Sprintf("--%s %s%s replaces the %s of %s (%s%s)", flag, sidecar.FormatList(vals, 1), unit, key, from, sidecar.FormatList(old, 1), unit))
 		}
 		return nil
 	}
 	return errors.Join(
-		set("te", o.TE, func(a *volume.Acquisition, v float64) { a.EchoTime = v }),
-		set("ti", o.TI, func(a *volume.Acquisition, v float64) { a.InversionTime = v }),
-		set("tr", o.TR, func(a *volume.Acquisition, v float64) { a.RepetitionTime = v }),
-		set("fa", o.FA, func(a *volume.Acquisition, v float64) { a.FlipAngle = v }),
+		set("te", "EchoTime", " ms", o.TE, func(a *volume.Acquisition) *float64 { return &a.EchoTime }),
+		set("ti", "InversionTime", " ms", o.TI, func(a *volume.Acquisition) *float64 { return &a.InversionTime }),
+		set("tr", "RepetitionTime", " ms", o.TR, func(a *volume.Acquisition) *float64 { return &a.RepetitionTime }),
+		set("fa", "FlipAngle", "°", o.FA, func(a *volume.Acquisition) *float64 { return &a.FlipAngle }),
 	)
+}
+
+// CheckUnits refuses a command-line list (--te, --ti, --tr in ms, --fa in
+// degrees) whose values are impossible in that unit but plausible in
+// another, saying what was probably meant (common practice):
+//   - --te: every echo time below 0.5 ms (echo times written in seconds;
+//     an ultrashort-echo series still has later echoes above 0.5 ms);
+//   - --ti, --tr: a time above 0 and below 1 ms (shorter than any
+//     inversion pulse or repetition; seconds);
+//   - --fa: an angle above 180°, or angles that look like radians
+//     (sidecar.LooksLikeRadians).
+func CheckUnits(flag string, vals []float64) error {
+	list := sidecar.FormatList(vals, 1)
+	seconds := func(what, why string) error {
+		return fmt.Errorf("--%s %s: tauvox takes %s in ms and %s, as times in seconds would be: was --%s %s (ms) meant?", flag, list, what, why, flag, sidecar.FormatList(vals, 1000))
+	}
+	switch flag {
+	case "te":
+		longest := math.Inf(-1)
+		for _, v := range vals {
+			longest = math.Max(longest, v)
+		}
+		if longest > 0 && longest < 0.5 {
+			return seconds("echo times", "every value is below 0.5 ms")
+		}
+	case "ti", "tr":
+		what := map[string]string{"ti": "inversion times", "tr": "repetition times"}[flag]
+		pulse := map[string]string{"ti": "an inversion pulse", "tr": "an excitation"}[flag]
+		for _, v := range vals {
+			if v > 0 && v < 1 {
+				return seconds(what, fmt.Sprintf("%g ms is shorter than %s lasts", v, pulse))
+			}
+		}
+	case "fa":
+		for _, v := range vals {
+			if v > 180 {
+				return fmt.Errorf("--fa %s: tauvox takes flip angles in degrees, and %g° is above 180°", list, v)
+			}
+		}
+		if sidecar.LooksLikeRadians(vals) {
+			return fmt.Errorf("--fa %s: tauvox takes flip angles in degrees and these look like radians: was --fa %s meant?", list, sidecar.FormatList(sidecar.Degrees(vals), 1))
+		}
+	}
+	return nil
 }
 
 // SkipEchoes returns a copy of im without the n volumes of shortest echo

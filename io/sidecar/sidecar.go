@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"regexp"
+	"strconv"
 	"strings"
 
 	"github.com/tauvox/tauvox/internal/output"
@@ -21,17 +22,59 @@ import (
 const MaxSize = 16 << 20
 
 // Plausibility limits, in the BIDS units (seconds, degrees, tesla). A time
-// above its limit is read as a value written in milliseconds by mistake.
-// The limits are common practice: clinical and research sequences use echo
-// times up to about 2 s (long-TE spectroscopy-like CPMG trains), inversion
-// times up to about 10 s and repetition times up to about 20 s.
+// above its limit is read as a value written in milliseconds by mistake (a
+// common converter mistake). The limits are common practice: the echo
+// times of relaxometry series stay well below 1 s (the last echoes of a
+// long CPMG train reach a few hundred ms), inversion times up to about 10 s
+// and repetition times up to about 20 s. BIDS allows flip angles up to
+// 360°; no model tauvox fits uses one above 180°.
 const (
-	maxEchoTime       = 10  // s
+	maxEchoTime       = 1   // s
 	maxInversionTime  = 30  // s
 	maxRepetitionTime = 60  // s
-	maxFlipAngle      = 360 // degrees (BIDS: 0 < FlipAngle ≤ 360)
+	maxFlipAngle      = 180 // degrees
 	maxField          = 30  // T; the strongest MR magnets are about 21 T
 )
+
+// LooksLikeRadians reports whether flip angles given in degrees look like
+// radians: every angle at most π and one below 1° (no relaxometry sequence
+// excites below 1°, while 1 rad is 57°; common practice).
+func LooksLikeRadians(fa []float64) bool {
+	small := false
+	for _, x := range fa {
+		if !(x > 0) || x > math.Pi+1e-9 {
+			return false
+		}
+		small = small || x < 1
+	}
+	return small
+}
+
+// Degrees converts flip angles from radians to degrees, rounded to 0.1°
+// (for a message saying what was probably meant).
+func Degrees(rad []float64) []float64 {
+	d := make([]float64, len(rad))
+	for i, x := range rad {
+		d[i] = math.Round(x*1800/math.Pi) / 10
+	}
+	return d
+}
+
+// FormatList writes values as a comma-separated list (%g of each times
+// scale, at most 6 significant digits), shortened to the first three,
+// "…" and the last when there are more than six.
+func FormatList(v []float64, scale float64) string {
+	f := func(x float64) string { return strconv.FormatFloat(x*scale, 'g', 6, 64) }
+	var parts []string
+	if len(v) > 6 {
+		parts = []string{f(v[0]), f(v[1]), f(v[2]), "…", f(v[len(v)-1])}
+	} else {
+		for _, x := range v {
+			parts = append(parts, f(x))
+		}
+	}
+	return strings.Join(parts, ",")
+}
 
 // Sidecar holds the parameters tauvox uses from a BIDS JSON sidecar, with
 // times converted to milliseconds. A per-volume parameter is nil when the
@@ -154,7 +197,7 @@ func Parse(b []byte, path string) (*Sidecar, error) {
 			case x < 0 || (f.pos && x == 0):
 				return nil, s.err(f.key, fmt.Sprintf("%g s is not a valid time", x))
 			case x > f.max:
-				return nil, s.err(f.key, fmt.Sprintf("%g s is implausibly long (above %g s); BIDS gives times in seconds, was it written in milliseconds?", x, f.max))
+				return nil, s.err(f.key, fmt.Sprintf("%g s is implausibly long (above %g s); sidecar times are in seconds (BIDS): was %g ms (%s s) meant?", x, f.max, x, strconv.FormatFloat(x/1000, 'g', 6, 64)))
 			}
 		}
 		for i := range v {
@@ -169,8 +212,11 @@ func Parse(b []byte, path string) (*Sidecar, error) {
 	}
 	for _, x := range fa {
 		if !(x > 0 && x <= maxFlipAngle) {
-			return nil, s.err("FlipAngle", fmt.Sprintf("%g degrees is outside (0, 360]", x))
+			return nil, s.err("FlipAngle", fmt.Sprintf("%g degrees is outside (0, 180]; sidecar flip angles are in degrees (BIDS)", x))
 		}
+	}
+	if LooksLikeRadians(fa) {
+		return nil, s.err("FlipAngle", fmt.Sprintf("%s look like radians; sidecar flip angles are in degrees (BIDS): was %s° meant?", FormatList(fa, 1), FormatList(Degrees(fa), 1)))
 	}
 	s.FlipAngle, s.list["FlipAngle"] = fa, isList
 
