@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/bids"
 )
@@ -39,23 +40,9 @@ series are fitted at a time, sharing --workers goroutines; the maps do not
 depend on either. Exit code 1 when some series failed (each named on
 stderr), 2 for bad usage or a folder that is not a BIDS dataset.`
 
-// multiFlag collects a repeatable flag whose values may also be
-// comma-separated lists.
-type multiFlag []string
-
-func (m *multiFlag) String() string { return strings.Join(*m, ",") }
-func (m *multiFlag) Set(s string) error {
-	for _, v := range strings.Split(s, ",") {
-		if v = strings.TrimSpace(v); v != "" {
-			*m = append(*m, v)
-		}
-	}
-	return nil
-}
-
 type batchArgs struct {
 	root, out               string
-	models, participants    multiFlag
+	models, participants    cli.Multi
 	jobs, workers           int
 	force, dryRun, quiet    bool
 	modelOf                 map[string]string

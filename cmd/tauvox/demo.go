@@ -6,6 +6,7 @@ import (
 	"path/filepath"
 	"time"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/qarun"
 	"github.com/tauvox/tauvox/roi/phantom"
@@ -13,7 +14,7 @@ import (
 
 func runDemo(ctx context.Context, args []string, e *env) error {
 	var out string
-	var force forceFlag
+	var force cli.Force
 	d := &qarun.Demo{Version: version()}
 	fs := newFlags("demo", "[--out DIR] [--sessions N]",
 		`Runs the whole chain on built-in synthetic data. For each of N monthly QA
@@ -24,7 +25,7 @@ slowly drifting), fits T2 and T1, runs the phantom QA, records the session in
 a history database, and finally charts the history. Prints the last session's
 verdict table and the drift table.`, e)
 	fs.StringVar(&out, "out", "tauvox-demo", "folder for the demo's files")
-	fs.Var(&force, "force", forceUsage)
+	fs.Var(&force, "force", cli.ForceUsage)
 	fs.IntVar(&d.Sessions, "sessions", 12, "number of monthly sessions (3…36)")
 	if err := parse(fs, args, nil); err != nil {
 		return err

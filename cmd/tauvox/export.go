@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/pipeline"
 )
 
@@ -24,14 +25,14 @@ DIR must not exist (or give --force).`
 func runExport(ctx context.Context, args []string, e *env) error {
 	var out, like, seriesID, maps string
 	var keep, quiet bool
-	var force forceFlag
+	var force cli.Force
 	fs := newFlags("export", "MAPS_DIR --dicom DIR [--like SOURCE_DICOM_DIR] [options]", exportSummary, e)
 	fs.StringVar(&out, "dicom", "", "output folder for the DICOM files (required)")
 	fs.StringVar(&like, "like", "", "source DICOM folder: copy its study and frame of reference")
 	fs.StringVar(&seriesID, "series", "", "series id within --like (see tauvox scan)")
 	fs.BoolVar(&keep, "keep-identifiers", false, "copy the patient name, ID, birth date and accession number of --like")
 	fs.StringVar(&maps, "maps", "", "comma list of map stems to write (default: all but *_sd and status)")
-	fs.Var(&force, "force", forceUsage)
+	fs.Var(&force, "force", cli.ForceUsage)
 	fs.BoolVar(&quiet, "quiet", false, "print nothing on success")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
@@ -47,11 +48,11 @@ func runExport(ctx context.Context, args []string, e *env) error {
 	case seriesID != "" && like == "":
 		return fmt.Errorf("--series needs --like")
 	}
-	all, err := force.all(out)
+	all, err := force.All(out)
 	if err != nil {
 		return err
 	}
-	stems, err := pipeline.Export(ctx, pos[0], &pipeline.ExportOptions{Out: out, Force: force.on, ForceAll: all, Maps: maps, Like: like,
+	stems, err := pipeline.Export(ctx, pos[0], &pipeline.ExportOptions{Out: out, Force: force.On, ForceAll: all, Maps: maps, Like: like,
 		Series: seriesID, KeepIdentifiers: keep, Software: "tauvox " + version()})
 	if err != nil {
 		return err

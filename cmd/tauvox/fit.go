@@ -7,16 +7,14 @@ import (
 	"os"
 	"runtime/pprof"
 	"sort"
-	"strconv"
 	"strings"
 	"time"
 
 	"github.com/schollz/progressbar/v3"
-
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/preview"
-	"github.com/tauvox/tauvox/io/sidecar"
 )
 
 const fitSummary = `Fits a relaxation model voxel by voxel and writes, into DIR, one NIfTI map
@@ -53,39 +51,16 @@ func modelList() string {
 	return b.String()
 }
 
-// listFlag is a flag holding a list of numbers.
-type listFlag struct {
-	vals []float64
-	set  bool
-}
-
-func (l *listFlag) String() string { return "" }
-func (l *listFlag) Set(s string) error {
-	v, err := sidecar.ParseList(s)
-	if err != nil {
-		return err
-	}
-	l.vals, l.set = v, true
-	return nil
-}
-
-func (l *listFlag) list() []float64 {
-	if !l.set {
-		return nil
-	}
-	return l.vals
-}
-
 // fitArgs are the flags of tauvox fit: the pipeline's Config and what only
 // the command line needs.
 type fitArgs struct {
 	c                 pipeline.Config
 	noise, cpuprofile string
-	window            rangeFlag
+	window            cli.Repeat
 	quiet             bool
-	force             forceFlag
-	te, ti, tr, fa    listFlag
-	memory            byteFlag
+	force             cli.Force
+	te, ti, tr, fa    cli.List
+	memory            cli.Bytes
 }
 
 // modelArg returns the value of --model (or -model, --model=M) in args,
@@ -125,7 +100,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.StringVar(&c.Spec.Method, "method", "", "estimation method (default: the model's first)")
 	fs.StringVar(&c.Out, "out", "", "output folder (required; refused if it exists, see --force)")
 	fs.StringVar(&c.Overrides.Series, "series", "", "DICOM series id when SERIES is a folder holding several (see tauvox scan)")
-	fs.Var(&a.force, "force", forceUsage)
+	fs.Var(&a.force, "force", cli.ForceUsage)
 	fs.StringVar(&c.Mask, "mask", "", "NIfTI mask on the series grid; voxels > 0 are fitted")
 	fs.Float64Var(&c.Threshold, "threshold", 0, "fit voxels whose largest sample reaches this value (default automatic)")
 	fs.BoolVar(&c.NoMask, "no-mask", false, "fit every voxel (no automatic threshold)")
@@ -152,7 +127,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&c.NoPreview, "no-preview", false, "do not write the PNG previews of the maps")
 	fs.Var(&a.window, "range", rangeUsage)
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
-	a.memory = byteFlag(pipeline.DefaultMemory)
+	a.memory = cli.Bytes(pipeline.DefaultMemory)
 	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
 	if m, ok := fit.Lookup(modelArg(args)); ok {
 		// fit --model M --help: the model first, then the options.
@@ -184,12 +159,12 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	}
 	c.Window = w
 	c.Series = pos[0]
-	c.Force = a.force.on
-	if c.ForceAll, err = a.force.all(c.Out); err != nil {
+	c.Force = a.force.On
+	if c.ForceAll, err = a.force.All(c.Out); err != nil {
 		return err
 	}
 	c.Rician = a.noise == "rician"
-	c.Overrides.TE, c.Overrides.TI, c.Overrides.TR, c.Overrides.FA = a.te.list(), a.ti.list(), a.tr.list(), a.fa.list()
+	c.Overrides.TE, c.Overrides.TI, c.Overrides.TR, c.Overrides.FA = a.te.List(), a.ti.List(), a.tr.List(), a.fa.List()
 	c.Memory = int64(a.memory)
 	if a.cpuprofile != "" {
 		f, err := os.Create(a.cpuprofile)
@@ -259,36 +234,4 @@ func statusLine(c [fit.NumStatus]int) string {
 	}
 	sort.Strings(parts)
 	return strings.Join(parts, ", ")
-}
-
-// byteFlag is a size in bytes, given as a number with an optional K, M, G
-// or T suffix (powers of 1024; "GiB", "GB" and "G" alike).
-type byteFlag int64
-
-func (b *byteFlag) String() string { return strconv.FormatInt(int64(*b), 10) }
-func (b *byteFlag) Set(s string) error {
-	t := strings.ToUpper(strings.TrimSpace(s))
-	t = strings.TrimSuffix(strings.TrimSuffix(t, "B"), "I")
-	mult := int64(1)
-	if n := len(t); n > 0 {
-		switch t[n-1] {
-		case 'K':
-			mult = 1 << 10
-		case 'M':
-			mult = 1 << 20
-		case 'G':
-			mult = 1 << 30
-		case 'T':
-			mult = 1 << 40
-		}
-		if mult > 1 {
-			t = t[:n-1]
-		}
-	}
-	v, err := strconv.ParseFloat(strings.TrimSpace(t), 64)
-	if err != nil || !(v > 0) || v*float64(mult) > 1<<50 {
-		return fmt.Errorf("%q is not a size such as 512M or 2G", s)
-	}
-	*b = byteFlag(v * float64(mult))
-	return nil
 }

@@ -9,6 +9,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/io/series"
 )
@@ -183,7 +184,7 @@ func TestMemoryFlag(t *testing.T) {
 		{"1G", 1 << 30, true}, {"512M", 512 << 20, true}, {"2GiB", 2 << 30, true}, {"1.5g", 3 << 29, true},
 		{"100000", 100000, true}, {"64KB", 64 << 10, true}, {"0", 0, false}, {"-1G", 0, false}, {"lots", 0, false},
 	} {
-		var b byteFlag
+		var b cli.Bytes
 		err := b.Set(c.in)
 		if (err == nil) != c.ok || (c.ok && int64(b) != c.want) {
 			t.Errorf("--memory %s: %d, %v", c.in, int64(b), err)

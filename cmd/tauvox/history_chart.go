@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"path/filepath"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/qarun"
 	"github.com/tauvox/tauvox/internal/report"
 	"github.com/tauvox/tauvox/roi/history"
@@ -18,7 +19,7 @@ type chartArgs struct {
 	minDrift, minLimit         float64
 	horizon                    float64
 	strict                     bool
-	force                      forceFlag
+	force                      cli.Force
 }
 
 func chartFlags(a *chartArgs, e *env) *flag.FlagSet {
@@ -40,7 +41,7 @@ code 1 only for action items, or also for watch items with --strict.`, e)
 	fs.StringVar(&a.db, "db", "", "history database file (required)")
 	fs.StringVar(&a.scanner, "scanner", "", "only this scanner")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
-	fs.Var(&a.force, "force", forceUsage)
+	fs.Var(&a.force, "force", cli.ForceUsage)
 	fs.IntVar(&a.baseline, "baseline", history.DefaultBaseline, "baseline: the first N sessions")
 	fs.StringVar(&a.from, "baseline-from", "", "baseline: sessions from this date (YYYY-MM-DD) instead")
 	fs.StringVar(&a.to, "baseline-to", "", "baseline: sessions up to this date (with --baseline-from)")

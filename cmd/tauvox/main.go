@@ -18,14 +18,13 @@ import (
 	"errors"
 	"flag"
 	"fmt"
-	"github.com/tauvox/tauvox/fit"
 	"io"
 	"os"
 	"os/signal"
-	"runtime/debug"
-	"sync"
 	"syscall"
 
+	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/output"
 )
 
@@ -88,7 +87,7 @@ func (e *exitError) Error() string { return e.err.Error() }
 func (e *exitError) Unwrap() error { return e.err }
 
 // errQuiet ends a command with an exit code but nothing more to print.
-var errHelp = errors.New("help requested")
+var errHelp = cli.ErrHelp
 
 // run executes one invocation and returns the exit code.
 func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
@@ -169,20 +168,7 @@ func usage(w io.Writer) {
 }
 
 // version returns the module version of the build.
-func version() string {
-	if bi, ok := debug.ReadBuildInfo(); ok {
-		v := bi.Main.Version
-		if v != "" && v != "(devel)" {
-			return v
-		}
-		for _, s := range bi.Settings {
-			if s.Key == "vcs.revision" && len(s.Value) >= 12 {
-				return "devel-" + s.Value[:12]
-			}
-		}
-	}
-	return "devel"
-}
+func version() string { return cli.Version() }
 
 func runVersion(_ context.Context, args []string, e *env) error {
 	fs := newFlags("version", "", "print the version of tauvox", e)
@@ -193,67 +179,14 @@ func runVersion(_ context.Context, args []string, e *env) error {
 	return nil
 }
 
-// helpText holds the --help printer of each FlagSet made by newFlags until
-// it is parsed.
-var (
-	helpMu   sync.Mutex
-	helpText = map[*flag.FlagSet]func(){}
-)
-
 // newFlags makes a FlagSet whose usage text goes to stdout on --help only
-// (a parse error is one line on stderr, without the usage).
+// (cli.NewFlags).
 func newFlags(name, args, summary string, e *env) *flag.FlagSet {
-	fs := flag.NewFlagSet(name, flag.ContinueOnError)
-	fs.SetOutput(io.Discard)
-	fs.Usage = func() {}
-	helpMu.Lock()
-	defer helpMu.Unlock()
-	helpText[fs] = func() {
-		w := e.stdout
-		fmt.Fprintf(w, "Usage: tauvox %s %s\n\n%s\n\nOptions:\n", name, args, summary)
-		fs.SetOutput(w)
-		fs.PrintDefaults()
-		fs.SetOutput(io.Discard)
-	}
-	return fs
+	return cli.NewFlags(name, args, summary, e.stdout)
 }
 
-// setHelp replaces the --help printer of a FlagSet made by newFlags.
-func setHelp(fs *flag.FlagSet, help func()) {
-	helpMu.Lock()
-	defer helpMu.Unlock()
-	helpText[fs] = help
-}
-
-// parse parses flags that may come before or after the positional
-// arguments, which it appends to *pos (pos nil: none allowed).
-func parse(fs *flag.FlagSet, args []string, pos *[]string) error {
-	helpMu.Lock()
-	help := helpText[fs]
-	delete(helpText, fs)
-	helpMu.Unlock()
-	for {
-		if err := fs.Parse(args); err != nil {
-			if errors.Is(err, flag.ErrHelp) {
-				if help != nil {
-					help()
-				}
-				return errHelp
-			}
-			return fmt.Errorf("%v (see --help)", err)
-		}
-		rest := fs.Args()
-		if len(rest) == 0 {
-			return nil
-		}
-		if pos == nil {
-			return fmt.Errorf("unexpected argument %q (see --help)", rest[0])
-		}
-		if rest[0] == "--" {
-			*pos = append(*pos, rest[1:]...)
-			return nil
-		}
-		*pos = append(*pos, rest[0])
-		args = rest[1:]
-	}
-}
+// setHelp and parse are cli.SetHelp and cli.Parse.
+var (
+	setHelp = cli.SetHelp
+	parse   = cli.Parse
+)

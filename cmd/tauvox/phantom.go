@@ -6,29 +6,17 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/qarun"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
 
-// finite is a float flag that refuses NaN and infinities.
-type finite struct{ v *float64 }
-
-func (o finite) String() string { return "" }
-func (o finite) Set(s string) error {
-	var v float64
-	if _, err := fmt.Sscanf(s, "%g", &v); err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-		return fmt.Errorf("want a number")
-	}
-	*o.v = v
-	return nil
-}
-
 func runPhantom(ctx context.Context, args []string, e *env) error {
 	var (
 		out, face, history string
 		mirrored, quiet    bool
-		force              forceFlag
+		force              cli.Force
 	)
 	// A NaN temperature is not given; a NaN field comes from the maps.
 	c := &qarun.Config{Options: phantom.Options{Tool: phantom.Tool{Name: "tauvox", Version: version()},
@@ -48,21 +36,21 @@ otherwise every vial is undetermined (no pass or fail) and the reason is
 printed. Exit code 1 when any vial fails or is undetermined.
 --def demo uses the built-in definition of the invented demo phantom.`, e)
 	fs.StringVar(&c.Def, "def", "", "phantom definition (JSON, format tauvox-phantom/1) or \"demo\" (required)")
-	fs.Var(finite{&o.Session.Temperature}, "temperature", "phantom temperature, °C (required)")
+	fs.Var(cli.Finite{V: &o.Session.Temperature}, "temperature", "phantom temperature, °C (required)")
 	fs.StringVar(&out, "out", "", "output folder (required)")
-	fs.Var(&force, "force", forceUsage)
-	fs.Var(finite{&o.Session.Field}, "field", "field strength, T (default: from the maps' provenance)")
+	fs.Var(&force, "force", cli.ForceUsage)
+	fs.Var(cli.Finite{V: &o.Session.Field}, "field", "field strength, T (default: from the maps' provenance)")
 	fs.StringVar(&o.Session.Scanner, "scanner", "", "scanner name (default: from the headers)")
 	fs.StringVar(&o.Session.Date, "date", "", "session date YYYY-MM-DD (default: acquisition date)")
 	fs.StringVar(&o.Session.Time, "time", "", "session time HH:MM (default: acquisition time)")
 	fs.Func("center", "phantom centre x,y,z in scanner RAS mm (default: found)", func(s string) error {
-		var v vecFlag
-		o.Locate.Center = &v.v
+		var v cli.Vec
+		o.Locate.Center = &v.V
 		return v.Set(s)
 	})
 	fs.Func("rotation", "phantom rotation in the slice plane, degrees (default: found)", func(s string) error {
 		o.Locate.Rotation = new(float64)
-		return finite{o.Locate.Rotation}.Set(s)
+		return cli.Finite{V: o.Locate.Rotation}.Set(s)
 	})
 	fs.StringVar(&face, "face", "", "up or down: the phantom's face (default: found)")
 	fs.BoolVar(&mirrored, "mirrored", false, "the phantom lies face down (the same as --face down)")

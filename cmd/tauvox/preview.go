@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/preview"
@@ -29,17 +30,8 @@ existing PNGs in another --out folder only with --force.`
 // rangeUsage describes the --range flag of fit and preview.
 const rangeUsage = "display window QUANTITY=LO,HI (e.g. T2=0,300; repeatable), or LO,HI for every map in ms (default 1st–99th percentile)"
 
-// rangeFlag collects the repeatable --range flag (a value holds a comma).
-type rangeFlag []string
-
-func (r *rangeFlag) String() string { return strings.Join(*r, " ") }
-func (r *rangeFlag) Set(s string) error {
-	*r = append(*r, s)
-	return nil
-}
-
 func runPreview(ctx context.Context, args []string, e *env) error {
-	var ranges rangeFlag
+	var ranges cli.Repeat
 	var out, maps string
 	var force, quiet bool
 	fs := newFlags("preview", "MAPS_DIR [--range QUANTITY=LO,HI] [--out DIR] [--maps LIST]", previewSummary, e)

@@ -6,64 +6,31 @@ import (
 	"fmt"
 	"math"
 	"os"
-	"strconv"
 	"strings"
 	"time"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/roi/phantom"
 )
-
-// vecFlag parses "x,y,z".
-type vecFlag struct{ v [3]float64 }
-
-func (f *vecFlag) String() string { return "" }
-func (f *vecFlag) Set(s string) error {
-	parts := strings.Split(s, ",")
-	if len(parts) != 3 {
-		return fmt.Errorf("want three numbers x,y,z")
-	}
-	for i, p := range parts {
-		v, err := strconv.ParseFloat(strings.TrimSpace(p), 64)
-		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return fmt.Errorf("want three numbers x,y,z")
-		}
-		f.v[i] = v
-	}
-	return nil
-}
-
-// driftFlag parses VIAL=FACTOR pairs.
-type driftFlag map[string]float64
-
-func (d driftFlag) String() string { return "" }
-func (d driftFlag) Set(s string) error {
-	id, f, ok := strings.Cut(s, "=")
-	v, err := strconv.ParseFloat(f, 64)
-	if !ok || err != nil || !(v > 0) || math.IsInf(v, 0) || id == "" {
-		return fmt.Errorf("want VIAL=FACTOR, e.g. A4=1.05")
-	}
-	d[id] = v
-	return nil
-}
 
 type simArgs struct {
 	format               string
 	enhanced             bool
 	tilt                 float64
-	drift                driftFlag
+	drift                cli.Factors
 	scanner, date, clock string
 	description          string
 	kind, out            string
-	force                forceFlag
+	force                cli.Force
 	field, temp, sigma   float64
 	rotation, b1, ineff  float64
 	mirrored             bool
 	seed                 uint64
 	matrix, slices       int
-	center               vecFlag
-	te, ti, tr, fa       listFlag
+	center               cli.Vec
+	te, ti, tr, fa       cli.List
 }
 
 func simFlags(a *simArgs, e *env) *flag.FlagSet {
@@ -77,7 +44,7 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 		"Writes a synthetic series of the built-in demo phantom (invented values) with\nknown truth: DIR/<kind>.nii.gz with its BIDS sidecar, and truth_<Q>map.nii.gz\n(NaN outside whole-voxel vial interiors). Kinds:\n"+b.String(), e)
 	fs.StringVar(&a.kind, "kind", "", "acquisition to simulate (required)")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
-	fs.Var(&a.force, "force", forceUsage)
+	fs.Var(&a.force, "force", cli.ForceUsage)
 	fs.Float64Var(&a.field, "field", 1.5, "field strength, T (reference rows exist at 1.5 and 3)")
 	fs.Float64Var(&a.temp, "temperature", 20, "phantom temperature, °C")
 	fs.Float64Var(&a.sigma, "sigma", 10, "Rician noise SD (fully relaxed signal of PD 1 is 1000); 0 for none")
@@ -96,7 +63,7 @@ func simFlags(a *simArgs, e *env) *flag.FlagSet {
 	fs.StringVar(&a.description, "description", "", "series description (default \"tauvox demo phantom KIND\")")
 	fs.StringVar(&a.date, "date", "", "acquisition date YYYY-MM-DD written to the sidecar")
 	fs.StringVar(&a.clock, "time", "09:00", "acquisition time HH:MM (with --date)")
-	a.drift = driftFlag{}
+	a.drift = cli.Factors{}
 	fs.Var(a.drift, "drift", "scale a vial's true T1 and T2, VIAL=FACTOR (repeatable)")
 	fs.Var(&a.te, "te", "override echo times, ms")
 	fs.Var(&a.ti, "ti", "override inversion times, ms")
@@ -110,7 +77,7 @@ func (a *simArgs) scene() *phantom.Scene {
 	if sigma == 0 {
 		sigma = -1
 	}
-	return &phantom.Scene{Def: phantom.Demo(), Field: a.field, Temperature: a.temp, Center: a.center.v,
+	return &phantom.Scene{Def: phantom.Demo(), Field: a.field, Temperature: a.temp, Center: a.center.V,
 		Rotation: a.rotation, Mirror: a.mirrored, Matrix: a.matrix, Slices: a.slices, Sigma: sigma,
 		B1: a.b1, Efficiency: a.ineff, Seed: a.seed, Shift: a.drift, Tilt: a.tilt}
 }
@@ -162,7 +129,7 @@ func runSimulate(_ context.Context, args []string, e *env) error {
 // simulation returns the pipeline's description of the series the flags
 // ask for.
 func (a *simArgs) simulation() (*pipeline.Simulation, error) {
-	s := &pipeline.Simulation{Kind: a.kind, Scene: a.scene(), TE: a.te.list(), TI: a.ti.list(), TR: a.tr.list(), FA: a.fa.list(),
+	s := &pipeline.Simulation{Kind: a.kind, Scene: a.scene(), TE: a.te.List(), TI: a.ti.List(), TR: a.tr.List(), FA: a.fa.List(),
 		DICOM: a.format == "dicom", Enhanced: a.enhanced, Description: a.description, Scanner: a.scanner,
 		Temperature: a.temp, Noise: a.sigma, B1: a.b1}
 	if a.date != "" {

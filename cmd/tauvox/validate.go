@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/cli"
 	"github.com/tauvox/tauvox/internal/pipeline"
 )
 
@@ -25,7 +26,7 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 	s := &pipeline.Study{Truth: map[string][]float64{}}
 	var (
 		jsonOut                     bool
-		te, ti, tr, fa, t2, t2s, t1 listFlag
+		te, ti, tr, fa, t2, t2s, t1 cli.List
 	)
 	fs := newFlags("validate", "--model M [--snr S] [--t2 LIST | --t1 LIST] [options]", validateSummary, e)
 	fs.StringVar(&s.Model, "model", "", "signal model: "+strings.Join(pipeline.StudyModels(), ", ")+" (required)")
@@ -48,10 +49,10 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 	if err := parse(fs, args, nil); err != nil {
 		return err
 	}
-	s.TE, s.TI, s.TR, s.FA = te.list(), ti.list(), tr.list(), fa.list()
-	for name, f := range map[string]*listFlag{"T2": &t2, "T2star": &t2s, "T1": &t1} {
-		if f.set {
-			s.Truth[name] = f.list()
+	s.TE, s.TI, s.TR, s.FA = te.List(), ti.List(), tr.List(), fa.List()
+	for name, f := range map[string]*cli.List{"T2": &t2, "T2star": &t2s, "T1": &t1} {
+		if f.IsSet {
+			s.Truth[name] = f.List()
 		}
 	}
 	r, err := s.Run(ctx)
