@@ -68,6 +68,7 @@ type frameInfo struct {
 	spacing   [2]float64 // row spacing, column spacing (PixelSpacing order)
 	thickness float64
 	between   float64
+	ippDec    int // decimal places of the ImagePositionPatient strings (-1: binary or absent)
 	hasIPP    bool
 	hasIOP    bool
 	hasPS     bool
@@ -191,6 +192,7 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 		return nil, formatErr(rf.path, bad, nil)
 	}
 	base.hasIPP = vec(top, tag.ImagePositionPatient, base.ipp[:])
+	base.ippDec = decimals(top, tag.ImagePositionPatient)
 	base.hasIOP = vec(top, tag.ImageOrientationPatient, base.iop[:])
 	base.hasPS = vec(top, tag.PixelSpacing, base.spacing[:])
 
@@ -219,7 +221,10 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 			return nil
 		}
 		if m := macro(tag.PlanePositionSequence); m != nil {
-			fr.hasIPP = vec(m, tag.ImagePositionPatient, fr.ipp[:]) || fr.hasIPP
+			if vec(m, tag.ImagePositionPatient, fr.ipp[:]) {
+				fr.hasIPP = true
+				fr.ippDec = decimals(m, tag.ImagePositionPatient)
+			}
 		}
 		if m := macro(tag.PlaneOrientationSequence); m != nil {
 			fr.hasIOP = vec(m, tag.ImageOrientationPatient, fr.iop[:]) || fr.hasIOP
@@ -474,4 +479,37 @@ func vec(elems []*lib.Element, t tag.Tag, dst []float64) bool {
 		dst[i] = v[i]
 	}
 	return true
+}
+
+// decimals returns the number of decimal places the decimal strings of
+// an element are written with (the most over its values; "1.5e-1"
+// counts as 2). A DS value "12.3" stands for anything in [12.25, 12.35]
+// (PS3.5 Table 6.2-1 DS). Binary values (FD) and absent elements give -1.
+func decimals(elems []*lib.Element, t tag.Tag) int {
+	e := find(elems, t)
+	if e == nil || e.Value == nil {
+		return -1
+	}
+	v, ok := e.Value.GetValue().([]string)
+	if !ok {
+		return -1
+	}
+	most := -1
+	for _, s := range v {
+		s = strings.ToLower(strings.TrimSpace(strings.Trim(s, "\x00")))
+		exp := 0
+		if i := strings.IndexByte(s, 'e'); i >= 0 {
+			n, err := strconv.Atoi(strings.TrimPrefix(s[i+1:], "+"))
+			if err != nil || n < -30 || n > 30 {
+				continue
+			}
+			exp, s = n, s[:i]
+		}
+		dec := 0
+		if i := strings.IndexByte(s, '.'); i >= 0 {
+			dec = len(s) - i - 1
+		}
+		most = max(most, dec-exp)
+	}
+	return most
 }

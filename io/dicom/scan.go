@@ -398,6 +398,7 @@ func (s *Series) summarise() {
 
 	s.classify()
 	s.lay, s.err = arrange(s)
+	s.Frames = len(s.frames) // without dropped duplicates
 	if s.lay != nil {
 		s.Slices, s.Volumes = s.lay.nz, s.lay.nt
 	}
