@@ -93,7 +93,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.StringVar(&c.Spec.Model, "model", "", "signal model: "+fit.Names()+" (required)")
 	fs.StringVar(&c.Spec.Method, "method", "", "estimation method (default: the model's first)")
 	fs.StringVar(&c.Out, "out", "", "output folder (required; refused if it exists, see --force)")
-	fs.StringVar(&c.Overrides.Series, "series", "", "DICOM series id when SERIES is a folder holding several (see tauvox scan)")
+	fs.StringVar(&c.Overrides.Series, "series", "", "DICOM series or protocol id when SERIES is a folder holding several, or series ids A,B,C to join into one protocol (see tauvox scan)")
 	fs.BoolVar(&c.Force, "force", false, "replace an existing output folder")
 	fs.StringVar(&c.Mask, "mask", "", "NIfTI mask on the series grid; voxels > 0 are fitted")
 	fs.Float64Var(&c.Threshold, "threshold", 0, "fit voxels whose largest sample reaches this value (default automatic)")

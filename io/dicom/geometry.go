@@ -30,6 +30,7 @@ type layout struct {
 	cells          []*frameInfo // index k + nz*t
 	affine         volume.Affine
 	acq            []volume.Acquisition
+	tol            float64 // mm: positions closer than this are one (grows with the rounding of the IPP strings)
 }
 
 // arrange sorts the frames of s into slices (by position along the slice
@@ -150,7 +151,7 @@ func arrange(s *Series) (*layout, error) {
 		slice[p.fr] = len(centres) - 1
 	}
 	nz, nt := len(centres), len(vols)
-	lay := &layout{nx: f0.file.cols, ny: f0.file.rows, nz: nz, nt: nt}
+	lay := &layout{nx: f0.file.cols, ny: f0.file.rows, nz: nz, nt: nt, tol: sameTol}
 	if _, err := volume.Count([4]int{lay.nx, lay.ny, nz, nt}); err != nil {
 		return fail("", "grid %d×%d×%d×%d is too large", lay.nx, lay.ny, nz, nt)
 	}

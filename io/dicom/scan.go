@@ -81,6 +81,9 @@ type Catalog struct {
 	Unreadable int       `json:"unreadable"` // DICOM-like files that could not be read (each has a Problem)
 	Ignored    int       `json:"ignored"`    // localizers, derived images and non-image DICOM objects left out
 	Problems   []Problem `json:"problems"`   // unreadable files and series that cannot be loaded
+	// Protocols are relaxation series split over several DICOM series
+	// (one per TI, flip angle, TE or TR) on one grid.
+	Protocols []*Protocol `json:"protocols"`
 
 	opt ScanOptions
 }
@@ -117,6 +120,10 @@ type Series struct {
 	Notes []string `json:"notes,omitempty"`
 	// Problem is why the series cannot be loaded ("" when it can).
 	Problem string `json:"problem,omitempty"`
+	// Fixed lists the acquisition parameters that are the same in every
+	// image, e.g. "TI 300 ms, TR 6000 ms, TE 12 ms, FA 90°" (what a
+	// single-volume series contributes to a protocol).
+	Fixed string `json:"fixed,omitempty"`
 
 	frames []*frameInfo
 	key    string
@@ -293,6 +300,7 @@ func (c *Catalog) group(infos []*fileInfo) {
 		}
 		return sa.key < sb.key
 	})
+	c.protocols()
 }
 
 // noteSplit records how a series was split. Mixed matrix sizes are also a
@@ -399,6 +407,7 @@ func (s *Series) summarise() {
 	s.classify()
 	s.lay, s.err = arrange(s)
 	s.Frames = len(s.frames) // without dropped duplicates
+	s.Fixed = fixedParams(s.frames)
 	if s.lay != nil {
 		s.Slices, s.Volumes = s.lay.nz, s.lay.nt
 	}
@@ -589,4 +598,35 @@ func (s *Series) Paths() []string {
 	}
 	sort.Strings(out)
 	return out
+}
+
+// fixedParams describes the parameters whose value is the same in every
+// frame (TI, TR, TE, flip angle; unknown ones left out).
+func fixedParams(frames []*frameInfo) string {
+	var parts []string
+	for _, p := range []struct {
+		label, unit string
+		get         func(*frameInfo) float64
+	}{
+		{"TI", " ms", func(f *frameInfo) float64 { return f.ti }},
+		{"TR", " ms", func(f *frameInfo) float64 { return f.tr }},
+		{"TE", " ms", func(f *frameInfo) float64 { return f.te }},
+		{"FA", "°", func(f *frameInfo) float64 { return f.fa }},
+	} {
+		v := p.get(frames[0])
+		if math.IsNaN(v) {
+			continue
+		}
+		same := true
+		for _, f := range frames[1:] {
+			if quant(p.get(f)) != quant(v) {
+				same = false
+				break
+			}
+		}
+		if same {
+			parts = append(parts, p.label+" "+strconv.FormatFloat(v, 'g', -1, 64)+p.unit)
+		}
+	}
+	return strings.Join(parts, ", ")
 }
