@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"sort"
+	"strings"
 
 	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/volume"
@@ -40,6 +42,7 @@ func LoadSeries(s *Series) (*volume.Image, error) {
 			s.ID, dims[0], dims[1], dims[2], dims[3], s.opt.maxBytes()), ErrTooLarge)
 	}
 	im := &volume.Image{Dims: dims, Data: make([]float32, count), Affine: lay.affine, Source: s.Source}
+	im.Source.Pixels, im.Source.Warnings = s.pixelNotes()
 	im.Acq = append([]volume.Acquisition(nil), lay.acq...)
 
 	// Cells of each file, so that each file is read once.
@@ -58,7 +61,11 @@ func LoadSeries(s *Series) (*volume.Image, error) {
 	}
 	var buf []byte
 	for _, f := range order {
-		buf, err = readPixels(f, buf, s.opt.maxBytes())
+		if f.raw.syn.encapsulated {
+			buf, err = readCompressed(f, s.opt.maxBytes())
+		} else {
+			buf, err = readPixels(f, buf, s.opt.maxBytes())
+		}
 		if err != nil {
 			return nil, err
 		}
@@ -193,4 +200,31 @@ func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
 			dst[i] = float32(slope*x + icpt)
 		}
 	}
+}
+
+// pixelNotes says how the pixel data of s are stored and decoded, and
+// warns of lossy compression (quantitative values from lossy data).
+func (s *Series) pixelNotes() (string, []string) {
+	seen := map[string]bool{}
+	var hows, warns []string
+	for _, fr := range s.frames {
+		rf := fr.file.raw
+		if seen[rf.syn.uid] {
+			continue
+		}
+		seen[rf.syn.uid] = true
+		how := rf.syn.name + " (" + rf.syn.uid + ")"
+		if c, ok := codecs[rf.syn.uid]; ok {
+			how = c.how + " (" + rf.syn.uid + ")"
+			if t, _, ok := toolFor(c); ok && len(c.tool) > 0 {
+				how += ", decoded by " + t.prog
+			}
+			if c.lossy {
+				warns = append(warns, fmt.Sprintf("pixel data are lossy compressed (%s): fitted values carry the compression error", rf.syn.name))
+			}
+		}
+		hows = append(hows, how)
+	}
+	sort.Strings(hows)
+	return strings.Join(hows, "; "), warns
 }

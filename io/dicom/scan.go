@@ -446,8 +446,16 @@ func (s *Series) unsupported() error {
 		f := fr.file
 		rf := f.raw
 		switch {
-		case rf.syn.encapsulated || rf.pix.vl == undefinedLength:
-			return unsupportedErr(rf.path, fmt.Sprintf("transfer syntax %s (%s) is compressed; tauvox reads only uncompressed and deflated files; decompress them first (e.g. with dcmtk's dcmdjpeg)", rf.syn.name, rf.syn.uid), nil)
+		case rf.syn.encapsulated && rf.pix.vl != undefinedLength:
+			return formatErr(rf.path, fmt.Sprintf("pixel data of defined length in the compressed transfer syntax %s (%s); PS3.5 §A.4 requires fragments of undefined length", rf.syn.name, rf.syn.uid), nil)
+		case rf.syn.encapsulated:
+			if err := checkCodec(rf); err != nil {
+				return err
+			}
+		case rf.pix.vl == undefinedLength:
+			return formatErr(rf.path, fmt.Sprintf("pixel data of undefined length (encapsulated) in the uncompressed transfer syntax %s", rf.syn.name), nil)
+		}
+		switch {
 		case f.samples != 1:
 			return unsupportedErr(rf.path, fmt.Sprintf("%d samples per pixel (colour); tauvox reads grey-scale images", f.samples), nil)
 		case rf.pix.tag == 0x7FE00010 && f.bitsAlloc != 8 && f.bitsAlloc != 16 && f.bitsAlloc != 32:
