@@ -48,7 +48,7 @@ var gdcm = toolCmd{"gdcmconv", []string{"--raw"}}
 
 // codecs lists the compressed syntaxes read. RLE and JPEG process 14 are
 // decoded here; JPEG-LS and JPEG 2000 by Debian's dcmtk or GDCM when
-// installed (no Go decoder of them passed the tests, see docs/formats.md);
+// installed (no Go decoder of them has been evaluated yet);
 // baseline JPEG by Go's image/jpeg.
 var codecs = map[string]codec{
 	tsRLE:           {how: "RLE Lossless, decoded by tauvox (DICOM PS3.5 Annex G)"},

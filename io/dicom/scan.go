@@ -328,7 +328,11 @@ func (c *Catalog) noteSplit(uid string, list []*Series) {
 			if len(s.frames) < len(small.frames) {
 				small = s
 			}
-			if len(s.frames) > len(big.frames) {
+		}
+		big = nil
+		for _, s := range list {
+			f, fs := s.frames[0].file, small.frames[0].file
+			if (f.cols != fs.cols || f.rows != fs.rows) && (big == nil || len(s.frames) > len(big.frames)) {
 				big = s
 			}
 		}
@@ -405,7 +409,11 @@ func (s *Series) summarise() {
 	}
 
 	s.classify()
-	s.lay, s.err = arrange(s)
+	if m := mosaicIn(s); m != nil {
+		s.err = m // never stacked as single slices
+	} else {
+		s.lay, s.err = arrange(s)
+	}
 	s.Frames = len(s.frames) // without dropped duplicates
 	s.Fixed = fixedParams(s.frames)
 	if s.lay != nil {
@@ -437,6 +445,16 @@ func commonDir(a, b string) string {
 		}
 	}
 	return a
+}
+
+// mosaicIn reports the first mosaic among the files of s.
+func mosaicIn(s *Series) error {
+	for _, fr := range s.frames {
+		if f := fr.file; f.mosaic != "" {
+			return unsupportedErr(f.raw.path, "mosaic ("+f.mosaic+"): tauvox does not un-tile mosaics and will not read one as a single slice; convert the series to NIfTI with a mosaic-aware converter", nil)
+		}
+	}
+	return nil
 }
 
 // unsupported reports the first file of s whose pixel data this package
