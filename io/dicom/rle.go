@@ -20,6 +20,9 @@ func codecErr(format string, a ...any) error {
 // first (G.2), each decoding to exactly rows·cols bytes. dst must hold
 // n·bytesPer bytes; n is rows·cols.
 func decodeRLE(dst []byte, src []byte, n, bytesPer int) error {
+	if n < 1 || len(dst) < n*bytesPer {
+		return codecErr("RLE frame for %d samples of %d bytes into %d bytes", n, bytesPer, len(dst))
+	}
 	if len(src) < 64 {
 		return codecErr("RLE frame of %d bytes is shorter than its 64-byte header", len(src))
 	}
