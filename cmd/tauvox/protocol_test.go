@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"math"
 	"os"
@@ -133,5 +134,44 @@ func TestSplitProtocolRefused(t *testing.T) {
 		if _, err := os.Stat(out); !os.IsNotExist(err) {
 			t.Errorf("%s: %s was written", tc.name, out)
 		}
+	}
+}
+
+// TestFitDerived: the inversion recovery protocol marked DERIVED
+// (ImageType DERIVED\SECONDARY\M\ND, PS3.3 C.7.6.1.1.2) is left out by
+// fit, and fitted with --derived, to the same map, with a warning in
+// provenance.json.
+func TestFitDerived(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "derived")
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	files, _ := filepath.Glob("../../testdata/dicom/codecs/ir-rle/*")
+	for _, f := range files {
+		b, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		nb := bytes.Replace(b, []byte(`ORIGINAL\PRIMARY\M\ND `), []byte(`DERIVED\SECONDARY\M\ND`), 1)
+		if bytes.Equal(nb, b) {
+			t.Fatalf("%s: ImageType not found", f)
+		}
+		if err := os.WriteFile(filepath.Join(dir, filepath.Base(f)), nb, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	out := filepath.Join(t.TempDir(), "fit")
+	if code, _, stderr := tauvox(t, "fit", dir, "--model", "t1-ir", "--out", out); code != 2 || !strings.Contains(stderr, "--derived reads derived images") {
+		t.Errorf("without --derived: exit %d, %q", code, stderr)
+	}
+	if code, _, stderr := tauvox(t, "fit", dir, "--model", "t1-ir", "--derived", "--no-mask", "--no-preview", "--workers", "2", "--out", out); code != 0 {
+		t.Fatal(stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "provenance.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(b), `the images are DERIVED (ImageType DERIVED\\SECONDARY\\M\\ND)`) {
+		t.Errorf("provenance lacks the derived warning:\n%s", b)
 	}
 }

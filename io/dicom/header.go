@@ -2,6 +2,7 @@ package dicom
 
 import (
 	"bytes"
+	"encoding/binary"
 	"fmt"
 	"io"
 	"math"
@@ -370,12 +371,66 @@ func firstItem(e *lib.Element) []*lib.Element {
 	return nil
 }
 
+// valueOf returns the value of e; an element of VR UN with a defined
+// length (bytes as they were encoded, little endian; PS3.5 §6.2.2) is
+// decoded by the VR the data dictionary gives its tag.
+func valueOf(e *lib.Element) any {
+	v := e.Value.GetValue()
+	b, ok := v.([]byte)
+	if !ok || e.RawValueRepresentation != "UN" {
+		return v
+	}
+	info, err := tag.Find(e.Tag)
+	if err != nil || len(info.VRs) == 0 {
+		return v
+	}
+	le := binary.LittleEndian
+	switch vr := info.VRs[0]; vr {
+	case "AE", "AS", "CS", "DA", "DS", "DT", "IS", "LO", "LT", "PN", "SH", "ST", "TM", "UC", "UI", "UR", "UT":
+		return strings.Split(strings.TrimRight(string(b), " \x00"), `\`)
+	case "US", "SS", "UL", "SL":
+		size := 2
+		if vr == "UL" || vr == "SL" {
+			size = 4
+		}
+		out := make([]int, 0, len(b)/size)
+		for i := 0; i+size <= len(b); i += size {
+			switch vr {
+			case "US":
+				out = append(out, int(le.Uint16(b[i:])))
+			case "SS":
+				out = append(out, int(int16(le.Uint16(b[i:]))))
+			case "UL":
+				out = append(out, int(le.Uint32(b[i:])))
+			default:
+				out = append(out, int(int32(le.Uint32(b[i:]))))
+			}
+		}
+		return out
+	case "FL", "FD":
+		size := 4
+		if vr == "FD" {
+			size = 8
+		}
+		out := make([]float64, 0, len(b)/size)
+		for i := 0; i+size <= len(b); i += size {
+			if size == 4 {
+				out = append(out, float64(math.Float32frombits(le.Uint32(b[i:]))))
+			} else {
+				out = append(out, math.Float64frombits(le.Uint64(b[i:])))
+			}
+		}
+		return out
+	}
+	return v
+}
+
 func strs(elems []*lib.Element, t tag.Tag) []string {
 	e := find(elems, t)
 	if e == nil || e.Value == nil {
 		return nil
 	}
-	v, _ := e.Value.GetValue().([]string)
+	v, _ := valueOf(e).([]string)
 	out := make([]string, 0, len(v))
 	for _, s := range v {
 		out = append(out, strings.Trim(s, " \x00"))
@@ -394,7 +449,7 @@ func nums(elems []*lib.Element, t tag.Tag) []float64 {
 	if e == nil || e.Value == nil {
 		return nil
 	}
-	switch v := e.Value.GetValue().(type) {
+	switch v := valueOf(e).(type) {
 	case []string:
 		out := make([]float64, 0, len(v))
 		for _, s := range v {

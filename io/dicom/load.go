@@ -225,6 +225,12 @@ func (s *Series) pixelNotes() (string, []string) {
 		}
 		hows = append(hows, how)
 	}
+	if it := fr0Type(s); strings.HasPrefix(it, "DERIVED") {
+		warns = append(warns, "the images are DERIVED (ImageType "+it+"), read because derived images were asked for")
+	}
 	sort.Strings(hows)
 	return strings.Join(hows, "; "), warns
 }
+
+// fr0Type is the ImageType of the first file of s.
+func fr0Type(s *Series) string { return strings.Join(s.frames[0].file.imageType, `\`) }
