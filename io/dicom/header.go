@@ -79,6 +79,15 @@ type frameInfo struct {
 	echo      int
 	slope     float64
 	intercept float64
+	// Real World Value Mapping (PS3.3 C.7.6.16.2.11): stored value →
+	// real-world value by slope and intercept, replacing the rescale
+	// when present (NaN: absent); rwvNote says why one present is unused.
+	rwvSlope, rwvIntercept float64
+	rwvUnits, rwvNote      string
+	// privScale is the vendor's private floating-point scale slope
+	// (2005,100E) (NaN: absent); recorded, and a differing value between
+	// images warned about, not applied.
+	privScale float64
 	kind      string // image/frame type used to split series
 }
 
@@ -191,6 +200,8 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	if v, ok := integer(top, tag.EchoNumbers); ok {
 		base.echo = v
 	}
+	base.rwvSlope, base.rwvIntercept, base.rwvUnits, base.rwvNote = rwvOf(firstItem(find(top, tag.RealWorldValueMappingSequence)))
+	base.privScale = privateScale(top)
 	if bad := badRescale(top); bad != "" {
 		return nil, formatErr(rf.path, bad, nil)
 	}
@@ -255,6 +266,9 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 			}
 			fr.slope = numOr(m, tag.RescaleSlope, fr.slope)
 			fr.intercept = numOr(m, tag.RescaleIntercept, fr.intercept)
+		}
+		if m := macro(tag.RealWorldValueMappingSequence); m != nil {
+			fr.rwvSlope, fr.rwvIntercept, fr.rwvUnits, fr.rwvNote = rwvOf(m)
 		}
 		if m := macro(tag.MRImageFrameTypeSequence); m != nil {
 			ft := strings.Join(strs(m, tag.FrameType), `\`)
@@ -611,4 +625,51 @@ func mosaicOf(top []*lib.Element, fi *fileInfo) string {
 		return fmt.Sprintf("a %d×%d frame for an acquisition matrix of %d with %d slices in NumberOfImagesInMosaic (0019,100A)", fi.cols, fi.rows, acq, count)
 	}
 	return ""
+}
+
+// rwvOf reads the first Real World Value Mapping item (PS3.3
+// C.7.6.16.2.11): RealWorldValueSlope (0040,9225) and
+// RealWorldValueIntercept (0040,9224), the units from
+// MeasurementUnitsCodeSequence (0040,08EA) CodeValue. A mapping by LUT
+// only is not applied (note says so). NaN slope: none.
+func rwvOf(it []*lib.Element) (slope, icpt float64, units, note string) {
+	slope, icpt = math.NaN(), math.NaN()
+	if it == nil {
+		return
+	}
+	if u := firstItem(find(it, tag.MeasurementUnitsCodeSequence)); u != nil {
+		units = str(u, tag.CodeValue)
+	}
+	slope = num(it, tag.RealWorldValueSlope)
+	icpt = numOr(it, tag.RealWorldValueIntercept, 0)
+	switch {
+	case math.IsNaN(slope) && find(it, tag.RealWorldValueLUTData) != nil:
+		note = "Real World Value Mapping by LUT is not applied; RescaleSlope/RescaleIntercept used"
+	case math.IsNaN(slope):
+		note = "Real World Value Mapping without a slope is not applied"
+	case slope == 0:
+		slope, note = math.NaN(), "Real World Value Mapping with slope 0 is not applied"
+	}
+	return
+}
+
+// privateScale returns the vendor's private floating-point scale slope
+// (2005,100E), NaN when absent: FL in explicit VR files, 4 bytes little
+// endian in implicit VR ones.
+func privateScale(top []*lib.Element) float64 {
+	e := find(top, tag.Tag{Group: 0x2005, Element: 0x100E})
+	if e == nil || e.Value == nil {
+		return math.NaN()
+	}
+	switch v := e.Value.GetValue().(type) {
+	case []float64:
+		if len(v) > 0 {
+			return v[0]
+		}
+	case []byte:
+		if len(v) == 4 {
+			return float64(math.Float32frombits(binary.LittleEndian.Uint32(v)))
+		}
+	}
+	return math.NaN()
 }

@@ -316,6 +316,36 @@ func LoadProtocol(p *Protocol) (*volume.Image, error) {
 		if out == nil {
 			out = im
 			out.Source.Description = p.Description
+			var frames []*frameInfo
+			for _, m := range p.members {
+				frames = append(frames, m.frames...)
+			}
+			// Scaling is judged over the whole protocol: a private scale
+			// that differs between its series is warned about.
+			how, _ := p.members[0].pixelNotes()
+			if i := strings.Index(how, "; scaling: "); i >= 0 {
+				how = how[:i]
+			}
+			scale, warns := scaling(frames)
+			out.Source.Pixels = how + "; " + scale
+			seen := map[string]bool{}
+			var all []string
+			for _, m := range p.members {
+				_, w := m.pixelNotes()
+				for _, x := range append(w, warns...) {
+					if !seen[x] && !strings.HasPrefix(x, "the private scale slope") && !strings.HasPrefix(x, "Real World Value Mapping is present") {
+						seen[x] = true
+						all = append(all, x)
+					}
+				}
+			}
+			for _, x := range warns {
+				if !seen[x] {
+					seen[x] = true
+					all = append(all, x)
+				}
+			}
+			out.Source.Warnings = all
 			continue
 		}
 		if im.Dims[0] != out.Dims[0] || im.Dims[1] != out.Dims[1] || im.Dims[2] != out.Dims[2] {
