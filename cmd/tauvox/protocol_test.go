@@ -175,3 +175,28 @@ func TestFitDerived(t *testing.T) {
 		t.Errorf("provenance lacks the derived warning:\n%s", b)
 	}
 }
+
+// TestScanEchoProtocol: scan suggests t2 for a spin-echo train split over
+// series (the model registry's suggestion for EchoTime and SE).
+func TestScanEchoProtocol(t *testing.T) {
+	code, stdout, stderr := tauvox(t, "scan", "../../testdata/dicom/geometry/echo-split", "--json")
+	if code != 0 {
+		t.Fatal(stderr)
+	}
+	var res pipeline.ScanResult
+	if err := json.Unmarshal([]byte(stdout), &res); err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, s := range res.Series {
+		if len(s.Joins) > 0 {
+			n++
+			if s.Model != "t2" || len(s.Joins) != 4 {
+				t.Errorf("protocol row %+v", s)
+			}
+		}
+	}
+	if n != 1 {
+		t.Errorf("%d protocol rows", n)
+	}
+}

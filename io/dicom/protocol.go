@@ -27,6 +27,7 @@ type Protocol struct {
 	Description string    `json:"description"`
 	Varying     string    `json:"varying"` // the parameter that differs between the series
 	Values      []float64 `json:"values"`  // its values, ascending (ms or degrees)
+	Echo        string    `json:"echo"`    // echo series: "SE" or "GR" when the headers tell (see Series.Echo)
 	Rows        int       `json:"rows"`
 	Columns     int       `json:"columns"`
 	Slices      int       `json:"slices"`
@@ -247,6 +248,9 @@ func makeProtocol(list []*Series) *Protocol {
 		return fail(s0.Source.Path, "the series %s have the same acquisition parameters; nothing varies", strings.Join(ids, ", "))
 	}
 	p.Varying = by.name
+	if p.Varying == "EchoTime" {
+		p.Echo = echoKind(s0.frames[0].file)
+	}
 	owner := map[int64]*Series{}
 	for _, v := range vols {
 		x := by.get(v.acq)

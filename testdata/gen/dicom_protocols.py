@@ -23,7 +23,8 @@ geometry/rounded/   20 oblique slices, 2 echoes, positions written with one
 geometry/missing/   the same with slice 13 left out (both echoes);
 geometry/dup-same/  3 slices x 2 echoes plus an exact copy of one file;
 geometry/dup-diff/  the same, the copy with one pixel changed;
-geometry/repeat-ti/ inversion recovery as 3 series where two share TI 300 ms.
+geometry/repeat-ti/ inversion recovery as 3 series where two share TI 300 ms;
+geometry/echo-split/ multi-echo spin echo as 4 series, one per echo time.
 """
 
 import json
@@ -243,6 +244,12 @@ def main():
     rep = os.path.join(ROOT, "geometry", "repeat-ti")
     for s, ti in enumerate([100, 300, 300]):
         write_series(rep, 41 + s, "ir_rep%d" % s, [dict(ti=ti, tr=6000, te=12, fa=90, seq="IR")], dict(geom, slices=2))
+
+    # Multi-echo spin echo as one series per echo time (added last, so the
+    # files above keep their bytes).
+    es = os.path.join(ROOT, "geometry", "echo-split")
+    for s, te in enumerate([10, 20, 40, 80]):
+        write_series(es, 51 + s, "se_te%d" % te, [dict(te=te, tr=3000, fa=90, seq="SE")], dict(geom, slices=2))
 
     with open(os.path.join(ROOT, "protocols-refs.json"), "w") as f:
         json.dump(refs, f, indent=1)
