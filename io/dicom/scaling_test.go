@@ -2,6 +2,7 @@ package dicom
 
 import (
 	"encoding/binary"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -101,5 +102,40 @@ func TestRealWorldValueMapping(t *testing.T) {
 	if len(warns) != 1 || !strings.Contains(warns[0], "private scale slope (2005,100E) differs between images (1.5 to 3.25)") ||
 		!strings.Contains(how, "private scale slope (2005,100E) 1.5 to 3.25 recorded, not applied") {
 		t.Errorf("pixels %q, warnings %q", how, warns)
+	}
+}
+
+// TestRealWorldValueMappingPerFrame: an Enhanced MR file whose frames
+// (out of order) each carry a rescale and their own Real World Value
+// Mapping (testdata/gen/dicom_protocols.py, pydicom 2.3.1) loads to
+// slope·stored + intercept of each frame's mapping (PS3.3
+// C.7.6.16.2.11), at the echo and slice the frame belongs to.
+func TestRealWorldValueMappingPerFrame(t *testing.T) {
+	r := loadProtoRefs(t)
+	c := scanOne(t, "geometry/rwv-enhanced", nil)
+	if len(c.Series) != 1 {
+		t.Fatalf("%d series, %v", len(c.Series), c.Problems)
+	}
+	im, err := LoadSeries(c.Series[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if im.Dims != [4]int{4, 4, 2, 2} || len(r.RWVEnhanced) != 4 {
+		t.Fatalf("dims %v, %d reference frames", im.Dims, len(r.RWVEnhanced))
+	}
+	for key, want := range r.RWVEnhanced {
+		var te, k int
+		if _, err := fmt.Sscanf(key, "%d,%d", &te, &k); err != nil {
+			t.Fatal(err)
+		}
+		got := im.Data[(te*2+k)*16 : (te*2+k+1)*16]
+		for i := range want {
+			if float64(got[i]) != want[i] {
+				t.Fatalf("echo %d slice %d sample %d = %g, want %g", te, k, i, got[i], want[i])
+			}
+		}
+	}
+	if !strings.Contains(im.Source.Pixels, "Real World Value Mapping slope/intercept (units 1)") {
+		t.Errorf("pixels %q", im.Source.Pixels)
 	}
 }
