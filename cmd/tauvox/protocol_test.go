@@ -117,6 +117,8 @@ func TestSplitProtocolRefused(t *testing.T) {
 			[]string{"geometry/repeat-ti", "InversionTime 300 ms is repeated: series 42-"}},
 		{"other matrix", []string{"../../testdata/dicom/protocols-mismatch", "--model", "t1-ir", "--series", "21,22"},
 			[]string{"protocols-mismatch", "matrix 8×6 (Columns×Rows) differs from 8×8"}},
+		{"TR differs (found by scan)", []string{"../../testdata/dicom/protocols-mismatch", "--model", "t1-ir"},
+			[]string{"protocols-mismatch", "differ in InversionTime and also in RepetitionTime"}},
 		{"TR differs", []string{"../../testdata/dicom/protocols-mismatch", "--model", "t1-ir", "--series", "21,23"},
 			[]string{"protocols-mismatch", "also in RepetitionTime, which must agree: 6000 ms in 21-"}},
 	} {

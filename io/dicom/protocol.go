@@ -142,8 +142,13 @@ func (c *Catalog) protocols() {
 	}
 	for _, k := range keys {
 		for _, g := range groups[k] {
-			if len(g) > 1 {
-				c.Protocols = append(c.Protocols, makeProtocol(g))
+			if len(g) < 2 {
+				continue
+			}
+			// Series on one grid with the same parameters (a repeated
+			// scan) are not a protocol; Join still says why.
+			if p := makeProtocol(g); p.Varying != "" {
+				c.Protocols = append(c.Protocols, p)
 			}
 		}
 	}
@@ -236,6 +241,7 @@ func makeProtocol(list []*Series) *Protocol {
 				continue
 			}
 			// A second parameter differs: name its values by series.
+			p.Varying = by.name
 			pr := params[i]
 			var parts []string
 			for _, s := range list {
