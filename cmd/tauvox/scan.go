@@ -55,12 +55,27 @@ reason; the scan goes on with the rest.`, e)
 		if s.Problem != "" {
 			model = "(cannot load: " + oneLine(s.Problem) + ")"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(output.Printable(oneLine(s.Description)), 40), s.Varying, valueList(s.Values),
+		values := valueList(s.Values)
+		if len(s.Values) == 0 && s.Fixed != "" {
+			values = "(" + s.Fixed + ")"
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(output.Printable(oneLine(s.Description)), 40), s.Varying, values,
 			s.Matrix[0], s.Matrix[1], s.Slices, s.Volumes, model)
 	}
+
 	tw.Flush()
+	protocols := 0
+	for _, s := range res.Series {
+		if len(s.Joins) > 0 {
+			protocols++
+			fmt.Fprintf(e.stdout, "  %s joins %d series: %s\n", s.ID, len(s.Joins), strings.Join(s.Joins, ", "))
+		}
+	}
+	if protocols > 0 {
+		fmt.Fprintf(e.stdout, "%d protocols split over several series (fit one with --series ID, or join series with --series A,B,C)\n", protocols)
+	}
 	fmt.Fprintf(e.stdout, "%d series; %d DICOM files, %d other files skipped, %d unreadable, %d localizer/derived left out\n",
-		len(res.Series), res.Files, res.Skipped, res.Unreadable, res.Ignored)
+		len(res.Series)-protocols, res.Files, res.Skipped, res.Unreadable, res.Ignored)
 	for _, s := range res.Series {
 		if id := s.Identifiers; id != nil {
 			fmt.Fprintf(e.stdout, "  identifiers of %s: name %q, ID %q, birth date %q, accession %q\n", s.ID,

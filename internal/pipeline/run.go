@@ -34,7 +34,11 @@ func (c *Config) load() (*volume.Image, []series.Input, error) {
 	im, inputs := c.Image, c.Inputs
 	if im == nil {
 		var err error
-		if im, inputs, err = series.Load(c.Series, &c.Overrides); err != nil {
+		o := c.Overrides
+		if info, ok := fit.Lookup(c.Spec.Model); ok && o.Needs == "" {
+			o.Needs = info.Needs // a folder with several protocols: the one this model fits
+		}
+		if im, inputs, err = series.Load(c.Series, &o); err != nil {
 			return nil, nil, err
 		}
 	}

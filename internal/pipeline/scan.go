@@ -27,9 +27,14 @@ type ScanEntry struct {
 	Model       string    `json:"model"`
 	Problem     string    `json:"problem,omitempty"`
 	Notes       []string  `json:"notes,omitempty"`
-	Scanner     string    `json:"scanner,omitempty"`
-	Acquired    string    `json:"acquired,omitempty"`
-	Field       *float64  `json:"field_T,omitempty"`
+	// Fixed lists the parameters every image of a DICOM series shares
+	// ("TI 300 ms, TR 6000 ms, ..."); Joins the series a protocol row
+	// joins (one series per TI, flip angle, TE or TR).
+	Fixed    string   `json:"fixed,omitempty"`
+	Joins    []string `json:"joins,omitempty"`
+	Scanner  string   `json:"scanner,omitempty"`
+	Acquired string   `json:"acquired,omitempty"`
+	Field    *float64 `json:"field_T,omitempty"`
 	// Identifiers (patient name, ID, birth date, accession number) are
 	// filled only with --keep-identifiers.
 	Identifiers *dicom.Identifiers `json:"identifiers,omitempty"`
@@ -57,9 +62,22 @@ func Scan(paths []string, opt *dicom.ScanOptions) (*ScanResult, error) {
 	for _, s := range cat.Series {
 		en := ScanEntry{ID: s.ID, Format: "dicom", Description: s.Description, Varying: s.Varying, Values: s.Values,
 			Matrix: [2]int{s.Columns, s.Rows}, Slices: s.Slices, Volumes: s.Volumes, Model: suggest(s.Varying, s.Echo), Problem: s.Problem,
-			Notes: s.Notes, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt, Identifiers: s.Identifiers}
+			Notes: s.Notes, Fixed: s.Fixed, Scanner: s.Source.Scanner, Acquired: s.Source.AcquiredAt, Identifiers: s.Identifiers}
 		if f := s.Source.FieldStrength; f > 0 {
 			en.Field = &f
+		}
+		res.Series = append(res.Series, en)
+	}
+	for _, p := range cat.Protocols {
+		m0, _ := cat.Lookup(p.Series[0])
+		en := ScanEntry{ID: p.ID, Format: "dicom", Description: p.Description, Varying: p.Varying, Values: p.Values,
+			Matrix: [2]int{p.Columns, p.Rows}, Slices: p.Slices, Volumes: p.Volumes, Problem: p.Problem, Joins: p.Series}
+		if m0 != nil {
+			en.Model = suggest(p.Varying, p.Echo)
+			en.Scanner, en.Acquired = m0.Source.Scanner, m0.Source.AcquiredAt
+			if f := m0.Source.FieldStrength; f > 0 {
+				en.Field = &f
+			}
 		}
 		res.Series = append(res.Series, en)
 	}

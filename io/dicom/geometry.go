@@ -1,6 +1,8 @@
 package dicom
 
 import (
+	"bytes"
+	"encoding/binary"
 	"fmt"
 	"math"
 	"sort"
@@ -9,7 +11,9 @@ import (
 )
 
 // Tolerances of the stacking checks (common practice: scanners write
-// positions with at least 0.01 mm resolution).
+// positions with at least 0.01 mm resolution). Positions written with
+// fewer decimals widen them to what the strings can carry (see
+// roundingTol).
 const (
 	positionTol = 0.01 // mm: same slice; in-plane agreement of a slice across volumes
 	spacingRel  = 0.01 // relative slice-step tolerance (1 %)
@@ -23,6 +27,7 @@ type layout struct {
 	cells          []*frameInfo // index k + nz*t
 	affine         volume.Affine
 	acq            []volume.Acquisition
+	tol            float64 // mm: positions closer than this are one (grows with the rounding of the IPP strings)
 }
 
 // arrange sorts the frames of s into slices (by position along the slice
@@ -37,6 +42,24 @@ func arrange(s *Series) (*layout, error) {
 		return nil, &SeriesError{Path: path, Series: s.ID, Reason: fmt.Sprintf(format, a...), Err: ErrIncomplete}
 	}
 	f0 := s.frames[0]
+	// Positions are as precise as the most decimals any of their strings
+	// carries: a writer that rounds to 0.1 mm writes "12.3" and, with
+	// trailing zeros dropped, "12". Strings without any decimals are
+	// taken as exact (scanners write at least one decimal; common
+	// practice), so quantum is half a unit of the last decimal written.
+	dec := -1
+	for _, fr := range s.frames {
+		dec = max(dec, fr.ippDec)
+	}
+	quantum := 0.0
+	if dec >= 1 {
+		quantum = 0.5 * math.Pow(10, -float64(dec))
+	}
+	// roundingTol bounds how far apart two positions that agree before
+	// rounding can be: each component is off by at most quantum, so a
+	// point by at most √3·quantum, and a difference of two by twice that.
+	roundingTol := 2 * math.Sqrt(3) * quantum
+	sameTol := math.Max(positionTol, roundingTol)
 	for _, fr := range s.frames {
 		switch {
 		case !fr.hasIOP:
@@ -118,25 +141,46 @@ func arrange(s *Series) (*layout, error) {
 	slice := make(map[*frameInfo]int, len(ps))
 	start := math.Inf(-1)
 	for _, p := range ps {
-		if p.s-start > positionTol {
+		if p.s-start > sameTol {
 			start = p.s
 			centres = append(centres, p.s)
 		}
 		slice[p.fr] = len(centres) - 1
 	}
 	nz, nt := len(centres), len(vols)
-	lay := &layout{nx: f0.file.cols, ny: f0.file.rows, nz: nz, nt: nt}
+	lay := &layout{nx: f0.file.cols, ny: f0.file.rows, nz: nz, nt: nt, tol: sameTol}
 	if _, err := volume.Count([4]int{lay.nx, lay.ny, nz, nt}); err != nil {
 		return fail("", "grid %d×%d×%d×%d is too large", lay.nx, lay.ny, nz, nt)
 	}
 	lay.cells = make([]*frameInfo, nz*nt)
+	dropped := map[*frameInfo]bool{}
 	for _, fr := range s.frames {
 		k, t := slice[fr], volIndex[keyOf(fr)]
 		if old := lay.cells[k+nz*t]; old != nil {
-			return fail(frameName(fr), "two images for slice %d of %d (%.4g mm along the slice normal) at %s: %s and %s",
-				k+1, nz, centres[k], describe(s, old), frameName(old), frameName(fr))
+			if dup, err := duplicate(old, fr); err != nil {
+				return nil, err
+			} else if dup {
+				s.Notes = append(s.Notes, fmt.Sprintf("%s repeats %s (same SOP Instance UID and pixels); left out", frameName(fr), frameName(old)))
+				dropped[fr] = true
+				continue
+			}
+			why := ""
+			if old.file.sopInstance != "" && old.file.sopInstance == fr.file.sopInstance {
+				why = " with the same SOP Instance UID but different pixels"
+			}
+			return fail(frameName(fr), "two images for slice %d of %d (%.4g mm along the slice normal) at %s%s: %s and %s",
+				k+1, nz, centres[k], describe(s, old), why, frameName(old), frameName(fr))
 		}
 		lay.cells[k+nz*t] = fr
+	}
+	if len(dropped) > 0 {
+		kept := s.frames[:0:0]
+		for _, fr := range s.frames {
+			if !dropped[fr] {
+				kept = append(kept, fr)
+			}
+		}
+		s.frames = kept
 	}
 	missing := 0
 	var first string
@@ -165,7 +209,7 @@ func arrange(s *Series) (*layout, error) {
 		ref[k] = lay.cells[k].ipp
 		for t := 1; t < nt; t++ {
 			fr := lay.cells[k+nz*t]
-			if d := dist(fr.ipp, ref[k]); d > positionTol {
+			if d := dist(fr.ipp, ref[k]); d > sameTol {
 				return lay, &SeriesError{Path: frameName(fr), Series: s.ID, Err: ErrIncomplete,
 					Reason: fmt.Sprintf("slice %d is %.3g mm away from the same slice of %s", k+1, d, frameName(lay.cells[k]))}
 			}
@@ -178,7 +222,23 @@ func arrange(s *Series) (*layout, error) {
 			d[i] = (ref[nz-1][i] - ref[0][i]) / float64(nz-1)
 		}
 		step := math.Sqrt(dot(d, d))
-		tol := math.Max(spacingTol, spacingRel*step)
+		// A gap of about twice the usual step is a missing slice: name
+		// the slices on either side of it.
+		gaps := make([]float64, nz-1)
+		for k := range gaps {
+			gaps[k] = dot(n, ref[k+1]) - dot(n, ref[k])
+		}
+		sorted := append([]float64(nil), gaps...)
+		sort.Float64s(sorted)
+		usual := sorted[len(sorted)/2]
+		for k, g := range gaps {
+			if usual > 0 && g > 1.5*usual {
+				return lay, &SeriesError{Path: s.Source.Path, Series: s.ID, Err: ErrIncomplete,
+					Reason: fmt.Sprintf("a slice is missing between slice %d (%.4g mm along the slice normal, %s) and slice %d (%.4g mm, %s): gap %.4g mm, usual step %.4g mm",
+						k+1, centres[k], frameName(lay.cells[k]), k+2, centres[k+1], frameName(lay.cells[k+1]), g, usual)}
+			}
+		}
+		tol := math.Max(math.Max(spacingTol, spacingRel*step), roundingTol)
 		worst, at := 0.0, 0
 		for k := 1; k < nz-1; k++ {
 			var want [3]float64
@@ -190,8 +250,12 @@ func arrange(s *Series) (*layout, error) {
 			}
 		}
 		if worst > tol {
+			written := ""
+			if quantum > 0 {
+				written = fmt.Sprintf(", positions written to %.3g mm", 2*quantum)
+			}
 			return lay, &SeriesError{Path: frameName(lay.cells[at]), Series: s.ID, Err: ErrIncomplete,
-				Reason: fmt.Sprintf("uneven slice spacing: slice %d of %d is %.3g mm off an even step of %.4g mm (tolerance %.3g mm)", at+1, nz, worst, step, tol)}
+				Reason: fmt.Sprintf("uneven slice spacing: slice %d of %d is %.3g mm off an even step of %.4g mm (tolerance %.3g mm%s)", at+1, nz, worst, step, tol, written)}
 		}
 	} else {
 		step := f0.between
@@ -268,4 +332,38 @@ func dot(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
 func dist(a, b [3]float64) float64 {
 	d := [3]float64{a[0] - b[0], a[1] - b[1], a[2] - b[2]}
 	return math.Sqrt(dot(d, d))
+}
+
+// duplicate reports whether b is a copy of a: the same SOP Instance UID
+// (PS3.3 C.12.1.1.1: it identifies one image) and the same decoded
+// samples (the same image stored in two transfer syntaxes is one image).
+// A read error is returned as it is.
+func duplicate(a, b *frameInfo) (bool, error) {
+	fa, fb := a.file, b.file
+	if fa.sopInstance == "" || fa.sopInstance != fb.sopInstance || a.index != b.index ||
+		bytesPerSample(fa) != bytesPerSample(fb) || fa.raw.pix.tag != fb.raw.pix.tag {
+		return false, nil
+	}
+	pa, err := samples(fa)
+	if err != nil {
+		return false, err
+	}
+	pb, err := samples(fb)
+	if err != nil {
+		return false, err
+	}
+	return bytes.Equal(pa, pb), nil
+}
+
+// samples returns the pixel data of f decoded to little-endian samples.
+func samples(f *fileInfo) ([]byte, error) {
+	const limit = 1 << 30
+	if f.raw.syn.encapsulated {
+		return readCompressed(f, limit)
+	}
+	b, err := readPixels(f, nil, limit)
+	if err == nil && f.raw.syn.bo == binary.BigEndian {
+		swapBytes(b, bytesPerSample(f))
+	}
+	return b, err
 }

@@ -2,6 +2,7 @@ package dicom
 
 import (
 	"bytes"
+	"encoding/binary"
 	"fmt"
 	"io"
 	"math"
@@ -53,6 +54,7 @@ type fileInfo struct {
 	samples                         int
 	nFrames                         int
 	enhanced                        bool
+	mosaic                          string // why the frame looks like a mosaic of slices ("" when not)
 	ids                             *Identifiers
 
 	frames []frameInfo
@@ -68,6 +70,7 @@ type frameInfo struct {
 	spacing   [2]float64 // row spacing, column spacing (PixelSpacing order)
 	thickness float64
 	between   float64
+	ippDec    int // decimal places of the ImagePositionPatient strings (-1: binary or absent)
 	hasIPP    bool
 	hasIOP    bool
 	hasPS     bool
@@ -76,6 +79,15 @@ type frameInfo struct {
 	echo      int
 	slope     float64
 	intercept float64
+	// Real World Value Mapping (PS3.3 C.7.6.16.2.11): stored value →
+	// real-world value by slope and intercept, replacing the rescale
+	// when present (NaN: absent); rwvNote says why one present is unused.
+	rwvSlope, rwvIntercept float64
+	rwvUnits, rwvNote      string
+	// privScale is the vendor's private floating-point scale slope
+	// (2005,100E) (NaN: absent); recorded, and a differing value between
+	// images warned about, not applied.
+	privScale float64
 	kind      string // image/frame type used to split series
 }
 
@@ -171,6 +183,7 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	if fi.nFrames < 1 || fi.nFrames > maxFramesPerFile {
 		return nil, formatErr(rf.path, fmt.Sprintf("impossible NumberOfFrames %d", fi.nFrames), nil)
 	}
+	fi.mosaic = mosaicOf(top, fi)
 
 	base := frameInfo{
 		file:      fi,
@@ -187,10 +200,13 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	if v, ok := integer(top, tag.EchoNumbers); ok {
 		base.echo = v
 	}
+	base.rwvSlope, base.rwvIntercept, base.rwvUnits, base.rwvNote = rwvOf(firstItem(find(top, tag.RealWorldValueMappingSequence)))
+	base.privScale = privateScale(top)
 	if bad := badRescale(top); bad != "" {
 		return nil, formatErr(rf.path, bad, nil)
 	}
 	base.hasIPP = vec(top, tag.ImagePositionPatient, base.ipp[:])
+	base.ippDec = decimals(top, tag.ImagePositionPatient)
 	base.hasIOP = vec(top, tag.ImageOrientationPatient, base.iop[:])
 	base.hasPS = vec(top, tag.PixelSpacing, base.spacing[:])
 
@@ -219,7 +235,10 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 			return nil
 		}
 		if m := macro(tag.PlanePositionSequence); m != nil {
-			fr.hasIPP = vec(m, tag.ImagePositionPatient, fr.ipp[:]) || fr.hasIPP
+			if vec(m, tag.ImagePositionPatient, fr.ipp[:]) {
+				fr.hasIPP = true
+				fr.ippDec = decimals(m, tag.ImagePositionPatient)
+			}
 		}
 		if m := macro(tag.PlaneOrientationSequence); m != nil {
 			fr.hasIOP = vec(m, tag.ImageOrientationPatient, fr.iop[:]) || fr.hasIOP
@@ -247,6 +266,9 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 			}
 			fr.slope = numOr(m, tag.RescaleSlope, fr.slope)
 			fr.intercept = numOr(m, tag.RescaleIntercept, fr.intercept)
+		}
+		if m := macro(tag.RealWorldValueMappingSequence); m != nil {
+			fr.rwvSlope, fr.rwvIntercept, fr.rwvUnits, fr.rwvNote = rwvOf(m)
 		}
 		if m := macro(tag.MRImageFrameTypeSequence); m != nil {
 			ft := strings.Join(strs(m, tag.FrameType), `\`)
@@ -363,12 +385,66 @@ func firstItem(e *lib.Element) []*lib.Element {
 	return nil
 }
 
+// valueOf returns the value of e; an element of VR UN with a defined
+// length (bytes as they were encoded, little endian; PS3.5 §6.2.2) is
+// decoded by the VR the data dictionary gives its tag.
+func valueOf(e *lib.Element) any {
+	v := e.Value.GetValue()
+	b, ok := v.([]byte)
+	if !ok || e.RawValueRepresentation != "UN" {
+		return v
+	}
+	info, err := tag.Find(e.Tag)
+	if err != nil || len(info.VRs) == 0 {
+		return v
+	}
+	le := binary.LittleEndian
+	switch vr := info.VRs[0]; vr {
+	case "AE", "AS", "CS", "DA", "DS", "DT", "IS", "LO", "LT", "PN", "SH", "ST", "TM", "UC", "UI", "UR", "UT":
+		return strings.Split(strings.TrimRight(string(b), " \x00"), `\`)
+	case "US", "SS", "UL", "SL":
+		size := 2
+		if vr == "UL" || vr == "SL" {
+			size = 4
+		}
+		out := make([]int, 0, len(b)/size)
+		for i := 0; i+size <= len(b); i += size {
+			switch vr {
+			case "US":
+				out = append(out, int(le.Uint16(b[i:])))
+			case "SS":
+				out = append(out, int(int16(le.Uint16(b[i:]))))
+			case "UL":
+				out = append(out, int(le.Uint32(b[i:])))
+			default:
+				out = append(out, int(int32(le.Uint32(b[i:]))))
+			}
+		}
+		return out
+	case "FL", "FD":
+		size := 4
+		if vr == "FD" {
+			size = 8
+		}
+		out := make([]float64, 0, len(b)/size)
+		for i := 0; i+size <= len(b); i += size {
+			if size == 4 {
+				out = append(out, float64(math.Float32frombits(le.Uint32(b[i:]))))
+			} else {
+				out = append(out, math.Float64frombits(le.Uint64(b[i:])))
+			}
+		}
+		return out
+	}
+	return v
+}
+
 func strs(elems []*lib.Element, t tag.Tag) []string {
 	e := find(elems, t)
 	if e == nil || e.Value == nil {
 		return nil
 	}
-	v, _ := e.Value.GetValue().([]string)
+	v, _ := valueOf(e).([]string)
 	out := make([]string, 0, len(v))
 	for _, s := range v {
 		out = append(out, strings.Trim(s, " \x00"))
@@ -387,7 +463,7 @@ func nums(elems []*lib.Element, t tag.Tag) []float64 {
 	if e == nil || e.Value == nil {
 		return nil
 	}
-	switch v := e.Value.GetValue().(type) {
+	switch v := valueOf(e).(type) {
 	case []string:
 		out := make([]float64, 0, len(v))
 		for _, s := range v {
@@ -474,4 +550,126 @@ func vec(elems []*lib.Element, t tag.Tag, dst []float64) bool {
 		dst[i] = v[i]
 	}
 	return true
+}
+
+// decimals returns the number of decimal places the decimal strings of
+// an element are written with (the most over its values; "1.5e-1"
+// counts as 2). A DS value "12.3" stands for anything in [12.25, 12.35]
+// (PS3.5 Table 6.2-1 DS). Binary values (FD) and absent elements give -1.
+func decimals(elems []*lib.Element, t tag.Tag) int {
+	e := find(elems, t)
+	if e == nil || e.Value == nil {
+		return -1
+	}
+	v, ok := e.Value.GetValue().([]string)
+	if !ok {
+		return -1
+	}
+	most := -1
+	for _, s := range v {
+		s = strings.ToLower(strings.TrimSpace(strings.Trim(s, "\x00")))
+		exp := 0
+		if i := strings.IndexByte(s, 'e'); i >= 0 {
+			n, err := strconv.Atoi(strings.TrimPrefix(s[i+1:], "+"))
+			if err != nil || n < -30 || n > 30 {
+				continue
+			}
+			exp, s = n, s[:i]
+		}
+		dec := 0
+		if i := strings.IndexByte(s, '.'); i >= 0 {
+			dec = len(s) - i - 1
+		}
+		most = max(most, dec-exp)
+	}
+	return most
+}
+
+// mosaicOf tells whether the image is a mosaic: several slices tiled in
+// one frame. Signs: MOSAIC in ImageType (common practice of one vendor's
+// exports), or a frame at least twice the AcquisitionMatrix (0018,1310)
+// in both directions together with a slice count in the vendor's private
+// NumberOfImagesInMosaic (0019,100A) (from that vendor's DICOM
+// conformance statement).
+func mosaicOf(top []*lib.Element, fi *fileInfo) string {
+	tagged := false
+	for _, v := range fi.imageType {
+		if v == "MOSAIC" {
+			tagged = true
+		}
+	}
+	var acq int
+	for _, v := range nums(top, tag.AcquisitionMatrix) {
+		acq = max(acq, int(v))
+	}
+	count := 0
+	if e := find(top, tag.Tag{Group: 0x0019, Element: 0x100A}); e != nil && e.Value != nil {
+		switch v := e.Value.GetValue().(type) {
+		case []int:
+			if len(v) > 0 {
+				count = v[0]
+			}
+		case []byte:
+			if len(v) >= 2 {
+				count = int(v[0]) | int(v[1])<<8
+			}
+		}
+	}
+	big := acq > 0 && fi.rows >= 2*acq && fi.cols >= 2*acq
+	switch {
+	case tagged && count > 0:
+		return fmt.Sprintf("ImageType MOSAIC, %d slices tiled in one %d×%d frame", count, fi.cols, fi.rows)
+	case tagged:
+		return fmt.Sprintf("ImageType MOSAIC, a %d×%d frame of tiled slices", fi.cols, fi.rows)
+	case big && count > 1:
+		return fmt.Sprintf("a %d×%d frame for an acquisition matrix of %d with %d slices in NumberOfImagesInMosaic (0019,100A)", fi.cols, fi.rows, acq, count)
+	}
+	return ""
+}
+
+// rwvOf reads the first Real World Value Mapping item (PS3.3
+// C.7.6.16.2.11): RealWorldValueSlope (0040,9225) and
+// RealWorldValueIntercept (0040,9224), the units from
+// MeasurementUnitsCodeSequence (0040,08EA) CodeValue. A mapping by LUT
+// only is not applied (note says so). NaN slope: none.
+func rwvOf(it []*lib.Element) (slope, icpt float64, units, note string) {
+	slope, icpt = math.NaN(), math.NaN()
+	if it == nil {
+		return
+	}
+	if u := firstItem(find(it, tag.MeasurementUnitsCodeSequence)); u != nil {
+		units = str(u, tag.CodeValue)
+	}
+	slope = num(it, tag.RealWorldValueSlope)
+	icpt = numOr(it, tag.RealWorldValueIntercept, 0)
+	switch {
+	case math.IsNaN(slope) && find(it, tag.RealWorldValueLUTData) != nil:
+		note = "Real World Value Mapping by LUT is not applied; RescaleSlope/RescaleIntercept used"
+	case math.IsNaN(slope):
+		note = "Real World Value Mapping without a slope is not applied"
+	case slope == 0:
+		slope, note = math.NaN(), "Real World Value Mapping with slope 0 is not applied"
+	}
+	return
+}
+
+// privateScale returns the vendor's private floating-point scale slope
+// (2005,100E), NaN when absent: FL in explicit VR files, 4 bytes little
+// endian in implicit VR ones.
+func privateScale(top []*lib.Element) float64 {
+	e := find(top, tag.Tag{Group: 0x2005, Element: 0x100E})
+	if e == nil || e.Value == nil {
+		return math.NaN()
+	}
+	switch v := e.Value.GetValue().(type) {
+	case []float64:
+		if len(v) > 0 {
+			return v[0]
+		}
+	case []byte:
+		if len(v) == 4 {
+			return float64(math.Float32frombits(binary.LittleEndian.Uint32(v)))
+		}
+	}
+	return math.NaN()
 }

@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"sort"
+	"strings"
 
 	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/volume"
@@ -40,6 +42,7 @@ func LoadSeries(s *Series) (*volume.Image, error) {
 			s.ID, dims[0], dims[1], dims[2], dims[3], s.opt.maxBytes()), ErrTooLarge)
 	}
 	im := &volume.Image{Dims: dims, Data: make([]float32, count), Affine: lay.affine, Source: s.Source}
+	im.Source.Pixels, im.Source.Warnings = s.pixelNotes()
 	im.Acq = append([]volume.Acquisition(nil), lay.acq...)
 
 	// Cells of each file, so that each file is read once.
@@ -58,7 +61,11 @@ func LoadSeries(s *Series) (*volume.Image, error) {
 	}
 	var buf []byte
 	for _, f := range order {
-		buf, err = readPixels(f, buf, s.opt.maxBytes())
+		if f.raw.syn.encapsulated {
+			buf, err = readCompressed(f, s.opt.maxBytes())
+		} else {
+			buf, err = readPixels(f, buf, s.opt.maxBytes())
+		}
 		if err != nil {
 			return nil, err
 		}
@@ -134,6 +141,9 @@ func readPixels(f *fileInfo, buf []byte, maxBytes int64) ([]byte, error) {
 // decode converts one frame of stored samples to rescaled float32.
 func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
 	slope, icpt := fr.slope, fr.intercept
+	if !math.IsNaN(fr.rwvSlope) {
+		slope, icpt = fr.rwvSlope, fr.rwvIntercept // real-world values replace the rescale (PS3.3 C.7.6.16.2.11)
+	}
 	if math.IsNaN(slope) {
 		slope = 1 // absent: identity, PS3.3 C.11.1.1.2 (a present invalid slope is refused by the header reader)
 	}
@@ -194,3 +204,86 @@ func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
 		}
 	}
 }
+
+// pixelNotes says how the pixel data of s are stored and decoded, and
+// warns of lossy compression (quantitative values from lossy data).
+func (s *Series) pixelNotes() (string, []string) {
+	seen := map[string]bool{}
+	var hows, warns []string
+	for _, fr := range s.frames {
+		rf := fr.file.raw
+		if seen[rf.syn.uid] {
+			continue
+		}
+		seen[rf.syn.uid] = true
+		how := rf.syn.name + " (" + rf.syn.uid + ")"
+		if c, ok := codecs[rf.syn.uid]; ok {
+			how = c.how + " (" + rf.syn.uid + ")"
+			if t, _, ok := toolFor(c); ok && len(c.tool) > 0 {
+				how += ", decoded by " + t.prog
+			}
+			if c.lossy {
+				warns = append(warns, fmt.Sprintf("pixel data are lossy compressed (%s): fitted values carry the compression error", rf.syn.name))
+			}
+		}
+		hows = append(hows, how)
+	}
+	if it := fr0Type(s); strings.HasPrefix(it, "DERIVED") {
+		warns = append(warns, "the images are DERIVED (ImageType "+it+"), read because derived images were asked for")
+	}
+	sort.Strings(hows)
+	scale, w := scaling(s.frames)
+	return strings.Join(hows, "; ") + "; " + scale, append(warns, w...)
+}
+
+// scaling describes how stored values became samples in frames, and
+// warns when Real World Value Mapping is present in some images only, or
+// when the vendor's private scale slope differs between images with no
+// real-world mapping to make them comparable.
+func scaling(frames []*frameInfo) (string, []string) {
+	var warns []string
+	rwv, units := 0, map[string]bool{}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	notes := map[string]bool{}
+	for _, fr := range frames {
+		if !math.IsNaN(fr.rwvSlope) {
+			rwv++
+			units[fr.rwvUnits] = true
+		}
+		if fr.rwvNote != "" {
+			notes[fr.rwvNote] = true
+		}
+		if !math.IsNaN(fr.privScale) {
+			lo, hi = math.Min(lo, fr.privScale), math.Max(hi, fr.privScale)
+		}
+	}
+	for n := range notes {
+		warns = append(warns, n)
+	}
+	desc := "scaling: RescaleSlope/RescaleIntercept"
+	switch {
+	case rwv == len(frames):
+		var us []string
+		for u := range units {
+			us = append(us, u)
+		}
+		sort.Strings(us)
+		desc = "scaling: Real World Value Mapping slope/intercept (units " + strings.Join(us, ", ") + ")"
+		if len(us) > 1 {
+			warns = append(warns, "Real World Value Mapping units differ between images: "+strings.Join(us, ", "))
+		}
+	case rwv > 0:
+		desc += " and Real World Value Mapping"
+		warns = append(warns, fmt.Sprintf("Real World Value Mapping is present in %d of %d images only; the samples mix real-world and rescaled values", rwv, len(frames)))
+	}
+	if hi > lo && rwv < len(frames) {
+		warns = append(warns, fmt.Sprintf("the private scale slope (2005,100E) differs between images (%g to %g) and no Real World Value Mapping is given: rescaled values of different images may not be comparable", lo, hi))
+	}
+	if !math.IsInf(lo, 1) {
+		desc += fmt.Sprintf("; private scale slope (2005,100E) %g to %g recorded, not applied", lo, hi)
+	}
+	return desc, warns
+}
+
+// fr0Type is the ImageType of the first file of s.
+func fr0Type(s *Series) string { return strings.Join(s.frames[0].file.imageType, `\`) }

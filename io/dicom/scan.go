@@ -81,6 +81,9 @@ type Catalog struct {
 	Unreadable int       `json:"unreadable"` // DICOM-like files that could not be read (each has a Problem)
 	Ignored    int       `json:"ignored"`    // localizers, derived images and non-image DICOM objects left out
 	Problems   []Problem `json:"problems"`   // unreadable files and series that cannot be loaded
+	// Protocols are relaxation series split over several DICOM series
+	// (one per TI, flip angle, TE or TR) on one grid.
+	Protocols []*Protocol `json:"protocols"`
 
 	opt ScanOptions
 }
@@ -117,6 +120,10 @@ type Series struct {
 	Notes []string `json:"notes,omitempty"`
 	// Problem is why the series cannot be loaded ("" when it can).
 	Problem string `json:"problem,omitempty"`
+	// Fixed lists the acquisition parameters that are the same in every
+	// image, e.g. "TI 300 ms, TR 6000 ms, TE 12 ms, FA 90°" (what a
+	// single-volume series contributes to a protocol).
+	Fixed string `json:"fixed,omitempty"`
 
 	frames []*frameInfo
 	key    string
@@ -293,6 +300,7 @@ func (c *Catalog) group(infos []*fileInfo) {
 		}
 		return sa.key < sb.key
 	})
+	c.protocols()
 }
 
 // noteSplit records how a series was split. Mixed matrix sizes are also a
@@ -320,7 +328,11 @@ func (c *Catalog) noteSplit(uid string, list []*Series) {
 			if len(s.frames) < len(small.frames) {
 				small = s
 			}
-			if len(s.frames) > len(big.frames) {
+		}
+		big = nil
+		for _, s := range list {
+			f, fs := s.frames[0].file, small.frames[0].file
+			if (f.cols != fs.cols || f.rows != fs.rows) && (big == nil || len(s.frames) > len(big.frames)) {
 				big = s
 			}
 		}
@@ -397,7 +409,13 @@ func (s *Series) summarise() {
 	}
 
 	s.classify()
-	s.lay, s.err = arrange(s)
+	if m := mosaicIn(s); m != nil {
+		s.err = m // never stacked as single slices
+	} else {
+		s.lay, s.err = arrange(s)
+	}
+	s.Frames = len(s.frames) // without dropped duplicates
+	s.Fixed = fixedParams(s.frames)
 	if s.lay != nil {
 		s.Slices, s.Volumes = s.lay.nz, s.lay.nt
 	}
@@ -429,6 +447,16 @@ func commonDir(a, b string) string {
 	return a
 }
 
+// mosaicIn reports the first mosaic among the files of s.
+func mosaicIn(s *Series) error {
+	for _, fr := range s.frames {
+		if f := fr.file; f.mosaic != "" {
+			return unsupportedErr(f.raw.path, "mosaic ("+f.mosaic+"): tauvox does not un-tile mosaics and will not read one as a single slice; convert the series to NIfTI with a mosaic-aware converter", nil)
+		}
+	}
+	return nil
+}
+
 // unsupported reports the first file of s whose pixel data this package
 // cannot decode.
 func (s *Series) unsupported() error {
@@ -436,8 +464,16 @@ func (s *Series) unsupported() error {
 		f := fr.file
 		rf := f.raw
 		switch {
-		case rf.syn.encapsulated || rf.pix.vl == undefinedLength:
-			return unsupportedErr(rf.path, fmt.Sprintf("transfer syntax %s (%s) is compressed; tauvox reads only uncompressed and deflated files; decompress them first (e.g. with dcmtk's dcmdjpeg)", rf.syn.name, rf.syn.uid), nil)
+		case rf.syn.encapsulated && rf.pix.vl != undefinedLength:
+			return formatErr(rf.path, fmt.Sprintf("pixel data of defined length in the compressed transfer syntax %s (%s); PS3.5 §A.4 requires fragments of undefined length", rf.syn.name, rf.syn.uid), nil)
+		case rf.syn.encapsulated:
+			if err := checkCodec(rf); err != nil {
+				return err
+			}
+		case rf.pix.vl == undefinedLength:
+			return formatErr(rf.path, fmt.Sprintf("pixel data of undefined length (encapsulated) in the uncompressed transfer syntax %s", rf.syn.name), nil)
+		}
+		switch {
 		case f.samples != 1:
 			return unsupportedErr(rf.path, fmt.Sprintf("%d samples per pixel (colour); tauvox reads grey-scale images", f.samples), nil)
 		case rf.pix.tag == 0x7FE00010 && f.bitsAlloc != 8 && f.bitsAlloc != 16 && f.bitsAlloc != 32:
@@ -588,4 +624,35 @@ func (s *Series) Paths() []string {
 	}
 	sort.Strings(out)
 	return out
+}
+
+// fixedParams describes the parameters whose value is the same in every
+// frame (TI, TR, TE, flip angle; unknown ones left out).
+func fixedParams(frames []*frameInfo) string {
+	var parts []string
+	for _, p := range []struct {
+		label, unit string
+		get         func(*frameInfo) float64
+	}{
+		{"TI", " ms", func(f *frameInfo) float64 { return f.ti }},
+		{"TR", " ms", func(f *frameInfo) float64 { return f.tr }},
+		{"TE", " ms", func(f *frameInfo) float64 { return f.te }},
+		{"FA", "°", func(f *frameInfo) float64 { return f.fa }},
+	} {
+		v := p.get(frames[0])
+		if math.IsNaN(v) {
+			continue
+		}
+		same := true
+		for _, f := range frames[1:] {
+			if quant(p.get(f)) != quant(v) {
+				same = false
+				break
+			}
+		}
+		if same {
+			parts = append(parts, p.label+" "+strconv.FormatFloat(v, 'g', -1, 64)+p.unit)
+		}
+	}
+	return strings.Join(parts, ", ")
 }

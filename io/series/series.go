@@ -24,13 +24,23 @@ import (
 // the path holds several.
 type Overrides struct {
 	TE, TI, TR, FA []float64
-	Series         string
+	// Series names one DICOM series or protocol by its ID, or several
+	// series to join into one protocol, separated by commas ("3,4,5").
+	Series string
+	// Needs is the acquisition parameter the model varies
+	// ("InversionTime", ...): when a folder holds several candidate
+	// series or protocols and Series is empty, the one varying it is
+	// chosen.
+	Needs string
 	// KeepIdentifiers keeps the patient identifiers of a DICOM series in
 	// Image.Source.Patient (left out by default).
 	KeepIdentifiers bool
 	// Notices receives one line for every list that replaced different
 	// values of the sidecar or the DICOM headers, naming both.
 	Notices []string
+	// Derived reads DICOM images whose ImageType is DERIVED (left out by
+	// default); the image then carries a warning saying so.
+	Derived bool
 }
 
 // Input describes one file read to make a series (volume.Input).
@@ -126,38 +136,83 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 	var opt dicom.ScanOptions
 	if o != nil {
 		opt.KeepIdentifiers = o.KeepIdentifiers
+		opt.Derived = o.Derived
 	}
 	cat, err := dicom.Scan([]string{path}, &opt)
 	if err != nil {
 		return nil, nil, err
 	}
 	var s *dicom.Series
-	if o != nil && o.Series != "" {
-		if s, err = cat.Lookup(o.Series); err != nil {
+	var prot *dicom.Protocol
+	needs := ""
+	if o != nil {
+		needs = o.Series
+	}
+	switch {
+	case strings.Contains(needs, ","):
+		if prot, err = cat.Join(strings.Split(needs, ",")); err != nil {
+			if strings.HasPrefix(err.Error(), path) {
+				return nil, nil, err // names the folder already
+			}
 			return nil, nil, fmt.Errorf("%s: %v", path, err)
 		}
-	} else {
+	case needs != "":
+		if p, ok := cat.LookupProtocol(needs); ok {
+			prot = p
+		} else if s, err = cat.Lookup(needs); err != nil {
+			return nil, nil, fmt.Errorf("%s: %v", path, err)
+		}
+	default:
 		// Candidates: loadable series of at least two volumes (a lone image
-		// split off a series is not a relaxation series).
-		var ok []*dicom.Series
+		// split off a series is not a relaxation series) and loadable
+		// protocols; with o.Needs, those that vary it when there are any.
+		type cand struct {
+			id, varying string
+			s           *dicom.Series
+			p           *dicom.Protocol
+		}
+		var ok []cand
 		var broken *dicom.Series
+		var brokenProt *dicom.Protocol
 		for _, x := range cat.Series {
 			switch {
 			case x.Problem == "" && x.Volumes >= 2:
-				ok = append(ok, x)
+				ok = append(ok, cand{x.ID, x.Varying, x, nil})
 			case x.Problem != "" && (broken == nil || x.Files > broken.Files):
 				broken = x
 			}
 		}
+		for _, p := range cat.Protocols {
+			if p.Problem == "" {
+				ok = append(ok, cand{p.ID, p.Varying, nil, p})
+			} else if brokenProt == nil {
+				brokenProt = p
+			}
+		}
+		if o != nil && o.Needs != "" {
+			var match []cand
+			for _, c := range ok {
+				if c.varying == o.Needs {
+					match = append(match, c)
+				}
+			}
+			if len(match) > 0 {
+				ok = match
+			} else if brokenProt != nil && brokenProt.Varying == o.Needs {
+				return nil, nil, brokenProt.Err()
+			}
+		}
 		switch {
 		case len(ok) == 1:
-			s = ok[0]
+			s, prot = ok[0].s, ok[0].p
 		case len(ok) > 1:
 			var ids []string
 			for _, x := range ok {
-				ids = append(ids, x.ID)
+				ids = append(ids, x.id)
 			}
-			return nil, nil, fmt.Errorf("%s: holds %d series (%s); choose one with --series (see tauvox scan)", path, len(ok), strings.Join(ids, ", "))
+			return nil, nil, fmt.Errorf("%s: holds %d candidate series or protocols (%s); choose one with --series (see tauvox scan)", path, len(ok), strings.Join(ids, ", "))
+		case brokenProt != nil:
+			return nil, nil, brokenProt.Err()
 		case broken != nil:
 			also := ""
 			for _, p := range cat.Problems {
@@ -171,16 +226,26 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 			return nil, nil, fmt.Errorf("%s: no series with more than one volume (series %s has %d)", path, cat.Series[0].ID, cat.Series[0].Volumes)
 		case len(cat.Problems) > 0:
 			return nil, nil, fmt.Errorf("%s: no readable DICOM series (%d problems; first: %s)", path, len(cat.Problems), cat.Problems[0].String())
+		case cat.Ignored > 0:
+			return nil, nil, fmt.Errorf("%s: no DICOM series found (%d localizer, derived or non-image objects left out; --derived reads derived images)", path, cat.Ignored)
 		default:
 			return nil, nil, fmt.Errorf("%s: no DICOM series found (%d other files skipped)", path, cat.Skipped)
 		}
 	}
-	im, err := dicom.LoadSeries(s)
+	var im *volume.Image
+	var paths []string
+	if prot != nil {
+		im, err = dicom.LoadProtocol(prot)
+		paths = prot.Paths()
+	} else {
+		im, err = dicom.LoadSeries(s)
+		paths = s.Paths()
+	}
 	if err != nil {
 		return nil, nil, err
 	}
 	var inputs []Input
-	for _, p := range s.Paths() {
+	for _, p := range paths {
 		inputs = append(inputs, Input{Path: p, Role: "dicom"})
 	}
 	return im, inputs, nil
