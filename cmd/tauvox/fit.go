@@ -166,9 +166,9 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	return fitSeries(ctx, c, a.quiet, e)
 }
 
-// inMemoryNIfTI makes fit load NIfTI series whole, as DICOM series are
-// (tests compare the two ways).
-var inMemoryNIfTI = false
+// inMemory makes fit load NIfTI and DICOM series whole instead of slab by
+// slab (tests compare the two ways).
+var inMemory = false
 
 // fitSeries runs the pipeline for tauvox fit (and demo): the output check,
 // the progress bar and the summary lines.
@@ -177,7 +177,7 @@ func fitSeries(ctx context.Context, c *pipeline.Config, quiet bool, e *env) erro
 		return err
 	}
 	c.Version = version()
-	c.Whole = c.Whole || inMemoryNIfTI
+	c.Whole = c.Whole || inMemory
 	var bar *progressbar.ProgressBar
 	var progress pipeline.Progress
 	if e.terminal && !quiet {
