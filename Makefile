@@ -72,6 +72,8 @@ FUZZ_TARGETS := \
 	./io/sidecar/:FuzzRead \
 	./io/dicom/:FuzzReadHeader \
 	./io/dicom/:FuzzSeries \
+	./io/dicom/:FuzzRLE \
+	./io/dicom/:FuzzLosslessJPEG \
 	./roi/:FuzzParseList \
 	./roi/phantom/:FuzzParse \
 	./roi/history/:FuzzParseQA \

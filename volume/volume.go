@@ -30,6 +30,12 @@ type Source struct {
 	FieldStrength float64 // main field in tesla; NaN or 0 when unknown
 	Scanner       string  // station / scanner name, when known
 	AcquiredAt    string  // acquisition date-time, RFC 3339 when known
+	// Pixels says how the samples were stored and decoded (a DICOM
+	// transfer syntax and its decoder; rescaling), "" when plain.
+	Pixels string
+	// Warnings are remarks on the samples' fitness for quantitative use
+	// (lossy compression, differing vendor scaling).
+	Warnings []string
 	// Patient holds the patient identifiers of the source. It is nil
 	// unless the user asked for them to be kept (--keep-identifiers);
 	// every writer leaves them out when it is nil.

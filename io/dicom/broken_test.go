@@ -116,7 +116,7 @@ func TestBrokenInputs(t *testing.T) {
 			d.elems = append(d.elems, element{0x00081115, nested(40)})
 		}), scan: "sequences nested deeper than 16", kind: &FormatError{}},
 		{name: "unknown transfer syntax", data: fileWith("1.2.3.4.5", nil), scan: `unknown transfer syntax "1.2.3.4.5"`, kind: &UnsupportedError{}},
-		{name: "JPEG-LS", data: fileWith("1.2.840.10008.1.2.4.80", nil), load: "transfer syntax JPEG-LS Lossless Image Compression (1.2.840.10008.1.2.4.80) is compressed", kind: &UnsupportedError{}},
+		{name: "JPEG-LS", data: fileWith("1.2.840.10008.1.2.4.80", nil), load: "pixel data of defined length in the compressed transfer syntax JPEG-LS Lossless Image Compression (1.2.840.10008.1.2.4.80)", kind: &FormatError{}},
 		// A present RescaleSlope of 0, NaN or Inf, or text that is no
 		// number, cannot scale pixels (PS3.3 C.11.1.1.2 defines the
 		// identity only for an absent Modality LUT): the file is refused,
@@ -131,7 +131,7 @@ func TestBrokenInputs(t *testing.T) {
 			scan: `RescaleSlope (0028,1053) "two" is not a finite number`, kind: &FormatError{}},
 		{name: "intercept NaN", data: fileWith(tsExplicitLE, func(d *dataset) { d.str(0x00281052, "DS", "nan") }),
 			scan: "RescaleIntercept (0028,1052) is NaN", kind: &FormatError{}},
-		{name: "RLE", data: fileWith("1.2.840.10008.1.2.5", nil), load: "transfer syntax RLE Lossless (1.2.840.10008.1.2.5) is compressed", kind: &UnsupportedError{}},
+		{name: "RLE", data: fileWith("1.2.840.10008.1.2.5", nil), load: "pixel data of defined length in the compressed transfer syntax RLE Lossless (1.2.840.10008.1.2.5)", kind: &FormatError{}},
 		{name: "zero rows", data: fileWith(tsExplicitLE, replace(0x00280010, func(d *dataset) { d.us(0x00280010, 0) })), scan: "impossible matrix 3×0", kind: &FormatError{}},
 		{name: "frames", data: fileWith(tsExplicitLE, func(d *dataset) { d.is(0x00280008, 10000000) }), scan: "impossible NumberOfFrames 10000000", kind: &FormatError{}},
 		{name: "no series UID", data: fileWith(tsExplicitLE, func(d *dataset) { d.drop(0x0020000E) }), scan: "image without SeriesInstanceUID", kind: &FormatError{}},
@@ -262,10 +262,11 @@ func TestBrokenSeries(t *testing.T) {
 	}
 }
 
-// TestCompressed checks the JPEG Baseline file written by pydicom: it is
-// scanned as a series, and loading gives an UnsupportedError that names
-// the transfer syntax (UID 1.2.840.10008.1.2.4.50, check-values §3.3 /
-// pydicom UID dictionary).
+// TestCompressed checks the JPEG Baseline file written by pydicom with
+// bogus bytes in its fragment: it is scanned as a series, and loading
+// gives a FormatError that names the transfer syntax (UID
+// 1.2.840.10008.1.2.4.50, check-values §3.3 / pydicom UID dictionary) and
+// the broken stream.
 func TestCompressed(t *testing.T) {
 	refs := loadRefs(t)
 	c := scanOne(t, "compressed", nil)
@@ -273,9 +274,12 @@ func TestCompressed(t *testing.T) {
 		t.Fatalf("%d series", len(c.Series))
 	}
 	_, err := LoadSeries(c.Series[0])
-	var u *UnsupportedError
-	want := "transfer syntax JPEG Baseline (Process 1) (" + refs.Series["compressed"].TransferSyntax + ") is compressed"
+	var u *FormatError
+	want := "JPEG Baseline (Process 1): malformed compressed pixel data"
+	if refs.Series["compressed"].TransferSyntax != tsJPEGBaseline {
+		t.Errorf("the file's syntax is %s", refs.Series["compressed"].TransferSyntax)
+	}
 	if !errors.As(err, &u) || !strings.Contains(err.Error(), want) {
-		t.Errorf("error %v, want UnsupportedError with %q", err, want)
+		t.Errorf("error %v, want FormatError with %q", err, want)
 	}
 }

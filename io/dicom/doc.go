@@ -39,7 +39,16 @@
 // InstanceNumber), volumes by the varying parameter ascending. Every
 // slice must have exactly one image per volume; positions within 0.01 mm
 // are one slice; the slices must lie on an even step, within the larger of
-// 0.01 mm and 1 % of the step (the error gives the worst deviation).
+// 0.01 mm and 1 % of the step (the error gives the worst deviation). When
+// ImagePositionPatient is written with fewer decimals both tolerances grow
+// to 2·√3 × half the last decimal place (0.17 mm for 0.1 mm); a gap of
+// more than 1.5 steps is named as a missing slice. An image present twice
+// (same SOP Instance UID and decoded samples) is used once, with a note;
+// the same UID with other samples is refused. Mosaics are refused.
+//
+// Protocols (protocol.go) are several series on one grid that differ in
+// one acquisition parameter (one series per TI, flip angle, TE or TR):
+// Catalog.Protocols, Catalog.Join and LoadProtocol.
 // The affine follows PS3.3 Eq. C.7.6.2.1-1 with i = column, j = row
 // (Δi = PixelSpacing[1], Δj = PixelSpacing[0]), the slice step
 // d = (IPP_last − IPP_first)/(N − 1), then diag(−1, −1, 1, 1) from LPS to
@@ -59,9 +68,14 @@
 // 32-bit integers (signed or not, with BitsStored < BitsAllocated masked
 // or sign-extended), Float and Double Float Pixel Data are read, in
 // implicit and explicit VR little endian, deflated explicit VR little
-// endian and explicit VR big endian. Encapsulated (compressed) transfer
-// syntaxes — JPEG, JPEG-LS, JPEG 2000, RLE, ... — give an
-// *UnsupportedError naming the syntax.
+// endian and explicit VR big endian. Compressed pixel data: RLE Lossless
+// (PS3.5 Annex G) and JPEG Lossless process 14 (ITU-T T.81 Annex H) are
+// decoded by this package (rle.go, ljpeg.go); JPEG-LS and JPEG 2000 by
+// Debian's dcmtk or GDCM, run into a temporary file, when installed;
+// baseline JPEG by image/jpeg (encaps.go). Any other syntax, or a missing
+// tool, gives an *UnsupportedError naming the syntax (and the Debian
+// package). Image.Source.Pixels records how the pixels were decoded;
+// lossy syntaxes add a warning.
 //
 // Enhanced MR (1.2.840.10008.5.1.4.1.1.4.1) and Legacy Converted Enhanced
 // MR files are read frame by frame from the per-frame functional groups,

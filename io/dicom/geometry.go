@@ -2,13 +2,10 @@ package dicom
 
 import (
 	"bytes"
-	"compress/flate"
+	"encoding/binary"
 	"fmt"
-	"io"
 	"math"
 	"sort"
-
-	"github.com/tauvox/tauvox/internal/regular"
 
 	"github.com/tauvox/tauvox/volume"
 )
@@ -338,45 +335,35 @@ func dist(a, b [3]float64) float64 {
 }
 
 // duplicate reports whether b is a copy of a: the same SOP Instance UID
-// (PS3.3 C.12.1.1.1: it identifies one image) and the same pixel data
-// bytes. A read error is returned as it is.
+// (PS3.3 C.12.1.1.1: it identifies one image) and the same decoded
+// samples (the same image stored in two transfer syntaxes is one image).
+// A read error is returned as it is.
 func duplicate(a, b *frameInfo) (bool, error) {
-	if a.file.sopInstance == "" || a.file.sopInstance != b.file.sopInstance || a.index != b.index {
+	fa, fb := a.file, b.file
+	if fa.sopInstance == "" || fa.sopInstance != fb.sopInstance || a.index != b.index ||
+		bytesPerSample(fa) != bytesPerSample(fb) || fa.raw.pix.tag != fb.raw.pix.tag {
 		return false, nil
 	}
-	pa, err := pixelBytes(a.file)
+	pa, err := samples(fa)
 	if err != nil {
 		return false, err
 	}
-	pb, err := pixelBytes(b.file)
+	pb, err := samples(fb)
 	if err != nil {
 		return false, err
 	}
 	return bytes.Equal(pa, pb), nil
 }
 
-// pixelBytes returns the bytes of the pixel data value of f as stored
-// (fragments included for encapsulated data; inflated for the deflated
-// syntax), up to the end of the data set.
-func pixelBytes(f *fileInfo) ([]byte, error) {
-	rf := f.raw
-	file, err := regular.Open(rf.path)
-	if err != nil {
-		return nil, &fileError{rf.path, "open", err}
+// samples returns the pixel data of f decoded to little-endian samples.
+func samples(f *fileInfo) ([]byte, error) {
+	const limit = 1 << 30
+	if f.raw.syn.encapsulated {
+		return readCompressed(f, limit)
 	}
-	defer file.Close()
-	var r io.Reader = io.NewSectionReader(file, rf.dataStart, rf.size-rf.dataStart)
-	if rf.syn.deflate {
-		zr := flate.NewReader(r)
-		defer zr.Close()
-		r = zr
+	b, err := readPixels(f, nil, limit)
+	if err == nil && f.raw.syn.bo == binary.BigEndian {
+		swapBytes(b, bytesPerSample(f))
 	}
-	if _, err := io.CopyN(io.Discard, r, rf.pix.value); err != nil {
-		return nil, formatErr(rf.path, "data set ends before the pixel data", err)
-	}
-	b, err := io.ReadAll(io.LimitReader(r, 1<<31))
-	if err != nil {
-		return nil, formatErr(rf.path, "pixel data", err)
-	}
-	return b, nil
+	return b, err
 }

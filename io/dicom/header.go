@@ -53,6 +53,7 @@ type fileInfo struct {
 	samples                         int
 	nFrames                         int
 	enhanced                        bool
+	mosaic                          string // why the frame looks like a mosaic of slices ("" when not)
 	ids                             *Identifiers
 
 	frames []frameInfo
@@ -172,6 +173,7 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	if fi.nFrames < 1 || fi.nFrames > maxFramesPerFile {
 		return nil, formatErr(rf.path, fmt.Sprintf("impossible NumberOfFrames %d", fi.nFrames), nil)
 	}
+	fi.mosaic = mosaicOf(top, fi)
 
 	base := frameInfo{
 		file:      fi,
@@ -512,4 +514,46 @@ func decimals(elems []*lib.Element, t tag.Tag) int {
 		most = max(most, dec-exp)
 	}
 	return most
+}
+
+// mosaicOf tells whether the image is a mosaic: several slices tiled in
+// one frame. Signs: MOSAIC in ImageType (common practice of one vendor's
+// exports), or a frame at least twice the AcquisitionMatrix (0018,1310)
+// in both directions together with a slice count in the vendor's private
+// NumberOfImagesInMosaic (0019,100A) (from that vendor's DICOM
+// conformance statement).
+func mosaicOf(top []*lib.Element, fi *fileInfo) string {
+	tagged := false
+	for _, v := range fi.imageType {
+		if v == "MOSAIC" {
+			tagged = true
+		}
+	}
+	var acq int
+	for _, v := range nums(top, tag.AcquisitionMatrix) {
+		acq = max(acq, int(v))
+	}
+	count := 0
+	if e := find(top, tag.Tag{Group: 0x0019, Element: 0x100A}); e != nil && e.Value != nil {
+		switch v := e.Value.GetValue().(type) {
+		case []int:
+			if len(v) > 0 {
+				count = v[0]
+			}
+		case []byte:
+			if len(v) >= 2 {
+				count = int(v[0]) | int(v[1])<<8
+			}
+		}
+	}
+	big := acq > 0 && fi.rows >= 2*acq && fi.cols >= 2*acq
+	switch {
+	case tagged && count > 0:
+		return fmt.Sprintf("ImageType MOSAIC, %d slices tiled in one %d×%d frame", count, fi.cols, fi.rows)
+	case tagged:
+		return fmt.Sprintf("ImageType MOSAIC, a %d×%d frame of tiled slices", fi.cols, fi.rows)
+	case big && count > 1:
+		return fmt.Sprintf("a %d×%d frame for an acquisition matrix of %d with %d slices in NumberOfImagesInMosaic (0019,100A)", fi.cols, fi.rows, acq, count)
+	}
+	return ""
 }

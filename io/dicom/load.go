@@ -3,9 +3,13 @@ package dicom
 import (
 	"compress/flate"
 	"encoding/binary"
+	"fmt"
 	"io"
 	"math"
+	"sort"
+	"strings"
 
+	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/volume"
 )
 
@@ -53,6 +57,56 @@ func inflatedFrom(file io.ReaderAt, rf *rawFile) (io.ReadCloser, error) {
 		return nil, formatErr(rf.path, "deflated data set ends before the pixel data", err)
 	}
 	return zr, nil
+}
+
+// readPixels reads the pixel data of f into buf (grown when short) and
+// returns the bytes of all its frames.
+func readPixels(f *fileInfo, buf []byte, maxBytes int64) ([]byte, error) {
+	rf := f.raw
+	path := rf.path
+	need := int64(f.rows) * int64(f.cols) * int64(f.nFrames) * int64(bytesPerSample(f))
+	vl := int64(rf.pix.vl)
+	if need > maxBytes {
+		return nil, unsupportedErr(path, fmt.Sprintf("pixel data of %d bytes exceed the memory limit of %d bytes", need, maxBytes), ErrTooLarge)
+	}
+	if vl < need {
+		return nil, formatErr(path, fmt.Sprintf("pixel data has %d bytes but %d frames of %d×%d samples of %d bits need %d",
+			vl, f.nFrames, f.cols, f.rows, 8*bytesPerSample(f), need), nil)
+	}
+	file, err := regular.Open(path)
+	if err != nil {
+		return nil, &fileError{path, "open", err}
+	}
+	defer file.Close()
+	st, err := file.Stat()
+	if err != nil {
+		return nil, &fileError{path, "stat", err}
+	}
+	if st.Size() != rf.size {
+		return nil, formatErr(path, fmt.Sprintf("file changed since the scan (%d bytes, was %d)", st.Size(), rf.size), nil)
+	}
+	if int64(cap(buf)) < need {
+		buf = make([]byte, need)
+	}
+	buf = buf[:need]
+	var r io.Reader
+	if rf.syn.deflate {
+		zr := flate.NewReader(io.NewSectionReader(file, rf.dataStart, rf.size-rf.dataStart))
+		defer zr.Close()
+		if _, err := io.CopyN(io.Discard, zr, rf.pix.value); err != nil {
+			return nil, formatErr(path, "deflated data set ends before the pixel data", err)
+		}
+		r = zr
+	} else {
+		r = io.NewSectionReader(file, rf.dataStart+rf.pix.value, need)
+	}
+	if _, err := io.ReadFull(r, buf); err != nil {
+		if err == io.EOF {
+			err = io.ErrUnexpectedEOF
+		}
+		return nil, formatErr(path, fmt.Sprintf("truncated: pixel data declares %d bytes", vl), err)
+	}
+	return buf, nil
 }
 
 // decode converts one frame of stored samples to rescaled float32.
@@ -115,4 +169,31 @@ func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
 			dst[i] = float32(slope*x + icpt)
 		}
 	}
+}
+
+// pixelNotes says how the pixel data of s are stored and decoded, and
+// warns of lossy compression (quantitative values from lossy data).
+func (s *Series) pixelNotes() (string, []string) {
+	seen := map[string]bool{}
+	var hows, warns []string
+	for _, fr := range s.frames {
+		rf := fr.file.raw
+		if seen[rf.syn.uid] {
+			continue
+		}
+		seen[rf.syn.uid] = true
+		how := rf.syn.name + " (" + rf.syn.uid + ")"
+		if c, ok := codecs[rf.syn.uid]; ok {
+			how = c.how + " (" + rf.syn.uid + ")"
+			if t, _, ok := toolFor(c); ok && len(c.tool) > 0 {
+				how += ", decoded by " + t.prog
+			}
+			if c.lossy {
+				warns = append(warns, fmt.Sprintf("pixel data are lossy compressed (%s): fitted values carry the compression error", rf.syn.name))
+			}
+		}
+		hows = append(hows, how)
+	}
+	sort.Strings(hows)
+	return strings.Join(hows, "; "), warns
 }

@@ -354,7 +354,11 @@ func (c *Catalog) noteSplit(uid string, list []*Series) {
 			if len(s.frames) < len(small.frames) {
 				small = s
 			}
-			if len(s.frames) > len(big.frames) {
+		}
+		big = nil
+		for _, s := range list {
+			f, fs := s.frames[0].file, small.frames[0].file
+			if (f.cols != fs.cols || f.rows != fs.rows) && (big == nil || len(s.frames) > len(big.frames)) {
 				big = s
 			}
 		}
@@ -431,7 +435,11 @@ func (s *Series) summarise() {
 	}
 
 	s.classify()
-	s.lay, s.err = arrange(s)
+	if m := mosaicIn(s); m != nil {
+		s.err = m // never stacked as single slices
+	} else {
+		s.lay, s.err = arrange(s)
+	}
 	s.Frames = len(s.frames) // without dropped duplicates
 	s.Fixed = fixedParams(s.frames)
 	if s.lay != nil {
@@ -465,6 +473,16 @@ func commonDir(a, b string) string {
 	return a
 }
 
+// mosaicIn reports the first mosaic among the files of s.
+func mosaicIn(s *Series) error {
+	for _, fr := range s.frames {
+		if f := fr.file; f.mosaic != "" {
+			return unsupportedErr(f.raw.path, "mosaic ("+f.mosaic+"): tauvox does not un-tile mosaics and will not read one as a single slice; convert the series to NIfTI with a mosaic-aware converter", nil)
+		}
+	}
+	return nil
+}
+
 // unsupported reports the first file of s whose pixel data this package
 // cannot decode.
 func (s *Series) unsupported() error {
@@ -472,8 +490,16 @@ func (s *Series) unsupported() error {
 		f := fr.file
 		rf := f.raw
 		switch {
-		case rf.syn.encapsulated || rf.pix.vl == undefinedLength:
-			return unsupportedErr(rf.path, fmt.Sprintf("transfer syntax %s (%s) is compressed; tauvox reads only uncompressed and deflated files; decompress them first (e.g. with dcmtk's dcmdjpeg)", rf.syn.name, rf.syn.uid), nil)
+		case rf.syn.encapsulated && rf.pix.vl != undefinedLength:
+			return formatErr(rf.path, fmt.Sprintf("pixel data of defined length in the compressed transfer syntax %s (%s); PS3.5 §A.4 requires fragments of undefined length", rf.syn.name, rf.syn.uid), nil)
+		case rf.syn.encapsulated:
+			if err := checkCodec(rf); err != nil {
+				return err
+			}
+		case rf.pix.vl == undefinedLength:
+			return formatErr(rf.path, fmt.Sprintf("pixel data of undefined length (encapsulated) in the uncompressed transfer syntax %s", rf.syn.name), nil)
+		}
+		switch {
 		case f.samples != 1:
 			return unsupportedErr(rf.path, fmt.Sprintf("%d samples per pixel (colour); tauvox reads grey-scale images", f.samples), nil)
 		case rf.pix.tag == 0x7FE00010 && f.bitsAlloc != 8 && f.bitsAlloc != 16 && f.bitsAlloc != 32:

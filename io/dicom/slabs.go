@@ -47,11 +47,13 @@ func OpenSeries(s *Series) (*Reader, error) {
 		return nil, s.err
 	}
 	lay := s.lay
+	src := s.Source
+	src.Pixels, src.Warnings = s.pixelNotes()
 	return &Reader{
 		dims:   [4]int{lay.nx, lay.ny, lay.nz, lay.nt},
 		affine: lay.affine,
 		acq:    append([]volume.Acquisition(nil), lay.acq...),
-		src:    s.Source,
+		src:    src,
 		cells:  lay.cells,
 		name:   "series " + s.ID,
 		path:   s.Source.Path,
@@ -241,6 +243,14 @@ func readFrames(f *fileInfo, buf []byte, frames []int, maxBytes int64) ([]byte, 
 	if vl < need {
 		return buf, nil, formatErr(path, fmt.Sprintf("pixel data has %d bytes but %d frames of %d×%d samples of %d bits need %d",
 			vl, f.nFrames, f.cols, f.rows, 8*bps, need), nil)
+	}
+	if rf.syn.encapsulated {
+		// Compressed: every frame decoded to little-endian samples.
+		b, err := readCompressed(f, maxBytes)
+		if err != nil {
+			return buf, nil, err
+		}
+		return buf, func(i int) []byte { return b[int64(i)*frameBytes : int64(i+1)*frameBytes] }, nil
 	}
 	lo, hi := frames[0], frames[0]
 	for _, i := range frames {

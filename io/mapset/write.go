@@ -49,6 +49,8 @@ type Provenance struct {
 	Scanner   string             `json:"scanner,omitempty"`
 	Acquired  string             `json:"acquired,omitempty"`
 	Series    string             `json:"series_description,omitempty"`
+	Pixels    string             `json:"pixel_data,omitempty"` // how the samples were stored and decoded
+	Warnings  []string           `json:"warnings,omitempty"`   // e.g. lossy compression
 	Patient   *volume.Patient    `json:"patient,omitempty"`
 	Outputs   []string           `json:"outputs"`
 	Threshold float64            `json:"mask_threshold"`
@@ -322,7 +324,7 @@ func (w *Writer) Close() ([]string, error) {
 		Tool: "tauvox", Version: info.Version, Created: time.Now().UTC().Format(time.RFC3339),
 		Model: info.Model, Method: info.Method, Settings: info.Settings,
 		Field: num(info.Source.FieldStrength), Scanner: info.Source.Scanner, Acquired: info.Source.AcquiredAt,
-		Series: info.Source.Description, Patient: info.Source.Patient, Outputs: append([]string(nil), names...), Threshold: w.thr,
+		Series: info.Source.Description, Pixels: info.Source.Pixels, Warnings: info.Source.Warnings, Patient: info.Source.Patient, Outputs: append([]string(nil), names...), Threshold: w.thr,
 		Status: map[string]int{}, Timings: info.Timings, Caution: Caution,
 	}
 	sums := <-w.sums
