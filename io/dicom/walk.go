@@ -475,8 +475,10 @@ func (w *walker) value(t tag.Tag, vr string, vl uint32, pos, end int64, depth in
 	if end >= 0 && pos+n > end {
 		return 0, formatErr(w.path, fmt.Sprintf("element %s at byte %d declares %d bytes but its item ends at byte %d", tagString(t), w.base+pos, n, w.base+end), nil)
 	}
-	if err := w.need(pos, n, "element "+tagString(t)); err != nil {
-		return 0, err
+	if pos+n > int64(len(w.b)) { // the message is built only when needed
+		if err := w.need(pos, n, "element "+tagString(t)); err != nil {
+			return 0, err
+		}
 	}
 	if vr == "SQ" {
 		return w.sequence(pos, pos+n, depth+1)
