@@ -1,6 +1,7 @@
 package dicom
 
 import (
+	"bufio"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -201,13 +202,14 @@ func Scan(paths []string, opt *ScanOptions) (*Catalog, error) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
+			sc := &scratch{head: make([]byte, firstChunk), br: bufio.NewReaderSize(nil, 4096)}
 			for {
 				i := int(next.Add(1) - 1)
 				if i >= len(files) {
 					return
 				}
 				r := &res[i]
-				r.fi, r.ignored, r.err = c.readFile(files[i])
+				r.fi, r.ignored, r.err = c.readFile(files[i], sc)
 			}
 		}()
 	}
@@ -239,15 +241,24 @@ func (c *Catalog) problem(path string, err error) {
 	c.Problems = append(c.Problems, Problem{Path: path, Err: err})
 }
 
+// scratch is what one goroutine of Scan reuses from file to file: the
+// first chunk of each file (the head is dropped once parsed; the file
+// info keeps only values copied out of it) and the library's buffered
+// reader.
+type scratch struct {
+	head []byte
+	br   *bufio.Reader
+}
+
 // readFile reads one header; ignored is true for a file left out
 // (localizers, derived images, objects without pixel data). It only reads
 // c's options, so that files can be read at once.
-func (c *Catalog) readFile(path string) (fi *fileInfo, ignored bool, err error) {
-	rf, err := readHead(path, c.opt.maxHead())
+func (c *Catalog) readFile(path string, sc *scratch) (fi *fileInfo, ignored bool, err error) {
+	rf, err := readHeadInto(path, c.opt.maxHead(), sc.head)
 	if err != nil {
 		return nil, false, err
 	}
-	fi, err = parseHead(rf, c.opt.KeepIdentifiers)
+	fi, err = parseHeadWith(rf, c.opt.KeepIdentifiers, sc.br)
 	rf.head = nil // keep only what the grouping needs
 	if err != nil {
 		return nil, false, err

@@ -98,6 +98,13 @@ type rawFile struct {
 // element length against the bytes that are there before anything is
 // allocated for it. maxHead caps the bytes read.
 func readHead(path string, maxHead int64) (*rawFile, error) {
+	return readHeadInto(path, maxHead, nil)
+}
+
+// readHeadInto is readHead with scratch for the first chunk of the file
+// when it is large enough (the file's head then shares it: the caller
+// must be done with it before reusing scratch).
+func readHeadInto(path string, maxHead int64, scratch []byte) (*rawFile, error) {
 	f, err := regular.Open(path)
 	if err != nil {
 		if errors.Is(err, regular.ErrNotRegular) {
@@ -113,17 +120,22 @@ func readHead(path string, maxHead int64) (*rawFile, error) {
 	if !st.Mode().IsRegular() {
 		return nil, errNotDICOM
 	}
-	return readHeadFrom(f, st.Size(), path, maxHead)
+	return readHeadFrom(f, st.Size(), path, maxHead, scratch)
 }
 
 // readHeadFrom is readHead for the size bytes of f; path is used in
 // messages.
-func readHeadFrom(f io.ReaderAt, size int64, path string, maxHead int64) (*rawFile, error) {
+func readHeadFrom(f io.ReaderAt, size int64, path string, maxHead int64, scratch []byte) (*rawFile, error) {
 	rf := &rawFile{path: path, size: size}
 	if rf.size == 0 {
 		return nil, formatErr(path, "file is empty (0 bytes)", nil)
 	}
-	buf := make([]byte, min(rf.size, firstChunk))
+	var buf []byte
+	if n := min(rf.size, firstChunk); int64(cap(scratch)) >= n {
+		buf = scratch[:n]
+	} else {
+		buf = make([]byte, n)
+	}
 	if _, err := io.ReadFull(io.NewSectionReader(f, 0, rf.size), buf); err != nil {
 		return nil, &fileError{path, "read", err}
 	}
