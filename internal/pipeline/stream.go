@@ -147,6 +147,12 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		per += int64(plane) * 8
 	}
 	plan := fit.PlanSlabs(nz, per, c.memory())
+	// With more than one slab, the next slab is read while one is fitted:
+	// two sample buffers, so each slice costs its samples twice.
+	prefetch := len(plan.Slabs) > 2
+	if prefetch {
+		plan = fit.PlanSlabs(nz, per+4*int64(plane)*int64(nvol), c.memory())
+	}
 	// The slab buffers are allocated once and reused; a soft limit on the
 	// heap keeps the collector from letting the little garbage of each
 	// slab (worker buffers, compressor state) double the heap before it
@@ -179,13 +185,37 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		}
 	}
 	sums := mapset.StartChecksums(inputs) // while the series is read
-	buf := make([]float32, plan.Slices*plane*nvol)
+	bufs := [][]float32{make([]float32, plan.Slices*plane*nvol)}
+	if prefetch {
+		bufs = append(bufs, make([]float32, plan.Slices*plane*nvol))
+	}
+	// slab reads slab i into buffer i mod 2 (with prefetch), so that slab
+	// i+1 can be read while slab i is fitted.
 	slab := func(i int) (*volume.Image, error) {
 		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
 		n := (z1 - z0) * plane
+		buf := bufs[i%len(bufs)]
 		im := &volume.Image{Dims: [4]int{nx, ny, z1 - z0, nvol}, Data: buf[:n*nvol], Affine: affine, Acq: src.acq, Source: src.src}
 		return im, src.read(im.Data, z0, z1, src.vols)
 	}
+	type fetched struct {
+		im  *volume.Image
+		err error
+	}
+	var pending chan fetched // the slab being read ahead
+	fetch := func(i int) chan fetched {
+		ch := make(chan fetched, 1)
+		go func() {
+			im, err := slab(i)
+			ch <- fetched{im, err}
+		}()
+		return ch
+	}
+	defer func() {
+		if pending != nil {
+			<-pending // no read into a buffer after the run returns
+		}
+	}()
 	tLoad := time.Since(t0)
 
 	// Pass 1: threshold and noise level over the whole series.
@@ -298,7 +328,22 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
 		tr := time.Now()
 		im := first
-		if im == nil {
+		switch {
+		case im != nil:
+		case prefetch:
+			if pending == nil {
+				pending = fetch(i)
+			}
+			r := <-pending
+			pending = nil
+			if r.err != nil {
+				return nil, r.err
+			}
+			im = r.im
+			if i+1 < nslab {
+				pending = fetch(i + 1) // read ahead while this slab is fitted
+			}
+		default:
 			if im, err = slab(i); err != nil {
 				return nil, err
 			}
@@ -361,7 +406,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	if nslab > 1 {
 		// The slab buffers (up to --memory) are not needed any more: let
 		// the previews, which read the maps back, reuse their memory.
-		buf, maps = nil, nil
+		bufs, maps = nil, nil
 		runtime.GC()
 	}
 	tc := time.Now()
