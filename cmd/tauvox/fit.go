@@ -122,7 +122,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.StringVar(&a.window, "range", "", "preview display window LO,HI in the map's unit (default 1st–99th percentile)")
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
 	a.memory = byteFlag(pipeline.DefaultMemory)
-	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
+	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI or DICOM series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
 	var pos []string
 	if err := parse(fs, args, &pos); err != nil {
 		if m, ok := fit.Lookup(c.Spec.Model); ok && errors.Is(err, errHelp) {
