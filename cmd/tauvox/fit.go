@@ -117,6 +117,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.BoolVar(&c.Spec.EPGBasis, "epg-basis", false, "EPG basis functions with a fitted refocusing angle"+only("epg-basis"))
 	fs.BoolVar(&c.Spec.Gonum, "gonum", false, "use gonum's optimiser for nonlinear fits (slow cross-check)")
 	fs.BoolVar(&a.quiet, "quiet", false, "no progress bar or summary")
+	fs.BoolVar(&c.Overrides.Derived, "derived", false, "read DICOM images marked DERIVED (left out by default; provenance.json then warns)")
 	fs.BoolVar(&c.Overrides.KeepIdentifiers, "keep-identifiers", false, "copy the patient name, ID, birth date and accession number of a DICOM series into provenance.json (left out by default)")
 	fs.BoolVar(&c.NoPreview, "no-preview", false, "do not write the PNG previews of the maps")
 	fs.StringVar(&a.window, "range", "", "preview display window LO,HI in the map's unit (default 1st–99th percentile)")

@@ -68,6 +68,7 @@ func commands() []command {
 		{"roi", "statistics of maps inside regions (spheres or a label image)", runROI},
 		{"phantom", "measure phantom vials against their reference and give a QA verdict", runPhantom},
 		{"history", "record QA sessions in SQLite; control charts and drift per year", runHistory},
+		{"convert", "write a series or protocol as one 4-D NIfTI with its BIDS sidecar", runConvert},
 		{"export", "write maps as DICOM Parametric Map series for a PACS", runExport},
 		{"preview", "draw PNG montages of maps with a colour bar and units", runPreview},
 		{"demo", "run simulate and fit on built-in data and print per-vial results", runDemo},

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"math"
 	"os"
@@ -116,6 +117,8 @@ func TestSplitProtocolRefused(t *testing.T) {
 			[]string{"geometry/repeat-ti", "InversionTime 300 ms is repeated: series 42-"}},
 		{"other matrix", []string{"../../testdata/dicom/protocols-mismatch", "--model", "t1-ir", "--series", "21,22"},
 			[]string{"protocols-mismatch", "matrix 8×6 (Columns×Rows) differs from 8×8"}},
+		{"TR differs (found by scan)", []string{"../../testdata/dicom/protocols-mismatch", "--model", "t1-ir"},
+			[]string{"protocols-mismatch", "differ in InversionTime and also in RepetitionTime"}},
 		{"TR differs", []string{"../../testdata/dicom/protocols-mismatch", "--model", "t1-ir", "--series", "21,23"},
 			[]string{"protocols-mismatch", "also in RepetitionTime, which must agree: 6000 ms in 21-"}},
 	} {
@@ -133,5 +136,69 @@ func TestSplitProtocolRefused(t *testing.T) {
 		if _, err := os.Stat(out); !os.IsNotExist(err) {
 			t.Errorf("%s: %s was written", tc.name, out)
 		}
+	}
+}
+
+// TestFitDerived: the inversion recovery protocol marked DERIVED
+// (ImageType DERIVED\SECONDARY\M\ND, PS3.3 C.7.6.1.1.2) is left out by
+// fit, and fitted with --derived, to the same map, with a warning in
+// provenance.json.
+func TestFitDerived(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "derived")
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	files, _ := filepath.Glob("../../testdata/dicom/codecs/ir-rle/*")
+	for _, f := range files {
+		b, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		nb := bytes.Replace(b, []byte(`ORIGINAL\PRIMARY\M\ND `), []byte(`DERIVED\SECONDARY\M\ND`), 1)
+		if bytes.Equal(nb, b) {
+			t.Fatalf("%s: ImageType not found", f)
+		}
+		if err := os.WriteFile(filepath.Join(dir, filepath.Base(f)), nb, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	out := filepath.Join(t.TempDir(), "fit")
+	if code, _, stderr := tauvox(t, "fit", dir, "--model", "t1-ir", "--out", out); code != 2 || !strings.Contains(stderr, "--derived reads derived images") {
+		t.Errorf("without --derived: exit %d, %q", code, stderr)
+	}
+	if code, _, stderr := tauvox(t, "fit", dir, "--model", "t1-ir", "--derived", "--no-mask", "--no-preview", "--workers", "2", "--out", out); code != 0 {
+		t.Fatal(stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "provenance.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(b), `the images are DERIVED (ImageType DERIVED\\SECONDARY\\M\\ND)`) {
+		t.Errorf("provenance lacks the derived warning:\n%s", b)
+	}
+}
+
+// TestScanEchoProtocol: scan suggests t2 for a spin-echo train split over
+// series (the model registry's suggestion for EchoTime and SE).
+func TestScanEchoProtocol(t *testing.T) {
+	code, stdout, stderr := tauvox(t, "scan", "../../testdata/dicom/geometry/echo-split", "--json")
+	if code != 0 {
+		t.Fatal(stderr)
+	}
+	var res pipeline.ScanResult
+	if err := json.Unmarshal([]byte(stdout), &res); err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, s := range res.Series {
+		if len(s.Joins) > 0 {
+			n++
+			if s.Model != "t2" || len(s.Joins) != 4 {
+				t.Errorf("protocol row %+v", s)
+			}
+		}
+	}
+	if n != 1 {
+		t.Errorf("%d protocol rows", n)
 	}
 }

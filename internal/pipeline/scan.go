@@ -73,7 +73,7 @@ func Scan(paths []string, opt *dicom.ScanOptions) (*ScanResult, error) {
 		en := ScanEntry{ID: p.ID, Format: "dicom", Description: p.Description, Varying: p.Varying, Values: p.Values,
 			Matrix: [2]int{p.Columns, p.Rows}, Slices: p.Slices, Volumes: p.Volumes, Problem: p.Problem, Joins: p.Series}
 		if m0 != nil {
-			en.Model = suggest(p.Varying, m0.Echo)
+			en.Model = suggest(p.Varying, p.Echo)
 			en.Scanner, en.Acquired = m0.Source.Scanner, m0.Source.AcquiredAt
 			if f := m0.Source.FieldStrength; f > 0 {
 				en.Field = &f

@@ -3,6 +3,7 @@ package dicom
 import (
 	"encoding/binary"
 	"errors"
+	"math"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -181,5 +182,54 @@ func TestCorruptCompressed(t *testing.T) {
 			}
 		}
 		t.Log(err)
+	}
+}
+
+// TestLossyWarned: lossy syntaxes load with a warning in the image's
+// source (quantitative values from lossy data). The 8-bit copy of MR_small
+// as JPEG-LS near-lossless with NEAR 2 (dcmtk dcmcjpls +en +md 2) differs
+// from the original by at most 2 in every sample (ISO/IEC 14495-1 defines
+// NEAR as that bound); as baseline JPEG (dcmtk dcmcjpeg +eb, read by Go's
+// image/jpeg) it stays within a mean absolute error of 3 grey levels
+// (common practice for the default quality; a loose check that the image
+// is the right one, not of the codec's quality).
+func TestLossyWarned(t *testing.T) {
+	ref, err := loadFile(t, filepath.Join(testdata, "codecs", "mr8.dcm"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name, tool string
+		maxAbs     float64
+		meanAbs    float64
+	}{
+		{"lossy-mr8-jpegls-near2.dcm", "dcmdjpls", 2, 2},
+		{"lossy-mr8-baseline.dcm", "", 255, 3},
+	} {
+		if tc.tool != "" {
+			if _, err := exec.LookPath(tc.tool); err != nil {
+				t.Logf("%s: %s not installed, skipped", tc.name, tc.tool)
+				continue
+			}
+		}
+		im, err := loadFile(t, filepath.Join(testdata, "codecs", tc.name))
+		if err != nil {
+			t.Fatalf("%s: %v", tc.name, err)
+		}
+		worst, sum := 0.0, 0.0
+		for i, v := range im.Data {
+			d := math.Abs(float64(v - ref.Data[i]))
+			worst = math.Max(worst, d)
+			sum += d
+		}
+		mean := sum / float64(len(im.Data))
+		if worst > tc.maxAbs || mean > tc.meanAbs {
+			t.Errorf("%s: worst %g, mean %.3g", tc.name, worst, mean)
+		}
+		// MR_small is DERIVED, so the second warning says so.
+		if len(im.Source.Warnings) != 2 || !strings.Contains(im.Source.Warnings[0], "lossy compressed") {
+			t.Errorf("%s: warnings %q", tc.name, im.Source.Warnings)
+		}
+		t.Logf("%s: worst %g, mean %.3g; %s", tc.name, worst, mean, im.Source.Pixels)
 	}
 }

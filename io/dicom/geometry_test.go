@@ -35,6 +35,7 @@ type protoRefs struct {
 	DupSame struct {
 		Copied string `json:"copied"`
 	} `json:"dup-same"`
+	RWVEnhanced map[string][]float64 `json:"rwv_enhanced"` // "echo,slice" → samples
 }
 
 func loadProtoRefs(t testing.TB) *protoRefs {

@@ -3,6 +3,7 @@ package dicom
 import (
 	"bufio"
 	"bytes"
+	"encoding/binary"
 	"fmt"
 	"io"
 	"math"
@@ -79,6 +80,15 @@ type frameInfo struct {
 	echo      int
 	slope     float64
 	intercept float64
+	// Real World Value Mapping (PS3.3 C.7.6.16.2.11): stored value →
+	// real-world value by slope and intercept, replacing the rescale
+	// when present (NaN: absent); rwvNote says why one present is unused.
+	rwvSlope, rwvIntercept float64
+	rwvUnits, rwvNote      string
+	// privScale is the vendor's private floating-point scale slope
+	// (2005,100E) (NaN: absent); recorded, and a differing value between
+	// images warned about, not applied.
+	privScale float64
 	kind      string // image/frame type used to split series
 }
 
@@ -203,6 +213,8 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 	if v, ok := integer(top, tag.EchoNumbers); ok {
 		base.echo = v
 	}
+	base.rwvSlope, base.rwvIntercept, base.rwvUnits, base.rwvNote = rwvOf(firstItem(find(top, tag.RealWorldValueMappingSequence)))
+	base.privScale = privateScale(top)
 	if bad := badRescale(top); bad != "" {
 		return nil, formatErr(rf.path, bad, nil)
 	}
@@ -267,6 +279,9 @@ func extract(rf *rawFile, top []*lib.Element, keepIDs bool) (*fileInfo, error) {
 			}
 			fr.slope = numOr(m, tag.RescaleSlope, fr.slope)
 			fr.intercept = numOr(m, tag.RescaleIntercept, fr.intercept)
+		}
+		if m := macro(tag.RealWorldValueMappingSequence); m != nil {
+			fr.rwvSlope, fr.rwvIntercept, fr.rwvUnits, fr.rwvNote = rwvOf(m)
 		}
 		if m := macro(tag.MRImageFrameTypeSequence); m != nil {
 			ft := strings.Join(strs(m, tag.FrameType), `\`)
@@ -383,12 +398,66 @@ func firstItem(e *lib.Element) []*lib.Element {
 	return nil
 }
 
+// valueOf returns the value of e; an element of VR UN with a defined
+// length (bytes as they were encoded, little endian; PS3.5 §6.2.2) is
+// decoded by the VR the data dictionary gives its tag.
+func valueOf(e *lib.Element) any {
+	v := e.Value.GetValue()
+	b, ok := v.([]byte)
+	if !ok || e.RawValueRepresentation != "UN" {
+		return v
+	}
+	info, err := tag.Find(e.Tag)
+	if err != nil || len(info.VRs) == 0 {
+		return v
+	}
+	le := binary.LittleEndian
+	switch vr := info.VRs[0]; vr {
+	case "AE", "AS", "CS", "DA", "DS", "DT", "IS", "LO", "LT", "PN", "SH", "ST", "TM", "UC", "UI", "UR", "UT":
+		return strings.Split(strings.TrimRight(string(b), " \x00"), `\`)
+	case "US", "SS", "UL", "SL":
+		size := 2
+		if vr == "UL" || vr == "SL" {
+			size = 4
+		}
+		out := make([]int, 0, len(b)/size)
+		for i := 0; i+size <= len(b); i += size {
+			switch vr {
+			case "US":
+				out = append(out, int(le.Uint16(b[i:])))
+			case "SS":
+				out = append(out, int(int16(le.Uint16(b[i:]))))
+			case "UL":
+				out = append(out, int(le.Uint32(b[i:])))
+			default:
+				out = append(out, int(int32(le.Uint32(b[i:]))))
+			}
+		}
+		return out
+	case "FL", "FD":
+		size := 4
+		if vr == "FD" {
+			size = 8
+		}
+		out := make([]float64, 0, len(b)/size)
+		for i := 0; i+size <= len(b); i += size {
+			if size == 4 {
+				out = append(out, float64(math.Float32frombits(le.Uint32(b[i:]))))
+			} else {
+				out = append(out, math.Float64frombits(le.Uint64(b[i:])))
+			}
+		}
+		return out
+	}
+	return v
+}
+
 func strs(elems []*lib.Element, t tag.Tag) []string {
 	e := find(elems, t)
 	if e == nil || e.Value == nil {
 		return nil
 	}
-	v, _ := e.Value.GetValue().([]string)
+	v, _ := valueOf(e).([]string)
 	out := make([]string, 0, len(v))
 	for _, s := range v {
 		out = append(out, strings.Trim(s, " \x00"))
@@ -407,7 +476,7 @@ func nums(elems []*lib.Element, t tag.Tag) []float64 {
 	if e == nil || e.Value == nil {
 		return nil
 	}
-	switch v := e.Value.GetValue().(type) {
+	switch v := valueOf(e).(type) {
 	case []string:
 		out := make([]float64, 0, len(v))
 		for _, s := range v {
@@ -569,4 +638,51 @@ func mosaicOf(top []*lib.Element, fi *fileInfo) string {
 		return fmt.Sprintf("a %d×%d frame for an acquisition matrix of %d with %d slices in NumberOfImagesInMosaic (0019,100A)", fi.cols, fi.rows, acq, count)
 	}
 	return ""
+}
+
+// rwvOf reads the first Real World Value Mapping item (PS3.3
+// C.7.6.16.2.11): RealWorldValueSlope (0040,9225) and
+// RealWorldValueIntercept (0040,9224), the units from
+// MeasurementUnitsCodeSequence (0040,08EA) CodeValue. A mapping by LUT
+// only is not applied (note says so). NaN slope: none.
+func rwvOf(it []*lib.Element) (slope, icpt float64, units, note string) {
+	slope, icpt = math.NaN(), math.NaN()
+	if it == nil {
+		return
+	}
+	if u := firstItem(find(it, tag.MeasurementUnitsCodeSequence)); u != nil {
+		units = str(u, tag.CodeValue)
+	}
+	slope = num(it, tag.RealWorldValueSlope)
+	icpt = numOr(it, tag.RealWorldValueIntercept, 0)
+	switch {
+	case math.IsNaN(slope) && find(it, tag.RealWorldValueLUTData) != nil:
+		note = "Real World Value Mapping by LUT is not applied; RescaleSlope/RescaleIntercept used"
+	case math.IsNaN(slope):
+		note = "Real World Value Mapping without a slope is not applied"
+	case slope == 0:
+		slope, note = math.NaN(), "Real World Value Mapping with slope 0 is not applied"
+	}
+	return
+}
+
+// privateScale returns the vendor's private floating-point scale slope
+// (2005,100E), NaN when absent: FL in explicit VR files, 4 bytes little
+// endian in implicit VR ones.
+func privateScale(top []*lib.Element) float64 {
+	e := find(top, tag.Tag{Group: 0x2005, Element: 0x100E})
+	if e == nil || e.Value == nil {
+		return math.NaN()
+	}
+	switch v := e.Value.GetValue().(type) {
+	case []float64:
+		if len(v) > 0 {
+			return v[0]
+		}
+	case []byte:
+		if len(v) == 4 {
+			return float64(math.Float32frombits(binary.LittleEndian.Uint32(v)))
+		}
+	}
+	return math.NaN()
 }

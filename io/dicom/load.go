@@ -194,6 +194,62 @@ func (s *Series) pixelNotes() (string, []string) {
 		}
 		hows = append(hows, how)
 	}
+	if it := fr0Type(s); strings.HasPrefix(it, "DERIVED") {
+		warns = append(warns, "the images are DERIVED (ImageType "+it+"), read because derived images were asked for")
+	}
 	sort.Strings(hows)
-	return strings.Join(hows, "; "), warns
+	scale, w := scaling(s.frames)
+	return strings.Join(hows, "; ") + "; " + scale, append(warns, w...)
 }
+
+// scaling describes how stored values became samples in frames, and
+// warns when Real World Value Mapping is present in some images only, or
+// when the vendor's private scale slope differs between images with no
+// real-world mapping to make them comparable.
+func scaling(frames []*frameInfo) (string, []string) {
+	var warns []string
+	rwv, units := 0, map[string]bool{}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	notes := map[string]bool{}
+	for _, fr := range frames {
+		if !math.IsNaN(fr.rwvSlope) {
+			rwv++
+			units[fr.rwvUnits] = true
+		}
+		if fr.rwvNote != "" {
+			notes[fr.rwvNote] = true
+		}
+		if !math.IsNaN(fr.privScale) {
+			lo, hi = math.Min(lo, fr.privScale), math.Max(hi, fr.privScale)
+		}
+	}
+	for n := range notes {
+		warns = append(warns, n)
+	}
+	desc := "scaling: RescaleSlope/RescaleIntercept"
+	switch {
+	case rwv == len(frames):
+		var us []string
+		for u := range units {
+			us = append(us, u)
+		}
+		sort.Strings(us)
+		desc = "scaling: Real World Value Mapping slope/intercept (units " + strings.Join(us, ", ") + ")"
+		if len(us) > 1 {
+			warns = append(warns, "Real World Value Mapping units differ between images: "+strings.Join(us, ", "))
+		}
+	case rwv > 0:
+		desc += " and Real World Value Mapping"
+		warns = append(warns, fmt.Sprintf("Real World Value Mapping is present in %d of %d images only; the samples mix real-world and rescaled values", rwv, len(frames)))
+	}
+	if hi > lo && rwv < len(frames) {
+		warns = append(warns, fmt.Sprintf("the private scale slope (2005,100E) differs between images (%g to %g) and no Real World Value Mapping is given: rescaled values of different images may not be comparable", lo, hi))
+	}
+	if !math.IsInf(lo, 1) {
+		desc += fmt.Sprintf("; private scale slope (2005,100E) %g to %g recorded, not applied", lo, hi)
+	}
+	return desc, warns
+}
+
+// fr0Type is the ImageType of the first file of s.
+func fr0Type(s *Series) string { return strings.Join(s.frames[0].file.imageType, `\`) }

@@ -27,6 +27,7 @@ type Protocol struct {
 	Description string    `json:"description"`
 	Varying     string    `json:"varying"` // the parameter that differs between the series
 	Values      []float64 `json:"values"`  // its values, ascending (ms or degrees)
+	Echo        string    `json:"echo"`    // echo series: "SE" or "GR" when the headers tell (see Series.Echo)
 	Rows        int       `json:"rows"`
 	Columns     int       `json:"columns"`
 	Slices      int       `json:"slices"`
@@ -141,8 +142,13 @@ func (c *Catalog) protocols() {
 	}
 	for _, k := range keys {
 		for _, g := range groups[k] {
-			if len(g) > 1 {
-				c.Protocols = append(c.Protocols, makeProtocol(g))
+			if len(g) < 2 {
+				continue
+			}
+			// Series on one grid with the same parameters (a repeated
+			// scan) are not a protocol; Join still says why.
+			if p := makeProtocol(g); p.Varying != "" {
+				c.Protocols = append(c.Protocols, p)
 			}
 		}
 	}
@@ -235,6 +241,7 @@ func makeProtocol(list []*Series) *Protocol {
 				continue
 			}
 			// A second parameter differs: name its values by series.
+			p.Varying = by.name
 			pr := params[i]
 			var parts []string
 			for _, s := range list {
@@ -247,6 +254,9 @@ func makeProtocol(list []*Series) *Protocol {
 		return fail(s0.Source.Path, "the series %s have the same acquisition parameters; nothing varies", strings.Join(ids, ", "))
 	}
 	p.Varying = by.name
+	if p.Varying == "EchoTime" {
+		p.Echo = echoKind(s0.frames[0].file)
+	}
 	owner := map[int64]*Series{}
 	for _, v := range vols {
 		x := by.get(v.acq)
@@ -302,6 +312,43 @@ func LoadProtocol(p *Protocol) (*volume.Image, error) {
 		return nil, err
 	}
 	return r.Load()
+}
+
+// pixelNotes says how the pixel data of the protocol's series are stored
+// and scaled, and warns as Series.pixelNotes does; scaling is judged over
+// the whole protocol (a private scale that differs between its series is
+// warned about).
+func (p *Protocol) pixelNotes() (string, []string) {
+	var frames []*frameInfo
+	for _, m := range p.members {
+		frames = append(frames, m.frames...)
+	}
+	// Scaling is judged over the whole protocol: a private scale
+	// that differs between its series is warned about.
+	how, _ := p.members[0].pixelNotes()
+	if i := strings.Index(how, "; scaling: "); i >= 0 {
+		how = how[:i]
+	}
+	scale, warns := scaling(frames)
+	pixels := how + "; " + scale
+	seen := map[string]bool{}
+	var all []string
+	for _, m := range p.members {
+		_, w := m.pixelNotes()
+		for _, x := range append(w, warns...) {
+			if !seen[x] && !strings.HasPrefix(x, "the private scale slope") && !strings.HasPrefix(x, "Real World Value Mapping is present") {
+				seen[x] = true
+				all = append(all, x)
+			}
+		}
+	}
+	for _, x := range warns {
+		if !seen[x] {
+			seen[x] = true
+			all = append(all, x)
+		}
+	}
+	return pixels, all
 }
 
 // LookupProtocol returns the protocol with the given ID.

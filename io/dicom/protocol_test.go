@@ -129,3 +129,17 @@ func TestProtocolConflicts(t *testing.T) {
 		}
 	}
 }
+
+// TestEchoProtocol: a multi-echo spin echo exported as one series per
+// echo time (ScanningSequence SE) is one protocol varying EchoTime, of
+// echo kind "SE".
+func TestEchoProtocol(t *testing.T) {
+	c := scanOne(t, "geometry/echo-split", nil)
+	if len(c.Protocols) != 1 {
+		t.Fatalf("%d protocols", len(c.Protocols))
+	}
+	p := c.Protocols[0]
+	if p.Problem != "" || p.Varying != "EchoTime" || p.Echo != "SE" || len(p.Values) != 4 || p.Values[3] != 80 || p.Description != "se_te (4 series)" {
+		t.Errorf("protocol %+v", p)
+	}
+}

@@ -74,6 +74,7 @@ func OpenProtocol(p *Protocol) (*Reader, error) {
 		return nil, err
 	}
 	r.name, r.src.Description = "protocol "+p.ID, p.Description
+	r.src.Pixels, r.src.Warnings = p.pixelNotes()
 	nz := r.dims[2]
 	type vol struct {
 		s   *Series
@@ -325,11 +326,15 @@ func decodeLE16(dst []float32, src []byte, signed bool, slope, icpt float64) {
 	}
 }
 
-// rescale returns the slope and intercept of a frame, the identity for
+// rescale returns the slope and intercept of a frame: the Real World
+// Value Mapping's when present, else the rescale, the identity for
 // absent values (PS3.3 C.11.1.1.2; a present invalid slope is refused by
 // the header reader).
 func rescale(fr *frameInfo) (float64, float64) {
 	slope, icpt := fr.slope, fr.intercept
+	if !math.IsNaN(fr.rwvSlope) {
+		slope, icpt = fr.rwvSlope, fr.rwvIntercept // real-world values replace the rescale (PS3.3 C.7.6.16.2.11)
+	}
 	if math.IsNaN(slope) {
 		slope = 1
 	}

@@ -202,7 +202,7 @@ func readHeadFrom(f io.ReaderAt, size int64, path string, maxHead int64, scratch
 		if w.pix.found {
 			end = w.pix.start
 		}
-		rf.head = w.b[:end:end]
+		rf.head = w.cut(w.b, end)
 		return rf, nil
 	}
 }
@@ -251,7 +251,7 @@ func (rf *rawFile) inflateHead(f io.ReaderAt, maxHead int64) error {
 		if w.pix.found {
 			end = w.pix.start
 		}
-		rf.head = b[:end:end]
+		rf.head = w.cut(b, end)
 		return nil
 	}
 }
@@ -377,6 +377,10 @@ type walker struct {
 	path     string
 	deflated bool
 	pix      pixelElem
+	// drop lists the top-level UN elements of undefined length (start and
+	// end offsets): valid DICOM (PS3.5 §6.2.2) that the parsing library
+	// cannot read, so they are cut from the bytes it is given.
+	drop [][2]int64
 }
 
 func (w *walker) where() string {
@@ -465,10 +469,34 @@ func (w *walker) top() error {
 			}
 			return nil
 		}
+		start := pos
 		if pos, err = w.value(t, vr, vl, pos+hdr, -1, 0); err != nil {
 			return err
 		}
+		if vr == "UN" && vl == undefinedLength {
+			w.drop = append(w.drop, [2]int64{start, pos})
+		}
 	}
+}
+
+// cut returns b[:end] without the dropped ranges.
+func (w *walker) cut(b []byte, end int64) []byte {
+	if len(w.drop) == 0 {
+		return b[:end:end]
+	}
+	out := make([]byte, 0, end)
+	at := int64(0)
+	for _, d := range w.drop {
+		if d[0] >= end {
+			break
+		}
+		out = append(out, b[at:d[0]]...)
+		at = d[1]
+	}
+	if at < end {
+		out = append(out, b[at:end]...)
+	}
+	return out
 }
 
 // value walks the value of an element that starts at pos; end is the end
@@ -476,8 +504,16 @@ func (w *walker) top() error {
 func (w *walker) value(t tag.Tag, vr string, vl uint32, pos, end int64, depth int) (int64, error) {
 	if vl == undefinedLength {
 		switch vr {
-		case "SQ", "UN":
+		case "SQ":
 			return w.sequence(pos, -1, depth+1)
+		case "UN":
+			// PS3.5 §6.2.2: a UN value of undefined length is a sequence
+			// encoded in Implicit VR Little Endian, whatever the syntax.
+			implicit, bo := w.implicit, w.bo
+			w.implicit, w.bo = true, binary.LittleEndian
+			end, err := w.sequence(pos, -1, depth+1)
+			w.implicit, w.bo = implicit, bo
+			return end, err
 		case "OB", "OW":
 			return w.fragments(pos)
 		}

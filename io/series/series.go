@@ -35,6 +35,9 @@ type Overrides struct {
 	// KeepIdentifiers keeps the patient identifiers of a DICOM series in
 	// Image.Source.Patient (left out by default).
 	KeepIdentifiers bool
+	// Derived reads DICOM images whose ImageType is DERIVED (left out by
+	// default); the image then carries a warning saying so.
+	Derived bool
 }
 
 // Input describes one file read to make a series (volume.Input).
@@ -145,6 +148,7 @@ func OpenDICOM(path string, o *Overrides) (*dicom.Reader, []Input, error) {
 	var opt dicom.ScanOptions
 	if o != nil {
 		opt.KeepIdentifiers = o.KeepIdentifiers
+		opt.Derived = o.Derived
 	}
 	cat, err := dicom.Scan([]string{path}, &opt)
 	if err != nil {
@@ -234,6 +238,8 @@ func OpenDICOM(path string, o *Overrides) (*dicom.Reader, []Input, error) {
 			return nil, nil, fmt.Errorf("%s: no series with more than one volume (series %s has %d)", path, cat.Series[0].ID, cat.Series[0].Volumes)
 		case len(cat.Problems) > 0:
 			return nil, nil, fmt.Errorf("%s: no readable DICOM series (%d problems; first: %s)", path, len(cat.Problems), cat.Problems[0].String())
+		case cat.Ignored > 0:
+			return nil, nil, fmt.Errorf("%s: no DICOM series found (%d localizer, derived or non-image objects left out; --derived reads derived images)", path, cat.Ignored)
 		default:
 			return nil, nil, fmt.Errorf("%s: no DICOM series found (%d other files skipped)", path, cat.Skipped)
 		}

@@ -57,6 +57,9 @@ d.save_as(sys.argv[2])
 PY
 dcmcjpeg +e1 "$OUT/mr8.dcm" "$OUT/mr8-sv1.dcm"
 dcmcjpeg +el +sv 7 "$OUT/mr8.dcm" "$OUT/mr8-sv7.dcm"
+# Lossy: baseline JPEG of the 8-bit copy, JPEG-LS near-lossless (NEAR 2).
+dcmcjpeg +eb "$OUT/mr8.dcm" "$OUT/lossy-mr8-baseline.dcm"
+dcmcjpls +en +md 2 "$OUT/mr8.dcm" "$OUT/lossy-mr8-jpegls-near2.dcm"
 for kind in sv1 p14-sv4 rle jpegls j2k; do
 	mkdir -p "$OUT/ir-$kind"
 	for f in testdata/dicom/protocols/*; do

@@ -23,7 +23,8 @@ geometry/rounded/   20 oblique slices, 2 echoes, positions written with one
 geometry/missing/   the same with slice 13 left out (both echoes);
 geometry/dup-same/  3 slices x 2 echoes plus an exact copy of one file;
 geometry/dup-diff/  the same, the copy with one pixel changed;
-geometry/repeat-ti/ inversion recovery as 3 series where two share TI 300 ms.
+geometry/repeat-ti/ inversion recovery as 3 series where two share TI 300 ms;
+geometry/echo-split/ multi-echo spin echo as 4 series, one per echo time.
 """
 
 import json
@@ -163,6 +164,76 @@ def nib_affine(files, geom):
     return (np.diag([-1, -1, 1, 1]) @ a @ m).tolist()
 
 
+def enhanced_rwv(folder):
+    """One Enhanced MR file, 2 echoes x 2 slices of 4x4, whose frames carry
+    both a Pixel Value Transformation (rescale) and a Real World Value
+    Mapping item (PS3.3 C.7.6.16.2.11) with its own slope and intercept per
+    frame. Returns the expected real-world samples per (echo, slice)."""
+    from pydicom.dataset import Dataset
+    from pydicom.sequence import Sequence
+    geom = dict(angles=(0, 0, 0), rows=4, cols=4, slices=2, step=3.0, spacing=[1.0, 1.0], ipp0=[0.0, 0.0, 0.0])
+    meta = FileMetaDataset()
+    meta.MediaStorageSOPClassUID = "1.2.840.10008.5.1.4.1.1.4.1"
+    sop = new_uid()
+    meta.MediaStorageSOPInstanceUID = sop
+    meta.TransferSyntaxUID = ExplicitVRLittleEndian
+    meta.ImplementationClassUID = "2.25.1234567890123456789"
+    ds = FileDataset(None, {}, file_meta=meta, preamble=b"\0" * 128)
+    ds.is_little_endian, ds.is_implicit_VR = True, False
+    ds.SOPClassUID, ds.SOPInstanceUID = meta.MediaStorageSOPClassUID, sop
+    ds.StudyInstanceUID, ds.SeriesInstanceUID, ds.FrameOfReferenceUID = STUDY, new_uid(), FOR
+    ds.Modality, ds.SeriesNumber, ds.SeriesDescription = "MR", "61", "rwv_enhanced"
+    ds.ImageType = ["ORIGINAL", "PRIMARY", "M", "NONE"]
+    ds.NumberOfFrames = "4"
+    ds.EchoPulseSequence = "SPIN"
+    shared = Dataset()
+    pm = Dataset()
+    pm.PixelSpacing = ["1", "1"]
+    pm.SliceThickness = "3"
+    shared.PixelMeasuresSequence = Sequence([pm])
+    po = Dataset()
+    po.ImageOrientationPatient = ["1", "0", "0", "0", "1", "0"]
+    shared.PlaneOrientationSequence = Sequence([po])
+    tm = Dataset()
+    tm.RepetitionTime, tm.FlipAngle = 2000.0, 90.0
+    shared.MRTimingAndRelatedParametersSequence = Sequence([tm])
+    ds.SharedFunctionalGroupsSequence = Sequence([shared])
+    per, pix, expect = [], [], {}
+    tes = [15, 45]
+    for f, (t, k) in enumerate([(1, 0), (0, 1), (1, 1), (0, 0)]):   # frames out of order
+        g = Dataset()
+        pp = Dataset()
+        pp.ImagePositionPatient = ["0", "0", ds_str(3.0 * k)]
+        g.PlanePositionSequence = Sequence([pp])
+        me = Dataset()
+        me.EffectiveEchoTime = float(tes[t])
+        g.MREchoSequence = Sequence([me])
+        pv = Dataset()
+        pv.RescaleSlope, pv.RescaleIntercept, pv.RescaleType = ds_str(0.02 * (1 + t)), "-3.5", "US"
+        g.PixelValueTransformationSequence = Sequence([pv])
+        rw = Dataset()
+        rs, ri = 0.25 * (1 + f), 2.0 * f
+        rw.RealWorldValueSlope, rw.RealWorldValueIntercept = rs, ri
+        rw.LUTLabel, rw.LUTExplanation = "T2W", "invented units"
+        rw.RealWorldValueFirstValueMapped, rw.RealWorldValueLastValueMapped = 0, 4095
+        cd = Dataset()
+        cd.CodeValue, cd.CodingSchemeDesignator, cd.CodeMeaning = "1", "UCUM", "no units"
+        rw.MeasurementUnitsCodeSequence = Sequence([cd])
+        g.RealWorldValueMappingSequence = Sequence([rw])
+        per.append(g)
+        stored = np.array([[100 + 10 * f + i + 4 * j for i in range(4)] for j in range(4)], dtype="<u2")
+        pix.append(stored.tobytes())
+        expect["%d,%d" % (t, k)] = (rs * stored.astype(float) + ri).flatten().tolist()
+    ds.PerFrameFunctionalGroupsSequence = Sequence(per)
+    ds.Rows, ds.Columns = 4, 4
+    ds.SamplesPerPixel, ds.PhotometricInterpretation = 1, "MONOCHROME2"
+    ds.BitsAllocated, ds.BitsStored, ds.HighBit, ds.PixelRepresentation = 16, 16, 15, 0
+    ds.PixelData = b"".join(pix)
+    os.makedirs(folder, exist_ok=True)
+    ds.save_as(os.path.join(folder, "enhanced.dcm"), write_like_original=False)
+    return expect
+
+
 def main():
     for d in ("protocols", "geometry"):
         shutil.rmtree(os.path.join(ROOT, d), ignore_errors=True)
@@ -243,6 +314,14 @@ def main():
     rep = os.path.join(ROOT, "geometry", "repeat-ti")
     for s, ti in enumerate([100, 300, 300]):
         write_series(rep, 41 + s, "ir_rep%d" % s, [dict(ti=ti, tr=6000, te=12, fa=90, seq="IR")], dict(geom, slices=2))
+
+    # Multi-echo spin echo as one series per echo time (added last, so the
+    # files above keep their bytes).
+    es = os.path.join(ROOT, "geometry", "echo-split")
+    for s, te in enumerate([10, 20, 40, 80]):
+        write_series(es, 51 + s, "se_te%d" % te, [dict(te=te, tr=3000, fa=90, seq="SE")], dict(geom, slices=2))
+
+    refs["rwv_enhanced"] = enhanced_rwv(os.path.join(ROOT, "geometry", "rwv-enhanced"))
 
     with open(os.path.join(ROOT, "protocols-refs.json"), "w") as f:
         json.dump(refs, f, indent=1)
