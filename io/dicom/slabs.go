@@ -264,15 +264,11 @@ func readFrames(f *fileInfo, buf []byte, frames []int, maxBytes int64) ([]byte, 
 	if span > maxBytes {
 		return buf, nil, unsupportedErr(path, fmt.Sprintf("pixel data of %d bytes exceed the memory limit of %d bytes", span, maxBytes), ErrTooLarge)
 	}
-	file, err := regular.Open(path)
+	file, st, err := regular.OpenInfo(path)
 	if err != nil {
 		return buf, nil, &fileError{path, "open", err}
 	}
 	defer file.Close()
-	st, err := file.Stat()
-	if err != nil {
-		return buf, nil, &fileError{path, "stat", err}
-	}
 	if st.Size() != rf.size {
 		return buf, nil, formatErr(path, fmt.Sprintf("file changed since the scan (%d bytes, was %d)", st.Size(), rf.size), nil)
 	}

@@ -105,7 +105,7 @@ func readHead(path string, maxHead int64) (*rawFile, error) {
 // when it is large enough (the file's head then shares it: the caller
 // must be done with it before reusing scratch).
 func readHeadInto(path string, maxHead int64, scratch []byte) (*rawFile, error) {
-	f, err := regular.Open(path)
+	f, st, err := regular.OpenInfo(path)
 	if err != nil {
 		if errors.Is(err, regular.ErrNotRegular) {
 			return nil, err // skipped with a note by the scan, never opened blocking
@@ -113,13 +113,6 @@ func readHeadInto(path string, maxHead int64, scratch []byte) (*rawFile, error) 
 		return nil, &fileError{path, "open", err}
 	}
 	defer f.Close()
-	st, err := f.Stat()
-	if err != nil {
-		return nil, &fileError{path, "stat", err}
-	}
-	if !st.Mode().IsRegular() {
-		return nil, errNotDICOM
-	}
 	return readHeadFrom(f, st.Size(), path, maxHead, scratch)
 }
 
