@@ -3,6 +3,7 @@ package main
 import (
 	"database/sql"
 	"encoding/binary"
+	"encoding/json"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -174,11 +175,65 @@ func TestSecondCatalogue(t *testing.T) {
 		fmt.Fprintf(&sb, "s%d,16,16,1,1000,voxel\n", i)
 	}
 	manySpheres := f.write(t, "spheres.csv", []byte(sb.String()))
+	// qa.json files that decode but are no phantom measurement.
+	qb, err := os.ReadFile(f.qa)
+	if err != nil {
+		t.Fatal(err)
+	}
+	qaWith := func(name string, edit func(q map[string]any)) string {
+		var c map[string]any
+		if err := json.Unmarshal(qb, &c); err != nil {
+			t.Fatal(err)
+		}
+		edit(c)
+		out, _ := json.Marshal(c)
+		return f.write(t, name, out)
+	}
+	sess := func(q map[string]any) map[string]any { return q["session"].(map[string]any) }
+	vial0 := func(q map[string]any) map[string]any { return q["vials"].([]any)[0].(map[string]any) }
+	qNeg := qaWith("q_neg.json", func(q map[string]any) { vial0(q)["n"] = -5 })
+	qTime := qaWith("q_time.json", func(q map[string]any) { sess(q)["time"] = "25:61" })
+	qCold := qaWith("q_cold.json", func(q map[string]any) { sess(q)["temperature_C"] = -300 })
+	qVerdict := qaWith("q_verdict.json", func(q map[string]any) { vial0(q)["verdict"] = "PASS!!" })
+	qT3 := qaWith("q_t3.json", func(q map[string]any) { vial0(q)["quantity"] = "T3" })
+	qNoMedian := qaWith("q_nomedian.json", func(q map[string]any) { vial0(q)["verdict"] = "pass"; delete(vial0(q), "median_ms") })
+	qNoID := qaWith("q_noid.json", func(q map[string]any) { delete(vial0(q), "id") })
+	qHuge := qaWith("q_huge.json", func(q map[string]any) { vial0(q)["median_ms"] = 1e308 })
+	qMany := qaWith("q_many.json", func(q map[string]any) {
+		v := vial0(q)
+		vs := make([]any, 150000)
+		for i := range vs {
+			c := map[string]any{}
+			for k, x := range v {
+				c[k] = x
+			}
+			c["id"] = fmt.Sprintf("V%d", i)
+			vs[i] = c
+		}
+		q["vials"] = vs
+	})
+	qUnd := qaWith("q_und.json", func(q map[string]any) {
+		q["verdict"] = "undetermined"
+		for _, v := range q["vials"].([]any) {
+			v.(map[string]any)["verdict"] = "undetermined"
+		}
+	})
+	add := func(p string) []string { return []string{"history", "add", "--db", "OUT", p} }
 	cases := []struct {
 		name string
 		args []string
 		want []string
 	}{
+		{"qa.json n = -5", add(qNeg), []string{qNeg, "n is -5, want ≥ 0"}},
+		{"qa.json time 25:61", add(qTime), []string{qTime, `session time "25:61" is not a time of day (HH:MM)`}},
+		{"qa.json -300 °C", add(qCold), []string{qCold, "session temperature_C -300 is outside -10…60 °C"}},
+		{"qa.json verdict PASS!!", add(qVerdict), []string{qVerdict, `verdict "PASS!!" is not one of`}},
+		{"qa.json quantity T3", add(qT3), []string{qT3, `quantity "T3" is not one of T1, T2`}},
+		{"qa.json missing median", add(qNoMedian), []string{qNoMedian, "verdict pass without median_ms"}},
+		{"qa.json missing vial id", add(qNoID), []string{qNoID, "vials[0]: no vial id"}},
+		{"qa.json median 1e308", add(qHuge), []string{qHuge, "median_ms 1e+308 is outside [0, 100000]"}},
+		{"qa.json 150,000 vials", add(qMany), []string{qMany, "150000 vial results, above the limit of 1000 per session"}},
+		{"qa.json undetermined session", add(qUnd), []string{qUnd, "could not be told apart (verdict undetermined)"}},
 		{"RescaleSlope 0", []string{"fit", zero, "--model", "t2", "--out", "OUT"}, []string{"RescaleSlope (0028,1053) is 0"}},
 		{"RescaleSlope NaN", []string{"fit", nan, "--model", "t2", "--out", "OUT"}, []string{"RescaleSlope (0028,1053) is NaN"}},
 		{"schema version -1 (add)", []string{"history", "add", "--db", negVer, f.qa}, []string{negVer, "schema version -1 is not one tauvox writes"}},
@@ -305,5 +360,71 @@ func TestEmptyOutputAccepted(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(out, "T2map.nii.gz")); err != nil {
 		t.Error(err)
+	}
+}
+
+// TestHistoryReadersLeaveNothing: history list, export and chart leave no
+// -wal or -shm file beside the database (they open it allowing no change,
+// so the last connection folds the log back and removes them), nor does the
+// demo in its output folder.
+func TestHistoryReadersLeaveNothing(t *testing.T) {
+	f := newFixtures(t)
+	for _, args := range [][]string{
+		{"history", "list", "--db", f.db},
+		{"history", "export", "--db", f.db, "--out", f.path("e.csv")},
+		{"history", "chart", "--db", f.db, "--out", f.path("charts")},
+	} {
+		if code, _, e := tauvox(t, args...); code > 1 {
+			t.Fatalf("%v: exit %d: %s", args, code, e)
+		}
+		for _, ext := range []string{"-wal", "-shm"} {
+			if _, err := os.Stat(f.db + ext); err == nil {
+				t.Errorf("%v left %s", args, filepath.Base(f.db+ext))
+			}
+		}
+	}
+	out := f.path("demo")
+	if code, _, e := tauvox(t, "demo", "--out", out, "--sessions", "3"); code > 1 {
+		t.Fatalf("demo: exit %d: %s", code, e)
+	}
+	if m, _ := filepath.Glob(filepath.Join(out, "*-[ws][ah][lm]")); len(m) > 0 {
+		t.Errorf("demo left %v", m)
+	}
+}
+
+// TestNoEscapesToTerminal: escape sequences in a qa.json's scanner,
+// phantom, vial id and tool version (text from files) reach the terminal
+// through no history command: history add, list and chart print them
+// through printable (U+FFFD for control characters).
+func TestNoEscapesToTerminal(t *testing.T) {
+	f := newFixtures(t)
+	b, _ := os.ReadFile(f.qa)
+	var q map[string]any
+	if err := json.Unmarshal(b, &q); err != nil {
+		t.Fatal(err)
+	}
+	const esc = "\x1b]0;owned\x07\x1b[2J"
+	q["session"].(map[string]any)["scanner"] = "MR" + esc
+	q["session"].(map[string]any)["phantom"] = "P" + esc
+	q["tool"].(map[string]any)["version"] = "v" + esc
+	for _, v := range q["vials"].([]any) {
+		m := v.(map[string]any)
+		m["id"] = m["id"].(string) + esc
+	}
+	out, _ := json.Marshal(q)
+	hostile := f.write(t, "hostile.json", out)
+	db := f.path("hostile.db")
+	for _, args := range [][]string{
+		{"history", "add", "--db", db, hostile},
+		{"history", "list", "--db", db},
+		{"history", "chart", "--db", db, "--out", f.path("hc")},
+	} {
+		code, stdout, stderr := tauvox(t, args...)
+		if code > 1 {
+			t.Fatalf("%v: exit %d: %s", args, code, stderr)
+		}
+		if strings.ContainsAny(stdout+stderr, "\x1b\x07") {
+			t.Errorf("%v: an escape reached the output: %q", args, stdout+stderr)
+		}
 	}
 }

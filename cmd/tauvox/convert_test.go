@@ -16,7 +16,8 @@ import (
 // grid (affine to 1e-3 mm, float32 header) with a BIDS sidecar giving
 // InversionTime in seconds (BIDS: times in s); fitting the NIfTI gives the
 // map of fitting the DICOM folder (to 1e-5 relative: the times pass
-// through seconds). An existing output is refused without --force.
+// through seconds). An existing output is refused without --force, and
+// one inside the input folder always.
 func TestConvertProtocol(t *testing.T) {
 	_, affines := protocolRefs(t)
 	out := filepath.Join(t.TempDir(), "ir.nii.gz")
@@ -79,5 +80,12 @@ func TestConvertProtocol(t *testing.T) {
 	}
 	if code, _, stderr := tauvox(t, "convert", "../../testdata/dicom/protocols", "--series", "3,4,5,6,7,8,9", "--out", out); code != 2 || !strings.Contains(stderr, "exists; --force replaces it") {
 		t.Errorf("second convert: exit %d, %q", code, stderr)
+	}
+	inside := "../../testdata/dicom/protocols/x.nii.gz"
+	if code, _, stderr := tauvox(t, "convert", "../../testdata/dicom/protocols", "--series", "3,4", "--out", inside); code != 2 || !strings.Contains(stderr, "lies inside the input folder") {
+		t.Errorf("output inside the input: exit %d, %q", code, stderr)
+	}
+	if _, err := os.Stat(inside); !os.IsNotExist(err) {
+		t.Errorf("%s written", inside)
 	}
 }

@@ -171,7 +171,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 // slab (tests compare the two ways).
 var inMemory = false
 
-// fitSeries runs the pipeline for tauvox fit (and demo): the output check,
+// fitSeries runs the pipeline for tauvox fit: the output check,
 // the progress bar and the summary lines.
 func fitSeries(ctx context.Context, c *pipeline.Config, quiet bool, e *env) error {
 	if err := checkOutput(c.Out, c.Series, c.Mask, c.B1); err != nil {

@@ -1,21 +1,16 @@
 package main
 
 import (
-	"bytes"
 	"context"
-	"encoding/csv"
 	"errors"
 	"fmt"
-	"math"
 	"os"
-	"sort"
-	"strconv"
 	"strings"
-	"text/tabwriter"
 
+	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/internal/qarun"
 	"github.com/tauvox/tauvox/internal/regular"
 	"github.com/tauvox/tauvox/io/mapset"
-	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/roi/history"
 )
 
@@ -60,18 +55,6 @@ func runHistory(ctx context.Context, args []string, e *env) error {
 	return fmt.Errorf("unknown history subcommand %q (add, list, export, remove, chart)", sub)
 }
 
-func openDB(path string, readOnly bool) (*history.Store, error) {
-	if path == "" {
-		return nil, errors.New("--db is required")
-	}
-	if readOnly {
-		if _, err := os.Stat(path); err != nil {
-			return nil, err
-		}
-	}
-	return history.Open(path, &history.Options{ReadOnly: readOnly})
-}
-
 func historyAdd(ctx context.Context, args []string, e *env) error {
 	var db string
 	fs := newFlags("history add", "--db FILE QA.json...", "Records each session; adding the same qa.json again changes nothing and says so.", e)
@@ -95,7 +78,7 @@ func historyAdd(ctx context.Context, args []string, e *env) error {
 		}
 		data[i] = b
 	}
-	s, err := openDB(db, false)
+	s, err := qarun.OpenDB(db, false)
 	if err != nil {
 		return err
 	}
@@ -122,7 +105,7 @@ func historyList(ctx context.Context, args []string, e *env) error {
 	if err := parse(fs, args, nil); err != nil {
 		return err
 	}
-	s, err := openDB(db, true)
+	s, err := qarun.OpenDB(db, true)
 	if err != nil {
 		return err
 	}
@@ -131,13 +114,7 @@ func historyList(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, "id\tscanner\tacquired\tphantom\tfield T\ttemp °C\tresults\tfailed\ttool")
-	for _, si := range list {
-		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%g\t%g\t%d\t%d\t%s\n", si.ID, oneLine(si.Scanner), si.Acquired, oneLine(si.Phantom), si.Field, si.Temperature, si.Vials, si.Failed, si.Tool)
-	}
-	tw.Flush()
-	fmt.Fprintf(e.stdout, "%d sessions\n", len(list))
+	qarun.SessionTable(e.stdout, list)
 	return nil
 }
 
@@ -161,7 +138,7 @@ func historyExport(ctx context.Context, args []string, e *env) error {
 			return fmt.Errorf("%s: %w", out, mapset.ErrExists)
 		}
 	}
-	s, err := openDB(db, true)
+	s, err := qarun.OpenDB(db, true)
 	if err != nil {
 		return err
 	}
@@ -170,19 +147,22 @@ func historyExport(ctx context.Context, args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	var b bytes.Buffer
-	w := csv.NewWriter(&b)
-	w.Write([]string{"session", "scanner", "acquired", "field_T", "temperature_C", "vial", "quantity", "n", "mean_ms", "median_ms", "sd_ms", "reference_ms", "deviation_pct", "tolerance_ms", "verdict"})
-	for _, p := range pts {
-		w.Write([]string{strconv.FormatInt(p.SessionID, 10), p.Scanner, p.Acquired, fmtNum(p.Field, 2), fmtNum(p.Temperature, 2), p.Vial, p.Quantity,
-			strconv.Itoa(p.N), fmtNum(p.Mean, 3), fmtNum(p.Median, 3), fmtNum(p.SD, 3), fmtNum(p.Reference, 3), fmtNum(p.Deviation, 4), fmtNum(p.Tolerance, 3), p.Verdict})
-	}
-	w.Flush()
+	csv := qarun.ExportCSV(pts)
 	if out == "" {
-		_, err := e.stdout.Write(b.Bytes())
+		data := csv
+		if isTerminal(e.stdout) {
+			// Text from qa.json files never reaches a terminal raw; a
+			// pipe or file gets the exact CSV.
+			lines := strings.Split(string(csv), "\n")
+			for i := range lines {
+				lines[i] = output.Printable(lines[i])
+			}
+			data = []byte(strings.Join(lines, "\n"))
+		}
+		_, err := e.stdout.Write(data)
 		return err
 	}
-	return series.WriteFileAtomic(out, b.Bytes())
+	return output.WriteFile(out, csv)
 }
 
 func historyRemove(ctx context.Context, args []string, e *env) error {
@@ -199,7 +179,7 @@ func historyRemove(ctx context.Context, args []string, e *env) error {
 	if id <= 0 {
 		return errors.New("--id is required")
 	}
-	s, err := openDB(db, false)
+	s, err := qarun.OpenDB(db, false)
 	if err != nil {
 		return err
 	}
@@ -218,45 +198,5 @@ func historyRemove(ctx context.Context, args []string, e *env) error {
 	return nil
 }
 
-// findingOrder ranks findings for the drift table.
-var findingOrder = map[string]int{history.FindingAction: 0, history.FindingWatch: 1, history.FindingTooFew: 2, history.FindingOK: 3}
-
-// worstFirst orders series: by finding, then drifting first, then by the
-// number of rules violated, then by the size of the slope.
-func worstFirst(ss []*history.Series) []*history.Series {
-	out := append([]*history.Series(nil), ss...)
-	sort.SliceStable(out, func(i, j int) bool {
-		a, b := out[i], out[j]
-		if fa, fb := findingOrder[a.Finding], findingOrder[b.Finding]; fa != fb {
-			return fa < fb
-		}
-		if a.Drifting != b.Drifting {
-			return a.Drifting
-		}
-		if len(a.Violations) != len(b.Violations) {
-			return len(a.Violations) > len(b.Violations)
-		}
-		return math.Abs(a.Slope) > math.Abs(b.Slope)
-	})
-	return out
-}
-
 // driftTable prints the per-vial drift summary, worst first.
-func driftTable(e *env, ss []*history.Series) {
-	ss = worstFirst(ss)
-	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "scanner\tvial\tq\tsessions\tbaseline %\tlast %\tdrift %/yr\t95% CI\tviolations\tfinding\t")
-	for _, s := range ss {
-		var v []string
-		for _, k := range s.Violations {
-			v = append(v, strconv.Itoa(k))
-		}
-		f := s.Finding
-		if f == history.FindingTooFew {
-			f = fmt.Sprintf("not enough sessions (%d of %d)", s.Sessions, s.MinSessions)
-		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%s\t%s\t[%s, %s]\t%s\t%s\t\n", oneLine(s.Scanner), s.Vial, s.Quantity, len(s.Points),
-			fmtNum(s.BaselineMean, 2), fmtNum(s.Value[len(s.Value)-1], 2), fmtNum(s.Slope, 2), fmtNum(s.SlopeLow, 2), fmtNum(s.SlopeHigh, 2), strings.Join(v, ";"), f)
-	}
-	tw.Flush()
-}
+func driftTable(e *env, ss []*history.Series) { qarun.DriftTable(e.stdout, ss) }

@@ -6,10 +6,9 @@ import (
 	"flag"
 	"fmt"
 	"path/filepath"
-	"time"
 
+	"github.com/tauvox/tauvox/internal/qarun"
 	"github.com/tauvox/tauvox/internal/report"
-
 	"github.com/tauvox/tauvox/roi/history"
 )
 
@@ -19,7 +18,6 @@ type chartArgs struct {
 	minDrift, minLimit         float64
 	horizon                    float64
 	force, strict              bool
-	set                        *history.Settings
 }
 
 func chartFlags(a *chartArgs, e *env) *flag.FlagSet {
@@ -53,61 +51,6 @@ code 1 only for action items, or also for watch items with --strict.`, e)
 	return fs
 }
 
-func (a *chartArgs) settings() *history.Settings {
-	if a.set == nil {
-		a.set = &history.Settings{Baseline: history.Baseline{N: a.baseline}, MinDrift: a.minDrift,
-			MinLimit: a.minLimit, MinSessions: a.minSessions, Horizon: a.horizon / 12}
-		if a.minLimit == 0 {
-			a.set.MinLimit = -1 // no user floor
-		}
-	}
-	return a.set
-}
-
-// analyseHistory reads the points and computes the statistics.
-func analyseHistory(ctx context.Context, a *chartArgs) ([]*history.Series, error) {
-	if a.baseline < 2 {
-		return nil, errors.New("--baseline must be at least 2 sessions")
-	}
-	if a.minSessions < 3 {
-		return nil, errors.New("--min-sessions must be at least 3")
-	}
-	if !(a.minLimit >= 0) || a.minLimit > 100 {
-		return nil, errors.New("--min-limit must be 0…100 percentage points")
-	}
-	if !(a.horizon > 0) || a.horizon > 120 {
-		return nil, errors.New("--horizon must be 0…120 months (more than 0)")
-	}
-	set := a.settings()
-	if a.from != "" {
-		f, err := time.Parse("2006-01-02", a.from)
-		if err != nil {
-			return nil, fmt.Errorf("--baseline-from %q: want YYYY-MM-DD", a.from)
-		}
-		set.Baseline.From = f
-		if a.to != "" {
-			t, err := time.Parse("2006-01-02", a.to)
-			if err != nil {
-				return nil, fmt.Errorf("--baseline-to %q: want YYYY-MM-DD", a.to)
-			}
-			set.Baseline.To = t.Add(24*time.Hour - time.Second)
-		}
-	}
-	s, err := openDB(a.db, true)
-	if err != nil {
-		return nil, err
-	}
-	defer s.Close()
-	pts, err := s.Points(ctx, a.scanner)
-	if err != nil {
-		return nil, err
-	}
-	if len(pts) == 0 {
-		return nil, fmt.Errorf("%s: no sessions recorded%s", a.db, map[bool]string{true: " for scanner " + a.scanner}[a.scanner != ""])
-	}
-	return history.Analyse(pts, set), nil
-}
-
 func historyChart(ctx context.Context, args []string, e *env) error {
 	var a chartArgs
 	fs := chartFlags(&a, e)
@@ -120,7 +63,12 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	if err := checkOutput(a.out, a.db); err != nil {
 		return err
 	}
-	ss, err := analyseHistory(ctx, &a)
+	set, err := (&qarun.ChartOptions{Baseline: a.baseline, From: a.from, To: a.to, MinDrift: a.minDrift,
+		MinLimit: a.minLimit, MinSessions: a.minSessions, Horizon: a.horizon}).Settings()
+	if err != nil {
+		return err
+	}
+	ss, err := qarun.Analyse(ctx, a.db, a.scanner, set)
 	if err != nil {
 		return err
 	}
@@ -129,7 +77,7 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 		return err
 	}
 	defer st.Abort()
-	sum, err := writeCharts(st.Path(""), ss, a.settings(), filepath.Base(a.db))
+	sum, err := qarun.WriteCharts(ctx, st.Path(""), ss, set, filepath.Base(a.db), "tauvox "+version())
 	if err != nil {
 		return err
 	}
@@ -138,7 +86,7 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 	}
 	driftTable(e, ss)
 	fmt.Fprintf(e.stdout, "wrote %s (index.html, drift.csv, charts)\n", a.out)
-	fmt.Fprintln(e.stdout, report.HistoryHeadline(sum))
+	fmt.Fprintln(e.stdout, oneLine(report.HistoryHeadline(sum)))
 	return chartExit(sum, a.strict, filepath.Join(a.out, report.HistoryIndex))
 }
 
@@ -152,13 +100,4 @@ func chartExit(sum *report.HistorySummary, strict bool, see string) error {
 		return &exitError{code: 1, err: fmt.Errorf("%d watch item(s) (--strict): see %s", sum.Watches, see)}
 	}
 	return nil
-}
-
-// writeCharts writes the charts, index.html and drift.csv of ss into the
-// existing folder dir and returns the summary.
-func writeCharts(dir string, ss []*history.Series, set *history.Settings, source string) (*report.HistorySummary, error) {
-	if err := mkdirAll(dir); err != nil {
-		return nil, err
-	}
-	return report.WriteHistory(dir, ss, &report.HistoryOptions{Settings: set, Source: source, Tool: "tauvox " + version()})
 }

@@ -136,11 +136,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	return 2
 }
 
-// oneLine folds s into one line of printable text (output.Message, then
-// printable, as scan uses): every error line and every table cell taken
-// from a file goes through it, so that escape sequences in a file (a
-// phantom name, a scanner name) never reach the terminal.
-func oneLine(s string) string { return printable(output.Message(s)) }
+// oneLine is text from a file or an error made fit for one terminal line
+// (output.Cell: one line, no control or format character).
+func oneLine(s string) string { return output.Cell(s) }
 
 func usage(w io.Writer) {
 	fmt.Fprintln(w, "tauvox: quantitative relaxation-time maps (T1, T2, T2*) from MR series.")

@@ -145,8 +145,17 @@ func newFixtures(t *testing.T) *fixtures {
 	if code, _, e := tauvox(t, "fit", f.nii, "--model", "t2", "--out", f.maps, "--quiet"); code != 0 {
 		t.Fatal(e)
 	}
+	// The QA session comes from a full-size simulation (the 16×16 maps hold
+	// too few vials for their identity to be told): 96×96, one slice.
+	qsim := f.path("qsim")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t2", "--out", qsim, "--slices", "1"); code != 0 {
+		t.Fatal(e)
+	}
+	if code, _, e := tauvox(t, "fit", filepath.Join(qsim, "t2.nii.gz"), "--model", "t2", "--out", f.path("qmaps"), "--quiet", "--no-preview"); code != 0 {
+		t.Fatal(e)
+	}
 	qa := f.path("qa")
-	if code, _, e := tauvox(t, "phantom", f.maps, "--def", "demo", "--temperature", "20", "--date", "2026-05-01", "--out", qa); code > 1 {
+	if code, _, e := tauvox(t, "phantom", f.path("qmaps"), "--def", "demo", "--temperature", "20", "--date", "2026-05-01", "--out", qa); code > 1 {
 		t.Fatal(e)
 	}
 	f.qa = filepath.Join(qa, "qa.json")
@@ -446,54 +455,6 @@ func TestRobustnessCatalogue(t *testing.T) {
 	}
 	if len(cases) < 25 {
 		t.Errorf("catalogue holds %d entries, want at least 25", len(cases))
-	}
-}
-
-// TestCheckOutput: the output check refuses an output that is, lies in,
-// or contains an input, through "..", relative paths and symbolic links,
-// and lets an output beside an input file pass.
-func TestCheckOutput(t *testing.T) {
-	dir := t.TempDir()
-	dcm := filepath.Join(dir, "dicom")
-	os.MkdirAll(filepath.Join(dcm, "sub"), 0o755)
-	nii := filepath.Join(dir, "a.nii.gz")
-	os.WriteFile(nii, []byte("x"), 0o644)
-	link := filepath.Join(dir, "link")
-	if err := os.Symlink(dcm, link); err != nil {
-		t.Fatal(err)
-	}
-	cases := []struct {
-		out, in, want string
-	}{
-		{filepath.Join(dcm, "maps"), dcm, "lies inside the input folder"},
-		{filepath.Join(dcm, "sub", "deeper", "maps"), dcm, "lies inside the input folder"},
-		{filepath.Join(link, "maps"), dcm, "lies inside the input folder"},
-		{filepath.Join(dir, "x", "..", "dicom", "maps"), dcm, "lies inside the input folder"},
-		{dcm, dcm, "--out is the input"},
-		{dcm + string(filepath.Separator), link, "--out is the input"},
-		{nii, nii, "--out is the input"},
-		{dir, nii, "--out contains the input"},
-		{dir, dcm, "--out contains the input"},
-		{filepath.Join(dir, "maps"), nii, ""},
-		{filepath.Join(dir, "dicom-maps"), dcm, ""},
-		{filepath.Join(dir, "maps"), "", ""},
-		{filepath.Join(dir, "maps"), "demo", ""},
-	}
-	for _, c := range cases {
-		err := checkOutput(c.out, c.in)
-		switch {
-		case c.want == "" && err != nil:
-			t.Errorf("out %s, in %s: %v", c.out, c.in, err)
-		case c.want != "" && (err == nil || !strings.Contains(err.Error(), c.want)):
-			t.Errorf("out %s, in %s: %v, want …%s", c.out, c.in, err, c.want)
-		}
-	}
-	// Relative paths, from inside the folder.
-	wd, _ := os.Getwd()
-	defer os.Chdir(wd)
-	os.Chdir(dcm)
-	if err := checkOutput("maps", "."); err == nil {
-		t.Error("relative: maps inside . was accepted")
 	}
 }
 

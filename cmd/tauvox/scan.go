@@ -8,8 +8,8 @@ import (
 	"os"
 	"strings"
 	"text/tabwriter"
-	"unicode"
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/pipeline"
 	"github.com/tauvox/tauvox/io/dicom"
 )
@@ -59,7 +59,7 @@ reason; the scan goes on with the rest.`, e)
 		if len(s.Values) == 0 && s.Fixed != "" {
 			values = "(" + s.Fixed + ")"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(printable(oneLine(s.Description)), 40), s.Varying, values,
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%dx%d\t%d\t%d\t%s\t\n", s.ID, clip(output.Printable(oneLine(s.Description)), 40), s.Varying, values,
 			s.Matrix[0], s.Matrix[1], s.Slices, s.Volumes, model)
 	}
 
@@ -83,20 +83,9 @@ reason; the scan goes on with the rest.`, e)
 		}
 	}
 	for _, p := range res.Problems {
-		fmt.Fprintln(e.stdout, "  problem: "+printable(oneLine(p.String())))
+		fmt.Fprintln(e.stdout, "  problem: "+output.Printable(oneLine(p.String())))
 	}
 	return nil
-}
-
-// printable replaces control and format characters (a terminal escape
-// sequence in a series description, say) and invalid UTF-8 with U+FFFD.
-func printable(s string) string {
-	return strings.Map(func(r rune) rune {
-		if unicode.IsControl(r) || unicode.Is(unicode.Cf, r) {
-			return unicode.ReplacementChar
-		}
-		return r
-	}, strings.ToValidUTF8(s, "\uFFFD"))
 }
 
 func clip(s string, n int) string {

@@ -2,6 +2,8 @@ package main
 
 import (
 	"bytes"
+	"context"
+	"encoding/json"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -12,6 +14,8 @@ import (
 	"time"
 
 	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/roi/history"
+	"github.com/tauvox/tauvox/roi/phantom"
 )
 
 // child returns the test binary as a tauvox command (see TestMain).
@@ -212,4 +216,94 @@ func TestDiskFull(t *testing.T) {
 		out := filepath.Join(t.TempDir(), "maps")
 		check("RLIMIT_FSIZE 8 KiB", out, "file too large", []string{"TAUVOX_TEST_FSIZE=" + strconv.Itoa(8<<10)})
 	})
+}
+
+// bigHistory records n monthly sessions of one scanner with vials vial
+// results each (IDs V0…, quantity T1, deviations scattered by 1 %) in a new
+// database, directly through roi/history, and returns its path.
+func bigHistory(t *testing.T, n, vials int) string {
+	t.Helper()
+	db := filepath.Join(t.TempDir(), "big.db")
+	s, err := history.Open(db, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	ctx := context.Background()
+	for k := 0; k < n; k++ {
+		q := phantom.QA{Format: phantom.QAFormat, Tool: phantom.Tool{Name: "tauvox", Version: "test"},
+			Session: phantom.Session{Scanner: "MR-BIG", Date: time.Date(2024, time.Month(1+k), 3, 0, 0, 0, 0, time.UTC).Format("2006-01-02"),
+				Time: "09:00", Field: 1.5, Temperature: 20, Phantom: "big"}, Verdict: phantom.Pass}
+		for v := 0; v < vials; v++ {
+			dev := float64((v*7+k*13)%21-10) / 10 // −1 … +1 %
+			med := 1000 * (1 + dev/100)
+			q.Vials = append(q.Vials, phantom.VialQA{ID: "V" + strconv.Itoa(v), Quantity: "T1", N: 40, Median: med, Mean: med, SD: 5,
+				Reference: 1000, RefUncPct: 1, Deviation: dev, Tolerance: 50, Verdict: phantom.Pass})
+		}
+		b, err := json.Marshal(q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if _, err := s.Add(ctx, b, "big.json"); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return db
+}
+
+// TestInterruptChart: SIGINT and SIGTERM while history chart draws the
+// charts of a large database (1000 vial series × 24 sessions: several
+// seconds of drawing) end it within a second with exit 130, one line, and
+// no output folder or temporary folder; the database is unchanged.
+func TestInterruptChart(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts a subprocess")
+	}
+	db := bigHistory(t, 24, 1000)
+	before, _ := os.ReadFile(db)
+	for _, sig := range []syscall.Signal{syscall.SIGINT, syscall.SIGTERM} {
+		out := filepath.Join(t.TempDir(), "charts")
+		cmd, buf := child(t, nil, "history", "chart", "--db", db, "--out", out)
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		// Wait until charts are being written into the stage.
+		waitFor(t, "charts being drawn", 60*time.Second, func() bool {
+			for _, s := range stageOf(out) {
+				if m, _ := filepath.Glob(filepath.Join(s, "*.svg")); len(m) > 0 {
+					return true
+				}
+			}
+			return false
+		})
+		t0 := time.Now()
+		cmd.Process.Signal(sig)
+		done := make(chan struct{})
+		go func() { cmd.Wait(); close(done) }()
+		select {
+		case <-done:
+		case <-time.After(10 * time.Second):
+			cmd.Process.Kill()
+			<-done
+			t.Fatalf("%v: history chart still running 10 s after the signal", sig)
+		}
+		took := time.Since(t0)
+		code := cmd.ProcessState.ExitCode()
+		t.Logf("%v: exit %d after %v: %s", sig, code, took, strings.TrimSpace(buf.String()))
+		if code != 130 || took > time.Second {
+			t.Errorf("%v: exit %d after %v, want 130 within 1 s: %s", sig, code, took, buf)
+		}
+		if strings.Count(strings.TrimSpace(buf.String()), "\n") != 0 {
+			t.Errorf("%v: want one line: %q", sig, buf)
+		}
+		if _, err := os.Stat(out); err == nil {
+			t.Errorf("%v: output folder exists", sig)
+		}
+		if s := stageOf(out); len(s) > 0 {
+			t.Errorf("%v: temporary folder left: %v", sig, s)
+		}
+	}
+	if after, _ := os.ReadFile(db); string(after) != string(before) {
+		t.Error("the database changed")
+	}
 }

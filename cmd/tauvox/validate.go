@@ -2,15 +2,10 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
-	"math"
 	"strings"
-	"text/tabwriter"
 
-	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/internal/pipeline"
-	"github.com/tauvox/tauvox/io/sidecar"
 )
 
 const validateSummary = `Monte Carlo study of a model and protocol: for every true time constant,
@@ -27,18 +22,15 @@ The protocol defaults to the one tauvox simulate uses for the model; --te,
 replace it. The true values come from --t2, --t2star or --t1 (same syntax).`
 
 func runValidate(ctx context.Context, args []string, e *env) error {
+	s := &pipeline.Study{Truth: map[string][]float64{}}
 	var (
-		model, method, noise, plotFile string
-		snr                            float64
-		trials, workers                int
-		seed                           uint64
-		jsonOut, efficiency            bool
-		te, ti, tr, fa, t2, t2s, t1    listFlag
+		jsonOut                     bool
+		te, ti, tr, fa, t2, t2s, t1 listFlag
 	)
 	fs := newFlags("validate", "--model M [--snr S] [--t2 LIST | --t1 LIST] [options]", validateSummary, e)
-	fs.StringVar(&model, "model", "", "signal model: "+strings.Join(validModels(), ", ")+" (required)")
-	fs.StringVar(&method, "method", "", "estimation method (default: the model's first)")
-	fs.BoolVar(&efficiency, "efficiency", false, "t1-sr: fit the saturation efficiency")
+	fs.StringVar(&s.Model, "model", "", "signal model: "+strings.Join(pipeline.StudyModels(), ", ")+" (required)")
+	fs.StringVar(&s.Method, "method", "", "estimation method (default: the model's first)")
+	fs.BoolVar(&s.Efficiency, "efficiency", false, "t1-sr: fit the saturation efficiency")
 	fs.Var(&te, "te", "echo times, ms")
 	fs.Var(&ti, "ti", "inversion times, ms")
 	fs.Var(&tr, "tr", "repetition times, ms")
@@ -46,115 +38,33 @@ func runValidate(ctx context.Context, args []string, e *env) error {
 	fs.Var(&t2, "t2", "true T2 values, ms (t2; default 20:20:300)")
 	fs.Var(&t2s, "t2star", "true T2* values, ms (t2star; default 5:5:60)")
 	fs.Var(&t1, "t1", "true T1 values, ms (t1-ir, t1-sr default 200:200:3000; t1-vfa 200:200:2000)")
-	fs.Float64Var(&snr, "snr", 100, "M0/σ")
-	fs.StringVar(&noise, "noise", "gaussian", "gaussian (added to the magnitude) or rician")
-	fs.IntVar(&trials, "trials", 1000, "trials per true value")
-	fs.Uint64Var(&seed, "seed", 1, "noise seed")
-	fs.IntVar(&workers, "workers", 0, "worker goroutines (default: one per CPU)")
+	fs.Float64Var(&s.SNR, "snr", 100, "M0/σ")
+	fs.StringVar(&s.Noise, "noise", "gaussian", "gaussian (added to the magnitude) or rician")
+	fs.IntVar(&s.Trials, "trials", 1000, "trials per true value")
+	fs.Uint64Var(&s.Seed, "seed", 1, "noise seed")
+	fs.IntVar(&s.Workers, "workers", 0, "worker goroutines (default: one per CPU)")
 	fs.BoolVar(&jsonOut, "json", false, "print JSON instead of a table")
-	fs.StringVar(&plotFile, "plot", "", "write SD and CRLB against the true value to this .svg or .png")
+	fs.StringVar(&s.Plot, "plot", "", "write SD and CRLB against the true value to this .svg or .png")
 	if err := parse(fs, args, nil); err != nil {
 		return err
 	}
-	switch {
-	case model == "":
-		return fmt.Errorf("--model is required (see --help)")
-	case !(snr > 0) || math.IsInf(snr, 0):
-		return fmt.Errorf("--snr must be positive")
-	case trials < 2 || trials > 10_000_000:
-		return fmt.Errorf("--trials must be 2 to 10000000")
-	case fit.CheckWorkers(workers) != nil:
-		return fit.CheckWorkers(workers)
-	case noise != "gaussian" && noise != "rician":
-		return fmt.Errorf("--noise must be gaussian or rician")
-	case plotFile != "" && !strings.HasSuffix(strings.ToLower(plotFile), ".svg") && !strings.HasSuffix(strings.ToLower(plotFile), ".png"):
-		return fmt.Errorf("--plot must name a .svg or .png file")
+	s.TE, s.TI, s.TR, s.FA = te.list(), ti.list(), tr.list(), fa.list()
+	for name, f := range map[string]*listFlag{"T2": &t2, "T2star": &t2s, "T1": &t1} {
+		if f.set {
+			s.Truth[name] = f.list()
+		}
 	}
-	info, ok := fit.Lookup(model)
-	if !ok || info.Simulate == nil || info.Simulate.Truth == "" {
-		return fmt.Errorf("validate supports models %s, not %q", strings.Join(validModels(), ", "), model)
-	}
-	def := info.Simulate.Truth
-	m0, err := fit.New(fit.Spec{Model: model})
+	r, err := s.Run(ctx)
 	if err != nil {
 		return err
 	}
-	first := m0.Outputs()[0].Name // T2, T2star or T1
-	quantity := strings.Replace(first, "star", "*", 1)
-	truthFlag := map[string]*listFlag{"T2": &t2, "T2star": &t2s, "T1": &t1}[first]
-	if truthFlag == nil {
-		return fmt.Errorf("validate has no flag for the true %s values of model %s", first, model)
+	if !jsonOut {
+		return r.WriteTable(e.stdout)
 	}
-	for name, f := range map[string]*listFlag{"t2": &t2, "t2star": &t2s, "t1": &t1} {
-		if f.set && f != truthFlag {
-			return fmt.Errorf("--%s does not apply to model %s (give the %s values)", name, model, quantity)
-		}
-	}
-	truth := truthFlag.list()
-	if truth == nil {
-		truth, _ = sidecar.ParseList(def)
-	}
-	acq := info.Simulate.Acq()
-	if acq, err = pipeline.OverrideProtocol(acq, te.list(), ti.list(), tr.list(), fa.list()); err != nil {
-		return err
-	}
-	m, err := fit.New(fit.Spec{Model: model, Method: method, Efficiency: efficiency})
+	b, err := r.JSON()
 	if err != nil {
 		return err
 	}
-	nz := fit.GaussianNoise
-	if noise == "rician" {
-		nz = fit.RicianNoise
-	}
-	v := &fit.Validation{Model: m, Acq: acq, Truth: truth, SNR: snr, Noise: nz, Trials: trials, Seed: seed, Workers: workers}
-	rows, err := fit.Validate(ctx, v)
-	if err != nil {
-		return fmt.Errorf("model %s: %v", model, err)
-	}
-	if plotFile != "" {
-		if err := pipeline.ValidationPlot(plotFile, rows, m, quantity, snr, noise); err != nil {
-			return err
-		}
-	}
-	if jsonOut {
-		out := map[string]any{
-			"format": "tauvox-validation/1", "model": m.Name(), "method": m.Method(), "snr": snr, "noise": noise,
-			"trials": trials, "seed": seed, "quantity": quantity, "protocol": pipeline.ProtocolRecords(acq),
-			"crlb": "Gaussian-noise Cramér–Rao bound", "rows": pipeline.JSONRows(rows),
-		}
-		b, err := json.MarshalIndent(out, "", "  ")
-		if err != nil {
-			return err
-		}
-		_, err = fmt.Fprintln(e.stdout, string(b))
-		return err
-	}
-	fmt.Fprintf(e.stdout, "%s/%s, %d points, SNR %g (σ = %g), %s noise, %d trials per value, seed %d\n",
-		m.Name(), m.Method(), len(acq), snr, 1/snr, noise, trials, seed)
-	fmt.Fprintf(e.stdout, "protocol: %s\n", pipeline.ProtocolLine(acq))
-	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "true %s (ms)\tok\tmean\tbias %%\tSD\tCRLB SD\tefficiency\tmean SE\t±1 SE\t±1.96 SE\t\n", quantity)
-	for _, r := range rows {
-		fmt.Fprintf(tw, "%g\t%d\t%.3f\t%+.2f\t%.3f\t%.3f\t%.3f\t%.3f\t%.3f\t%.3f\t\n",
-			r.Truth, r.OK, r.Mean, r.BiasPct, r.SD, r.CRLB, r.Efficiency, r.MeanSE, r.Cover1, r.Cover196)
-	}
-	if err := tw.Flush(); err != nil {
-		return err
-	}
-	if noise == "rician" {
-		fmt.Fprintln(e.stdout, "CRLB: the Gaussian-noise bound; with Rician noise it is approached only at high SNR.")
-	}
-	return nil
-}
-
-// validModels lists the models validate can study: those with a
-// simulator protocol and a default true-value range in the registry.
-func validModels() []string {
-	var n []string
-	for _, m := range fit.Models() {
-		if m.Simulate != nil && m.Simulate.Truth != "" {
-			n = append(n, m.Name)
-		}
-	}
-	return n
+	_, err = fmt.Fprintln(e.stdout, string(b))
+	return err
 }

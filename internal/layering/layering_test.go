@@ -30,8 +30,9 @@ var rules = []rule{
 	{"internal/output", []string{"*"}, "the atomic writer and error-line helper are a leaf"},
 	{"internal/threshold", []string{"*"}, "Otsu's threshold is a leaf"},
 	{"internal/regular", []string{"*"}, "opening inputs without blocking on special files is a leaf"},
-	{"internal/report", []string{"internal/pipeline", "cmd/*"}, "the reports render results; they do not run fits"},
-	{"internal/pipeline", []string{"cmd/*"}, "the pipeline serves the command line, not the reverse"},
+	{"internal/completion", []string{"*"}, "the completion scripts are written from the command line's description: a leaf"},
+	{"internal/report", []string{"internal/pipeline", "internal/qarun", "cmd/*"}, "the reports render results; they do not run fits or QA sessions"},
+	{"internal/pipeline", []string{"internal/qarun", "cmd/*"}, "the pipeline serves the QA run and the command line, not the reverse"},
 	{"*", []string{"cmd/*"}, "nothing imports the command"},
 }
 

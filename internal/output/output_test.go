@@ -2,7 +2,9 @@ package output
 
 import (
 	"errors"
+	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"testing"
@@ -56,5 +58,21 @@ func TestLine(t *testing.T) {
 func TestMessage(t *testing.T) {
 	if got := Message("no such\n  table:\tx\x1b"); got != `no such table: x\x1b` {
 		t.Errorf("Message = %q", got)
+	}
+}
+
+// TestNum: fixed decimals as fmt's %.*f gives them; not finite is empty.
+func TestNum(t *testing.T) {
+	for _, c := range []struct {
+		v    float64
+		prec int
+		want string
+	}{
+		{1.005, 2, fmt.Sprintf("%.*f", 2, 1.005)}, {-0.5, 0, "-0"}, {1234.5678, 1, "1234.6"}, {2, 3, "2.000"},
+		{math.NaN(), 2, ""}, {math.Inf(-1), 1, ""},
+	} {
+		if got := Num(c.v, c.prec); got != c.want {
+			t.Errorf("Num(%g, %d) = %q, want %q", c.v, c.prec, got, c.want)
+		}
 	}
 }

@@ -6,6 +6,7 @@ import (
 	"os"
 	"strings"
 
+	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/series"
 	"github.com/tauvox/tauvox/volume"
 )
@@ -42,8 +43,10 @@ func (c *Convert) Run() (*volume.Image, error) {
 			return nil, err
 		}
 	}
-	if c.Series == c.Out || c.Series == side {
-		return nil, fmt.Errorf("%s: the output would replace the input", c.Out)
+	for _, p := range []string{c.Out, side} {
+		if err := output.Check(p, c.Series); err != nil {
+			return nil, err
+		}
 	}
 	o := c.Overrides
 	im, _, err := series.Load(c.Series, &o)

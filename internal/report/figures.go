@@ -15,12 +15,14 @@ import (
 
 // Verdict colours, from the Okabe–Ito palette (Okabe & Ito, "Color
 // Universal Design", 2008; common practice for colour-vision-deficiency
-// safe categories): bluish green for pass, vermillion for fail, grey for
-// not measured. Outlines also differ in form (fail thicker, not-measured
-// dashed), so the verdict does not rest on colour alone.
+// safe categories): bluish green for pass, vermillion for fail, reddish
+// purple for undetermined, grey for not measured. Outlines also differ in
+// form (fail thicker, undetermined and not-measured dashed), so the verdict
+// does not rest on colour alone.
 var (
 	passColor = color.RGBA{0, 158, 115, 255}
 	failColor = color.RGBA{213, 94, 0, 255}
+	undColor  = color.RGBA{204, 121, 167, 255}
 	nmColor   = color.RGBA{170, 170, 170, 255}
 )
 
@@ -30,6 +32,8 @@ func verdictColor(v string) color.RGBA {
 		return passColor
 	case phantom.Fail:
 		return failColor
+	case phantom.Undetermined:
+		return undColor
 	}
 	return nmColor
 }

@@ -1,6 +1,7 @@
 package report
 
 import (
+	"context"
 	_ "embed"
 	"encoding/csv"
 	"fmt"
@@ -51,7 +52,16 @@ type HistoryOptions struct {
 	// Tool is the program name and version shown in the footer; empty
 	// means "tauvox".
 	Tool string
+	// Context, when set, is checked before each chart is drawn: a
+	// cancelled context (Ctrl-C) ends the writing with its error.
+	Context context.Context
 }
+
+// MaxHistoryCharts bounds the charts one WriteHistory call draws (one per
+// scanner × vial × quantity): a history with more series is refused
+// before anything is written (a session holds at most qa.MaxVials
+// results; chart one scanner at a time beyond that).
+const MaxHistoryCharts = 5000
 
 // HistoryRow is one scanner × vial × quantity of the summary.
 type HistoryRow struct {
@@ -110,6 +120,9 @@ func WriteHistory(dir string, series []*history.Series, opt *HistoryOptions) (*H
 	if err := historyDirOK(dir); err != nil {
 		return nil, err
 	}
+	if len(series) > MaxHistoryCharts {
+		return nil, fmt.Errorf("report: history: %d vial series, above the limit of %d charts in one folder; chart one scanner at a time (--scanner)", len(series), MaxHistoryCharts)
+	}
 	for i, s := range series {
 		if err := checkSeries(s); err != nil {
 			return nil, fmt.Errorf("report: history: series %d: %w", i, err)
@@ -119,6 +132,11 @@ func WriteHistory(dir string, series []*history.Series, opt *HistoryOptions) (*H
 	names := newNamer()
 	charts := make([][]byte, len(sum.Rows))
 	for i := range sum.Rows {
+		if opt.Context != nil {
+			if err := opt.Context.Err(); err != nil {
+				return nil, err
+			}
+		}
 		r := &sum.Rows[i]
 		svg, err := historySVG(r.Series, opt.Settings)
 		if err != nil {

@@ -541,3 +541,17 @@ func TestRuleLabelsApart(t *testing.T) {
 		t.Error("a label far from its neighbour left the first row")
 	}
 }
+
+// TestHistoryChartLimit: a history of more series than MaxHistoryCharts is
+// refused in one line before any file is written (a qa.json of 150,000
+// vials once made 99,862 chart files).
+func TestHistoryChartLimit(t *testing.T) {
+	dir := t.TempDir()
+	_, err := WriteHistory(dir, make([]*history.Series, MaxHistoryCharts+1), nil)
+	if err == nil || !strings.Contains(err.Error(), "5001 vial series, above the limit of 5000 charts in one folder") {
+		t.Errorf("err %v", err)
+	}
+	if e, _ := os.ReadDir(dir); len(e) != 0 {
+		t.Errorf("wrote %d files", len(e))
+	}
+}

@@ -119,7 +119,7 @@ func scatterSVG(q, unit string, vials []*phantom.VialQA, tol *phantom.Tolerance)
 		g.errs = append(g.errs, struct{ Low, High float64 }{math.Max(low, 0), sd})
 		g.ids = append(g.ids, shortID(r.ID))
 	}
-	for _, v := range []string{phantom.Pass, phantom.Fail, phantom.NotMeasured} {
+	for _, v := range []string{phantom.Pass, phantom.Fail, phantom.Undetermined, phantom.NotMeasured} {
 		g := groups[v]
 		if g == nil {
 			continue

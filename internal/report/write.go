@@ -68,6 +68,25 @@ type pageData struct {
 	Quantities                                 []quantityData
 	Rows                                       []rowData
 	Series                                     []seriesData
+	Identity                                   *identityData
+}
+
+// identityData is the identity panel: how the vials were told apart, and
+// the evidence (measured against reference for the chosen placement and
+// the runner-up).
+type identityData struct {
+	Status, Reason, Fix, Measure, Threshold string
+	Groups                                  []identityGroupData
+}
+
+type identityGroupData struct {
+	Quantities, Status, Reason, Placements, Residual string
+	Chosen, RunnerUp, Margin, Scale, Z               string
+	Rows                                             []evidenceRow
+}
+
+type evidenceRow struct {
+	ID, Quantity, Reference, Chosen, ChosenRatio, RunnerUp, RunnerUpRatio string
 }
 
 type quantityData struct {
@@ -222,7 +241,49 @@ func build(p *Page) (*pageData, error) {
 	for _, sr := range qa.Series {
 		d.Series = append(d.Series, series(&sr))
 	}
+	if qa.Identity != nil {
+		d.Identity = identity(qa.Identity)
+	}
 	return d, nil
+}
+
+func identity(id *phantom.Identity) *identityData {
+	d := &identityData{Status: id.Status, Reason: id.Reason, Fix: id.Fix, Measure: id.Measure, Threshold: fmt.Sprintf("%g", id.Threshold)}
+	choice := func(c *phantom.Choice) string {
+		if c == nil {
+			return "–"
+		}
+		face := "up"
+		if c.Mirrored {
+			face = "down"
+		}
+		return fmt.Sprintf("turned %.1f°, face %s; cost %.4f", c.Rotation, face, c.Cost)
+	}
+	opt := func(v *float64, dec int) string {
+		if v == nil {
+			return "–"
+		}
+		return num(*v, dec, "")
+	}
+	ratio := func(m *float64, ref float64) string {
+		if m == nil || !(ref > 0) {
+			return "–"
+		}
+		return fmt.Sprintf("%+.1f %%", 100*(*m-ref)/ref)
+	}
+	for _, g := range id.Groups {
+		gd := identityGroupData{Quantities: strings.Join(g.Quantities, " + "), Status: g.Status, Reason: g.Reason,
+			Placements: fmt.Sprintf("%d (%d allowed by the layout's symmetry)", g.Placements, g.Symmetries),
+			Residual:   num(g.Residual, 2, " mm"), Chosen: choice(&g.Chosen), RunnerUp: choice(g.RunnerUp),
+			Margin: opt(g.Margin, 4), Scale: num(g.Scale, 4, ""), Z: opt(g.Z, 1)}
+		for _, e := range g.Evidence {
+			gd.Rows = append(gd.Rows, evidenceRow{ID: display(e.ID, maxDisplay), Quantity: display(e.Quantity, maxDisplay),
+				Reference: num(e.Reference, 1, ""), Chosen: opt(e.Chosen, 1), ChosenRatio: ratio(e.Chosen, e.Reference),
+				RunnerUp: opt(e.RunnerUp, 1), RunnerUpRatio: ratio(e.RunnerUp, e.Reference)})
+		}
+		d.Groups = append(d.Groups, gd)
+	}
+	return d
 }
 
 func derefs(v []*phantom.VialQA) []phantom.VialQA {
@@ -254,7 +315,7 @@ func dataURI(mime string, b []byte) template.URL {
 
 func verdictClass(v string) string {
 	switch v {
-	case phantom.Pass, phantom.Fail, Warn:
+	case phantom.Pass, phantom.Fail, Warn, phantom.Undetermined:
 		return v
 	}
 	return phantom.NotMeasured
@@ -262,7 +323,7 @@ func verdictClass(v string) string {
 
 // counts summarises the verdicts shown (shown[i] for vials[i]).
 func counts(vials []phantom.VialQA, shown []string) string {
-	var pass, warn, fail, nm int
+	var pass, warn, fail, und, nm int
 	for i := range vials {
 		switch shown[i] {
 		case phantom.Pass:
@@ -271,9 +332,14 @@ func counts(vials []phantom.VialQA, shown []string) string {
 			warn++
 		case phantom.Fail:
 			fail++
+		case phantom.Undetermined:
+			und++
 		default:
 			nm++
 		}
+	}
+	if und > 0 {
+		return fmt.Sprintf("%d of %d vial measurements passed, %d warn, %d failed, %d undetermined, %d not measured", pass, len(vials), warn, fail, und, nm)
 	}
 	return fmt.Sprintf("%d of %d vial measurements passed, %d warn, %d failed, %d not measured", pass, len(vials), warn, fail, nm)
 }
@@ -302,6 +368,8 @@ func verdictMark(v string) string {
 		return "!"
 	case phantom.Fail:
 		return "✗"
+	case phantom.Undetermined:
+		return "?"
 	}
 	return "–"
 }
@@ -363,7 +431,7 @@ func row(r *phantom.VialQA) rowData {
 	}
 	if r.Reference > 0 {
 		rd.Reference = num(r.Reference, 1, "") + " ± " + num(r.RefUncPct, 1, " %")
-		if rd.Verdict != phantom.NotMeasured {
+		if rd.Verdict != phantom.NotMeasured && rd.Verdict != phantom.Undetermined {
 			rd.Deviation = pctText(r.Deviation) + " (" + signedNum(r.Median-r.Reference) + " ms)"
 		}
 	}

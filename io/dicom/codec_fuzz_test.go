@@ -57,3 +57,28 @@ func FuzzLosslessJPEG(f *testing.F) {
 		_ = decodeLosslessJPEG(dst, src, r, c, b)
 	})
 }
+
+// BenchmarkDecodeLosslessJPEG decodes dcmtk's SV1 stream of MR_small
+// (64×64, 16-bit) per iteration.
+func BenchmarkDecodeLosslessJPEG(b *testing.B) {
+	src := frameOf(b, "mr-sv1.dcm")
+	dst := make([]byte, 64*64*2)
+	b.SetBytes(int64(len(dst)))
+	for i := 0; i < b.N; i++ {
+		if err := decodeLosslessJPEG(dst, src, 64, 64, 2); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+// BenchmarkDecodeRLE decodes dcmtk's RLE frame of MR_small per iteration.
+func BenchmarkDecodeRLE(b *testing.B) {
+	src := frameOf(b, "mr-rle-dcmtk.dcm")
+	dst := make([]byte, 64*64*2)
+	b.SetBytes(int64(len(dst)))
+	for i := 0; i < b.N; i++ {
+		if err := decodeRLE(dst, src, 64*64, 2); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

@@ -233,3 +233,34 @@ func TestLossyWarned(t *testing.T) {
 		t.Logf("%s: worst %g, mean %.3g; %s", tc.name, worst, mean, im.Source.Pixels)
 	}
 }
+
+// TestCodecsMultiFrame: a 4-frame Enhanced MR file compressed frame by
+// frame (dcmtk JPEG lossless SV1 and RLE, GDCM JPEG-LS; one fragment per
+// frame behind a Basic Offset Table, PS3.5 A.4) loads to the samples of
+// the uncompressed file.
+func TestCodecsMultiFrame(t *testing.T) {
+	ref, err := loadFile(t, filepath.Join(testdata, "geometry", "rwv-enhanced", "enhanced.dcm"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, name := range []string{"enh-sv1.dcm", "enh-rle.dcm", "enh-jpegls-gdcm.dcm"} {
+		if tool := needsTool(name); tool != "" {
+			if _, err := exec.LookPath(tool); err != nil {
+				t.Logf("%s: %s not installed, skipped", name, tool)
+				continue
+			}
+		}
+		im, err := loadFile(t, filepath.Join(testdata, "codecs", name))
+		if err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		if im.Dims != ref.Dims {
+			t.Fatalf("%s: dims %v", name, im.Dims)
+		}
+		for i := range im.Data {
+			if im.Data[i] != ref.Data[i] {
+				t.Fatalf("%s: sample %d = %g, want %g", name, i, im.Data[i], ref.Data[i])
+			}
+		}
+	}
+}

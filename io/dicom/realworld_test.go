@@ -105,3 +105,41 @@ func TestRealWorldFiles(t *testing.T) {
 		t.Errorf("%d mosaic series, want 2 (0.dcm and the two diffusion files)", mosaics)
 	}
 }
+
+// TestMosaicBySize: without MOSAIC in ImageType, a frame at least twice
+// the AcquisitionMatrix (0018,1310) with the vendor's
+// NumberOfImagesInMosaic (0019,100A) is a mosaic and refused, naming the
+// file and the count; the same frame without the count is an ordinary
+// image.
+func TestMosaicBySize(t *testing.T) {
+	for _, withCount := range []bool{true, false} {
+		data := fileWith(tsExplicitLE, func(d *dataset) {
+			d.drop(0x00280010)
+			d.drop(0x00280011)
+			d.us(0x00280010, 4)
+			d.us(0x00280011, 4)
+			d.drop(0x7FE00010)
+			d.put(0x7FE00010, "OW", make([]byte, 32))
+			d.put(0x00181310, "US", []byte{2, 0, 0, 0, 0, 0, 2, 0}) // AcquisitionMatrix 2\0\0\2
+			if withCount {
+				d.us(0x0019100A, 4)
+			}
+		})
+		dir := t.TempDir()
+		path := filepath.Join(dir, "m.dcm")
+		if err := os.WriteFile(path, data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		c, err := Scan([]string{dir}, nil)
+		if err != nil || len(c.Series) != 1 {
+			t.Fatalf("scan: %v %d series %v", err, len(c.Series), c.Problems)
+		}
+		_, err = LoadSeries(c.Series[0])
+		switch {
+		case withCount && (err == nil || !strings.Contains(err.Error(), "mosaic (a 4×4 frame for an acquisition matrix of 2 with 4 slices in NumberOfImagesInMosaic (0019,100A))") || !strings.HasPrefix(err.Error(), path)):
+			t.Errorf("with the count: %v", err)
+		case !withCount && err != nil:
+			t.Errorf("without the count: %v", err)
+		}
+	}
+}

@@ -406,8 +406,8 @@ func TestBadFiles(t *testing.T) {
 	for _, c := range []struct{ json, want string }{
 		{`{"format":"tauvox-qa/0"}`, `format "tauvox-qa/0", this tauvox reads "tauvox-qa/1"`},
 		{`not json`, "not a qa.json"},
-		{`{"format":"tauvox-qa/1","session":{"scanner":"x","date":"yesterday","phantom":"p"},"vials":[{"id":"a"}]}`, "want YYYY-MM-DD"},
-		{`{"format":"tauvox-qa/1","session":{"scanner":"x","date":"2026-01-01","phantom":"p"}}`, "no vial results"},
+		{`{"format":"tauvox-qa/1","session":{"scanner":"x","date":"yesterday","phantom":"p"},"vials":[{"id":"a"}]}`, `session date "yesterday" is not a date (YYYY-MM-DD)`},
+		{`{"format":"tauvox-qa/1","session":{"scanner":"x","date":"2026-01-01","phantom":"p","field_T":3,"temperature_C":20}}`, "no vial results"},
 	} {
 		if _, err := s.Add(context.Background(), []byte(c.json), "q.json"); err == nil || !strings.Contains(err.Error(), c.want) || !strings.HasPrefix(err.Error(), "q.json: ") {
 			t.Errorf("%s: %v", c.json, err)

@@ -107,7 +107,18 @@ func Open(path string, opt *Options) (*Store, error) {
 	}
 	dsn := fmt.Sprintf("file:%s?_pragma=busy_timeout(%d)&_pragma=foreign_keys(1)&_txlock=immediate", path, bt.Milliseconds())
 	if opt.ReadOnly {
-		dsn += "&mode=ro"
+		if writable(path) {
+			// Opened for reading and writing but allowed no change, so that
+			// the last connection folds the write-ahead log back into the
+			// file and removes the -wal and -shm files when it closes (a
+			// mode=ro connection cannot, and leaves them beside the
+			// database).
+			dsn += "&_pragma=query_only(1)"
+		} else {
+			// A read-only medium (or file): nothing can change the file, and
+			// nothing beside it can be created; SQLite reads it as immutable.
+			dsn += "&mode=ro&immutable=1"
+		}
 	}
 	db, err := sql.Open("sqlite", dsn)
 	if err != nil {
@@ -245,19 +256,11 @@ func ParseQA(b []byte, name string) (*phantom.QA, error) {
 	if err := json.Unmarshal(b, &qa); err != nil {
 		return nil, fmt.Errorf("%s: %v", name, err)
 	}
-	s := qa.Session
-	switch {
-	case strings.TrimSpace(s.Scanner) == "":
-		return nil, fmt.Errorf("%s: session has no scanner", name)
-	case len(s.Date) != 10:
-		return nil, fmt.Errorf("%s: session date %q, want YYYY-MM-DD", name, s.Date)
-	case strings.TrimSpace(s.Phantom) == "":
-		return nil, fmt.Errorf("%s: session has no phantom name", name)
-	case len(qa.Vials) == 0:
-		return nil, fmt.Errorf("%s: no vial results", name)
+	if err := phantom.Validate(&qa); err != nil {
+		return nil, fmt.Errorf("%s: %v", name, err)
 	}
-	if _, err := time.Parse("2006-01-02", s.Date); err != nil {
-		return nil, fmt.Errorf("%s: session date %q is not a date", name, s.Date)
+	if qa.Verdict == phantom.Undetermined {
+		return nil, fmt.Errorf("%s: the vials of this session could not be told apart (verdict undetermined), so its values belong to no vial; give the phantom's rotation and face to tauvox phantom and record the new qa.json", name)
 	}
 	return &qa, nil
 }

@@ -39,7 +39,24 @@ type Vial struct {
 	// PD is the relative proton density, used only when simulating
 	// (default 1).
 	PD float64 `json:"pd,omitempty"`
+	// Shape is ShapeCylinder (the default when empty: a vial along the
+	// phantom axis through every slice) or ShapeSphere (a ball of Radius
+	// centred at Z).
+	Shape string `json:"shape,omitempty"`
+	// Z is the position of the vial centre along the phantom axis, mm from
+	// the phantom's centre plane (default 0). It places spheres; a
+	// cylinder runs along the axis and Z does not change its region.
+	Z float64 `json:"z_mm,omitempty"`
 }
+
+// Vial shapes.
+const (
+	ShapeCylinder = "cylinder"
+	ShapeSphere   = "sphere"
+)
+
+// IsSphere reports whether v is a sphere.
+func (v *Vial) IsSphere() bool { return v.Shape == ShapeSphere }
 
 // Row is one reference value of a vial: the value of a quantity at a field
 // strength and temperature, with its relative uncertainty.
@@ -115,17 +132,40 @@ func (d *Definition) check() error {
 	if len(d.Vials) == 0 {
 		return errors.New("no vials")
 	}
+	if b := d.Body; b != nil {
+		if !(b.Radius > 0) || !finite(b.Radius) || b.Length < 0 || !finite(b.Length) {
+			return errors.New("body: radius_mm must be positive and length_mm not negative")
+		}
+	}
 	seen := map[string]bool{}
 	for i, v := range d.Vials {
 		if strings.TrimSpace(v.ID) == "" {
 			return fmt.Errorf("vial %d has no id", i+1)
 		}
 		if seen[v.ID] {
-			return fmt.Errorf("vial id %q appears twice", v.ID)
+			return fmt.Errorf("vials[%d].id: vial id %q appears twice", i, v.ID)
 		}
 		seen[v.ID] = true
 		if !finite(v.X) || !finite(v.Y) || !(v.Radius > 0) || !finite(v.Radius) {
 			return fmt.Errorf("vial %s: position and a positive radius are required", v.ID)
+		}
+		switch v.Shape {
+		case "", ShapeCylinder, ShapeSphere:
+		default:
+			return fmt.Errorf("vial %s: shape %q unknown (want %q or %q)", v.ID, v.Shape, ShapeCylinder, ShapeSphere)
+		}
+		if !finite(v.Z) {
+			return fmt.Errorf("vial %s: z_mm must be a finite number", v.ID)
+		}
+		if b := d.Body; b != nil {
+			// A vial must lie wholly inside the body (1e-6 mm slack for
+			// values typed with rounding).
+			if math.Hypot(v.X, v.Y)+v.Radius > b.Radius+1e-6 {
+				return fmt.Errorf("vial %s: x_mm, y_mm and radius_mm place it outside the body (radius_mm %g)", v.ID, b.Radius)
+			}
+			if v.IsSphere() && b.Length > 0 && math.Abs(v.Z)+v.Radius > b.Length/2+1e-6 {
+				return fmt.Errorf("vial %s: z_mm and radius_mm place it outside the body (length_mm %g)", v.ID, b.Length)
+			}
 		}
 		if len(v.Reference) == 0 {
 			return fmt.Errorf("vial %s has no reference values", v.ID)

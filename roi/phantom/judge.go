@@ -10,22 +10,31 @@ import (
 // The qa.json types live in package roi/qa (so that roi/history reads
 // them without the simulator's solvers); these names keep them here too.
 type (
-	QA           = qa.QA
-	Tool         = qa.Tool
-	Session      = qa.Session
-	SeriesRef    = qa.SeriesRef
-	Protocol     = qa.Protocol
-	FileRef      = qa.FileRef
-	Localisation = qa.Localisation
-	VialQA       = qa.VialQA
+	QA            = qa.QA
+	Tool          = qa.Tool
+	Session       = qa.Session
+	SeriesRef     = qa.SeriesRef
+	Protocol      = qa.Protocol
+	FileRef       = qa.FileRef
+	Localisation  = qa.Localisation
+	VialQA        = qa.VialQA
+	Identity      = qa.Identity
+	IdentityGroup = qa.IdentityGroup
+	Choice        = qa.Choice
+	Evidence      = qa.Evidence
 )
 
 // QAFormat and the verdicts, as in package roi/qa.
 const (
-	QAFormat    = qa.QAFormat
-	Pass        = qa.Pass
-	Fail        = qa.Fail
-	NotMeasured = qa.NotMeasured
+	QAFormat     = qa.QAFormat
+	Pass         = qa.Pass
+	Fail         = qa.Fail
+	NotMeasured  = qa.NotMeasured
+	Undetermined = qa.Undetermined
+
+	IdentityFound        = qa.IdentityFound
+	IdentityGiven        = qa.IdentityGiven
+	IdentityUndetermined = qa.IdentityUndetermined
 )
 
 // Judge fills the reference, deviation, tolerance and verdict of r from
@@ -55,7 +64,9 @@ func Judge(r *VialQA, v *Vial, tol map[string]Tolerance, field, temp float64, ex
 	}
 	r.Tolerance = math.Max(t.Pct/100*ref, t.Abs)
 	if r.N < minN || math.IsNaN(r.Median) {
-		r.Note = fmt.Sprintf("%d usable voxels", r.N)
+		if r.Note == "" {
+			r.Note = fmt.Sprintf("%d usable voxels", r.N)
+		}
 		return nil
 	}
 	r.Deviation = 100 * (r.Median - ref) / ref
@@ -67,17 +78,25 @@ func Judge(r *VialQA, v *Vial, tol map[string]Tolerance, field, temp float64, ex
 	return nil
 }
 
-// Overall returns the session verdict: fail when any vial fails, pass when
-// at least one passed and none failed, not-measured otherwise.
+// Overall returns the session verdict: fail when any vial fails,
+// undetermined when none failed but some vial's identity is undetermined,
+// pass when at least one passed and none failed or is undetermined,
+// not-measured otherwise.
 func Overall(vials []VialQA) string {
 	v := NotMeasured
+	und := false
 	for _, r := range vials {
 		switch r.Verdict {
 		case Fail:
 			return Fail
 		case Pass:
 			v = Pass
+		case Undetermined:
+			und = true
 		}
+	}
+	if und {
+		return Undetermined
 	}
 	return v
 }

@@ -33,7 +33,20 @@ type Placement struct {
 	Confidence float64 // 0…1
 	Residual   float64 // RMS mm between vial centres found and placed
 	Method     string  // "found", "given", "mixed"
+	// Plane is the fractional slice index of the spheres' plane when it
+	// was found from the images (NaN otherwise).
+	Plane float64
+	// zbar is the height (z_mm) of the spheres' plane (hasSpheres).
+	zbar float64
+	// alts are the other distinct placements of nearly the best contrast
+	// (at least altFraction of it), for the identity step.
+	alts []*Placement
 }
+
+// altFraction is the contrast, relative to the best, down to which other
+// distinct geometric placements are kept as identity candidates (tauvox's
+// choice: a placement off by a vial spacing scores far lower).
+const altFraction = 0.8
 
 // Point maps a point of the phantom's plane (mm from its centre) to the
 // scanner.
@@ -57,12 +70,6 @@ type LocateOptions struct {
 	Rotation *float64    // given rotation (degrees): not searched
 	Mirrored *bool       // given orientation
 	Slice    *int        // given slice index
-	// Map, when not nil, is a quantitative map on the same grid (T1 or T2,
-	// ms) with the reference of each vial in Expected (by vial id): among
-	// geometric candidates of nearly equal contrast (a symmetric vial
-	// layout), the one whose vial values best match the references wins.
-	Map      *volume.Image
-	Expected map[string]float64
 }
 
 // ErrNoPhantom reports an image in which no phantom could be found.
@@ -104,9 +111,13 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 		}
 	} else if k, err = sl.bestSlice(); err != nil {
 		return nil, err
+	} else if sph, _ := def.hasSpheres(); sph && im.Dims[2] > 1 {
+		// Spheres show only on the slices near their plane, which need
+		// not be the slab's middle.
+		k = sl.busiestSlice(k)
 	}
 	sl.setSlice(k)
-	pl := &Placement{Slice: k, U: sl.u, V: sl.v, N: sl.n, Method: "found"}
+	pl := &Placement{Slice: k, U: sl.u, V: sl.v, N: sl.n, Method: "found", Plane: math.NaN()}
 	start, ok := sl.centroid()
 	if !ok {
 		return nil, ErrNoPhantom
@@ -208,35 +219,53 @@ func Locate(im *volume.Image, def *Definition, opt *LocateOptions) (*Placement, 
 		return nil, ErrNoPhantom
 	}
 	chosen := 0
-	if opt.Map != nil && len(opt.Expected) > 0 {
-		bestMis := math.Inf(1)
-		for i, u := range uniq {
-			if u.score < 0.9*best.score {
-				continue
-			}
-			if mis := sc.mismatch(opt.Map, opt.Expected, u.c, u.th, u.mirror); mis < bestMis {
-				bestMis, chosen = mis, i
-			}
-		}
-	}
 	win := uniq[chosen]
 	pl.Center, pl.Rotation, pl.Mirrored = win.c, math.Mod(win.th+360, 360), win.mirror
-	// Confidence: margin over the next distinct candidate, and residual.
-	margin := 1.0
+	// Confidence: margin over the next distinct candidate that is not a
+	// symmetric image of the chosen one (those fit the outlines equally
+	// by construction; the values tell them apart), and residual.
+	syms := def.Symmetries()
+	image := func(u cand) bool {
+		for k := range syms {
+			q := compose(pl, &syms[k])
+			if q.Mirrored == u.mirror && angleDiff(q.Rotation, u.th) < 3 && dist(q.Center, u.c) < 2 {
+				return true
+			}
+		}
+		return false
+	}
+	margin, others := 1.0, false
 	for i, u := range uniq {
-		if i != chosen {
-			margin = math.Min(margin, 1-u.score/win.score)
+		if i != chosen && !image(u) {
+			margin, others = math.Min(margin, 1-u.score/win.score), true
 			break
 		}
 	}
 	pl.Residual = sc.residual(pl)
-	// 1 when the placement beats every other distinct one by at least 5 %
-	// of its score and each vial's own best position agrees with it; lower
-	// as a second placement scores nearly as well (an ambiguous layout) or
-	// the vials disagree (e^(−residual / 2 mm)).
-	pl.Confidence = clamp01(margin/0.05) * math.Exp(-pl.Residual/2)
-	if len(uniq) == 1 {
-		pl.Confidence = math.Exp(-pl.Residual / 2)
+	for i, u := range uniq {
+		if i != chosen && u.score >= altFraction*win.score && !image(u) {
+			a := *pl
+			a.Center, a.Rotation, a.Mirrored, a.alts = u.c, math.Mod(u.th+360, 360), u.mirror, nil
+			a.Residual = sc.residual(&a)
+			pl.alts = append(pl.alts, &a)
+		}
+	}
+	if sph, zbar := def.hasSpheres(); sph && im.Dims[2] > 1 && opt.Slice == nil {
+		pl.zbar = zbar
+		locatePlane(sc, pl, zbar)
+		for _, a := range pl.alts {
+			a.zbar = zbar
+			locatePlane(sc, a, zbar)
+		}
+	}
+	// 1 when the placement beats every other distinct one (symmetric
+	// images aside) by at least 5 % of its score and each vial's own best
+	// position agrees with it; lower as another placement scores nearly as
+	// well or the vials disagree (e^(−residual / 2 mm)). A geometric
+	// measure: the identity's margin is Identify's.
+	pl.Confidence = math.Exp(-pl.Residual / 2)
+	if others {
+		pl.Confidence *= clamp01(margin / 0.05)
 	}
 	return pl, nil
 }
@@ -329,6 +358,41 @@ func (s *slicer) bestSlice() (int, error) {
 	return ks[len(ks)/2], nil
 }
 
+// busiestSlice returns, among the slices whose object area is at least half
+// the largest, the one whose object voxels vary most (SD above the Otsu
+// threshold): the spheres' contrast adds to the spread where a slice cuts
+// them. It returns fallback when no slice qualifies.
+func (s *slicer) busiestSlice(fallback int) int {
+	nx, ny, nz := s.im.Dims[0], s.im.Dims[1], s.im.Dims[2]
+	area := make([]int, nz)
+	sd := make([]float64, nz)
+	top := 0
+	for k := 0; k < nz; k++ {
+		var sum, sum2 float64
+		for j := 0; j < ny; j++ {
+			for i := 0; i < nx; i++ {
+				v := float64(s.im.Data[i+nx*(j+ny*k)])
+				if v >= s.thr {
+					area[k]++
+					sum += v
+					sum2 += v * v
+				}
+			}
+		}
+		if n := float64(area[k]); n > 1 {
+			sd[k] = math.Sqrt(math.Max(0, (sum2-sum*sum/n)/(n-1)))
+		}
+		top = max(top, area[k])
+	}
+	best := fallback
+	for k := 0; k < nz; k++ {
+		if 2*area[k] >= top && sd[k] > sd[best] {
+			best = k
+		}
+	}
+	return best
+}
+
 // Slices returns the slices whose object area is at least frac of the
 // largest (the interior of a cylindrical phantom).
 func Slices(im *volume.Image, frac float64) []int {
@@ -387,28 +451,6 @@ func (s *slicer) project(p [3]float64) [3]float64 {
 	return [3]float64{x, y, z}
 }
 
-// sample returns the bilinear interpolation of the current slice at the
-// scanner point p (projected on the slice), and false outside the image or
-// on a non-finite value.
-func (s *slicer) sample(p [3]float64) (float64, bool) {
-	fi, fj, _ := s.inv.Apply(p[0], p[1], p[2])
-	nx, ny := s.im.Dims[0], s.im.Dims[1]
-	if !(fi >= 0 && fj >= 0 && fi <= float64(nx-1) && fj <= float64(ny-1)) {
-		return 0, false
-	}
-	i0, j0 := int(fi), int(fj)
-	i1, j1 := min(i0+1, nx-1), min(j0+1, ny-1)
-	a, b := fi-float64(i0), fj-float64(j0)
-	off := nx * ny * s.k
-	d := s.im.Data
-	v := (1-a)*(1-b)*float64(d[off+i0+nx*j0]) + a*(1-b)*float64(d[off+i1+nx*j0]) +
-		(1-a)*b*float64(d[off+i0+nx*j1]) + a*b*float64(d[off+i1+nx*j1])
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, false
-	}
-	return v, true
-}
-
 // scorer evaluates placements of a definition on a slice.
 type scorer struct {
 	sl     *slicer
@@ -461,16 +503,67 @@ func (sc *scorer) place(c [3]float64, th float64, mirror bool) *Placement {
 	return &Placement{Center: c, Rotation: th, Mirrored: mirror, U: sc.sl.u, V: sc.sl.v, N: sc.sl.n}
 }
 
-// vialContrast returns |mean inside − mean outside| of vial v for a
-// placement, with an extra shift (dx, dy) in the phantom plane.
-func (sc *scorer) vialContrast(p *Placement, v *Vial, dx, dy float64) (float64, bool) {
+// frame maps phantom-plane points of a placement straight to voxel
+// coordinates (i, j) of the slicer's grid: one rotation and one affine
+// inversion per placement instead of per sample point.
+type frame struct {
+	ci, cj         float64
+	ai, aj, bi, bj float64 // voxel steps per mm of the placement's a and b axes
+	cos, sin, sx   float64
+}
+
+func (s *slicer) frame(p *Placement) frame {
+	th := p.Rotation * math.Pi / 180
+	f := frame{cos: math.Cos(th), sin: math.Sin(th), sx: 1}
+	if p.Mirrored {
+		f.sx = -1
+	}
+	f.ci, f.cj, _ = s.inv.Apply(p.Center[0], p.Center[1], p.Center[2])
+	m := s.inv
+	f.ai = m[0][0]*p.U[0] + m[0][1]*p.U[1] + m[0][2]*p.U[2]
+	f.aj = m[1][0]*p.U[0] + m[1][1]*p.U[1] + m[1][2]*p.U[2]
+	f.bi = m[0][0]*p.V[0] + m[0][1]*p.V[1] + m[0][2]*p.V[2]
+	f.bj = m[1][0]*p.V[0] + m[1][1]*p.V[1] + m[1][2]*p.V[2]
+	return f
+}
+
+// at returns the voxel coordinates of the phantom-plane point (x, y), as
+// Placement.Point followed by the inverse affine does.
+func (f *frame) at(x, y float64) (float64, float64) {
+	x *= f.sx
+	a := x*f.cos - y*f.sin
+	b := x*f.sin + y*f.cos
+	return f.ci + a*f.ai + b*f.bi, f.cj + a*f.aj + b*f.bj
+}
+
+// sampleIJ is sample at voxel coordinates of the current slice.
+func (s *slicer) sampleIJ(fi, fj float64) (float64, bool) {
+	nx, ny := s.im.Dims[0], s.im.Dims[1]
+	if !(fi >= 0 && fj >= 0 && fi <= float64(nx-1) && fj <= float64(ny-1)) {
+		return 0, false
+	}
+	i0, j0 := int(fi), int(fj)
+	i1, j1 := min(i0+1, nx-1), min(j0+1, ny-1)
+	a, b := fi-float64(i0), fj-float64(j0)
+	off := nx * ny * s.k
+	d := s.im.Data
+	v := (1-a)*(1-b)*float64(d[off+i0+nx*j0]) + a*(1-b)*float64(d[off+i1+nx*j0]) +
+		(1-a)*b*float64(d[off+i0+nx*j1]) + a*b*float64(d[off+i1+nx*j1])
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, false
+	}
+	return v, true
+}
+
+// contrastAt returns |mean inside − mean outside| of vial v for the
+// placement of frame f, with an extra shift (dx, dy) in the phantom plane.
+func (sc *scorer) contrastAt(f *frame, v *Vial, dx, dy float64) (float64, bool) {
 	in, out := sc.offsets(v.Radius)
 	mean := func(pts [][2]float64) (float64, bool) {
 		var s float64
 		n := 0
 		for _, o := range pts {
-			q := p.Point(v.X+dx+o[0], v.Y+dy+o[1])
-			if val, ok := sc.sl.sample(q); ok {
+			if val, ok := sc.sl.sampleIJ(f.at(v.X+dx+o[0], v.Y+dy+o[1])); ok {
 				s += val
 				n++
 			}
@@ -490,9 +583,10 @@ func (sc *scorer) vialContrast(p *Placement, v *Vial, dx, dy float64) (float64, 
 
 func (sc *scorer) score(c [3]float64, th float64, mirror bool) float64 {
 	p := sc.place(c, th, mirror)
+	f := sc.sl.frame(p)
 	var s float64
 	for i := range sc.def.Vials {
-		if v, ok := sc.vialContrast(p, &sc.def.Vials[i], 0, 0); ok {
+		if v, ok := sc.contrastAt(&f, &sc.def.Vials[i], 0, 0); ok {
 			s += v
 		}
 	}
@@ -542,9 +636,10 @@ func (sc *scorer) refine(c [3]float64, th float64, mirror, moveC, moveTh bool) (
 func (sc *scorer) residual(p *Placement) float64 {
 	var ss float64
 	n := 0
+	f := sc.sl.frame(p)
 	for i := range sc.def.Vials {
 		v := &sc.def.Vials[i]
-		best, ok := sc.vialContrast(p, v, 0, 0)
+		best, ok := sc.contrastAt(&f, v, 0, 0)
 		if !ok || best == 0 {
 			continue
 		}
@@ -552,7 +647,7 @@ func (sc *scorer) residual(p *Placement) float64 {
 		for step > 0.02 {
 			moved := false
 			for _, d := range [][2]float64{{1, 0}, {-1, 0}, {0, 1}, {0, -1}} {
-				if s, ok := sc.vialContrast(p, v, dx+step*d[0], dy+step*d[1]); ok && s > best {
+				if s, ok := sc.contrastAt(&f, v, dx+step*d[0], dy+step*d[1]); ok && s > best {
 					best, dx, dy, moved = s, dx+step*d[0], dy+step*d[1], true
 				}
 			}
@@ -570,44 +665,4 @@ func (sc *scorer) residual(p *Placement) float64 {
 		return math.NaN()
 	}
 	return math.Sqrt(ss / float64(n))
-}
-
-// mismatch is the mean |log(median in vial / expected)| over vials with an
-// expected value, for a placement.
-func (sc *scorer) mismatch(m *volume.Image, expected map[string]float64, c [3]float64, th float64, mirror bool) float64 {
-	p := sc.place(c, th, mirror)
-	ms, err := newSlicer(m)
-	if err != nil {
-		ms = &slicer{im: m}
-		ms.inv, _ = m.Affine.Inverse()
-	}
-	ms.k = sc.sl.k
-	var s float64
-	n := 0
-	for i := range sc.def.Vials {
-		v := &sc.def.Vials[i]
-		e, ok := expected[v.ID]
-		if !ok || !(e > 0) {
-			continue
-		}
-		in, _ := offsets(v.Radius*0.6, 6)
-		var vals []float64
-		for _, o := range in {
-			if val, ok := ms.sample(p.Point(v.X+o[0], v.Y+o[1])); ok && val > 0 {
-				vals = append(vals, val)
-			}
-		}
-		if len(vals) == 0 {
-			s += 5
-			n++
-			continue
-		}
-		sort.Float64s(vals)
-		s += math.Abs(math.Log(vals[len(vals)/2] / e))
-		n++
-	}
-	if n == 0 {
-		return math.Inf(1)
-	}
-	return s / float64(n)
 }

@@ -47,8 +47,11 @@ func VialRegion(im *volume.Image, c, n [3]float64, radius float64, slices []int)
 }
 
 // Measure measures every vial of def in map m (status, when not nil, marks
-// failed fits) at placement pl: a cylinder of frac × the vial radius
-// through the given slices. It fills the statistics of each VialQA.
+// failed fits) at placement pl: for a cylinder, a cylinder of frac × the
+// vial radius through the given slices; for a sphere, on every slice of m
+// that cuts it widely enough, a disc of frac × the radius cut
+// (SphereRegion). It fills the statistics of each VialQA; a sphere that no
+// slice cuts is noted as not in the imaged slab.
 func Measure(m *volume.Image, status []uint8, pl *Placement, def *Definition, quantity string, frac float64, slices []int) ([]VialQA, error) {
 	if frac <= 0 || frac > 1 {
 		return nil, fmt.Errorf("ROI fraction %g outside (0, 1]", frac)
@@ -57,17 +60,31 @@ func Measure(m *volume.Image, status []uint8, pl *Placement, def *Definition, qu
 	var scratch []float64
 	for i := range def.Vials {
 		v := &def.Vials[i]
-		c := pl.Point(v.X, v.Y)
+		c := pl.vialCentre(v)
 		r := frac * v.Radius
-		idx := VialRegion(m, c, pl.N, r, slices)
+		var idx []int
+		note := "vial outside the image"
+		if v.IsSphere() {
+			var used []int
+			idx, used, r = SphereRegion(m, c, pl.N, v.Radius, frac)
+			if len(used) == 0 {
+				note = NotInSlab
+			}
+		} else {
+			idx = VialRegion(m, c, pl.N, r, slices)
+		}
 		var s roi.Stats
 		s, scratch = roi.Summarise(m.Data, status, idx, scratch)
 		q := VialQA{ID: v.ID, Quantity: quantity, N: s.N, Mean: s.Mean, Median: s.Median, SD: s.SD,
 			Failed: s.Failed, CenterMM: c, RadiusMM: r}
 		if len(idx) == 0 {
-			q.Note = "vial outside the image"
+			q.Note = note
 		}
 		out = append(out, q)
 	}
 	return out, nil
 }
+
+// NotInSlab is the note of a sphere that no slice of the map cuts widely
+// enough to measure.
+const NotInSlab = "not in the imaged slab"

@@ -51,6 +51,16 @@ func TestParseErrors(t *testing.T) {
 		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1,"reference":{"T2":[]}}]}`, "vial a: T2 reference is empty"},
 		{`{"format":"tauvox-phantom/1","colour":1}`, `unknown field "colour"`},
 		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1,"reference":{"T1":[{"field_T":1.5,"temperature_C":20,"value_ms":-3}]}}]}`, "T1 reference row needs"},
+		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","radius_mm":1,"shape":"cone","reference":{"T1":[{"field_T":1.5,"temperature_C":20,"value_ms":3}]}}]}`, `vial a: shape "cone" unknown`},
+		{`{"format":"tauvox-phantom/1","body":{"radius_mm":50},"vials":[{"id":"a","x_mm":45,"radius_mm":6,"reference":{"T1":[{"field_T":1.5,"temperature_C":20,"value_ms":3}]}}]}`, "vial a: x_mm, y_mm and radius_mm place it outside the body"},
+		{`{"format":"tauvox-phantom/1","body":{"radius_mm":50,"length_mm":20},"vials":[{"id":"a","z_mm":8,"shape":"sphere","radius_mm":6,"reference":{"T1":[{"field_T":1.5,"temperature_C":20,"value_ms":3}]}}]}`, "vial a: z_mm and radius_mm place it outside the body"},
+		{`{"format":"tauvox-phantom/1","vials":[{"id":"a","z_mm":1e400,"radius_mm":6}]}`, "z_mm"},
+	}
+	// A z_mm set from code that is not finite.
+	d := Demo()
+	d.Vials[0].Z = math.Inf(1)
+	if err := d.check(); err == nil || !strings.Contains(err.Error(), "z_mm must be a finite number") {
+		t.Errorf("infinite z_mm: %v", err)
 	}
 	for _, c := range cases {
 		_, err := Parse([]byte(c.json), "p.json")

@@ -112,6 +112,15 @@ func (s *Scene) ToPhantom(x, y float64) (px, py float64) {
 	return px, py
 }
 
+// axial returns the phantom-frame height of scanner z (turned over when the
+// phantom lies face down). The scene's phantom axis is the scanner's z.
+func (s *Scene) axial(z float64) float64 {
+	if s.Mirror {
+		return s.Center[2] - z
+	}
+	return z - s.Center[2]
+}
+
 // FromPhantom maps a point of the phantom's plane to scanner RAS (x, y).
 func (s *Scene) FromPhantom(px, py float64) (x, y float64) {
 	c := s.defaults()
@@ -159,11 +168,15 @@ func (s *Scene) Material(v *Vial) (fit.Tissue, error) {
 const sub = 3
 
 // region returns the vial index (≥ 0), −1 for fill or −2 for air at a
-// phantom-plane point.
-func (s *Scene) region(px, py float64) int {
+// point of the phantom's frame (pz along its axis, for spheres).
+func (s *Scene) region(px, py, pz float64) int {
 	for i := range s.Def.Vials {
 		v := &s.Def.Vials[i]
-		if (px-v.X)*(px-v.X)+(py-v.Y)*(py-v.Y) <= v.Radius*v.Radius {
+		d2 := (px-v.X)*(px-v.X) + (py-v.Y)*(py-v.Y)
+		if v.IsSphere() {
+			d2 += (pz - v.Z) * (pz - v.Z)
+		}
+		if d2 <= v.Radius*v.Radius {
 			return i
 		}
 	}
@@ -233,11 +246,11 @@ func (s *Scene) Series(seq fit.Sequence, acq []volume.Acquisition) (*volume.Imag
 					for sj := 0; sj < sub; sj++ {
 						fi := float64(i) + (float64(si)+0.5)/sub - 0.5
 						fj := float64(j) + (float64(sj)+0.5)/sub - 0.5
-						x, y, _ := im.Affine.Apply(fi, fj, float64(k))
+						x, y, z := im.Affine.Apply(fi, fj, float64(k))
 						px, py := c.ToPhantom(x, y)
 						r := -2
 						if inside {
-							r = c.region(px, py)
+							r = c.region(px, py, c.axial(z))
 						}
 						for t := range acc {
 							acc[t] += sig[r+2][t]
@@ -280,9 +293,9 @@ func (s *Scene) Truth(q string) (*volume.Image, error) {
 				r0 := -3
 				pure := true
 				for _, d := range [][2]float64{{-0.5, -0.5}, {0.5, -0.5}, {-0.5, 0.5}, {0.5, 0.5}, {0, 0}} {
-					x, y, _ := im.Affine.Apply(float64(i)+d[0], float64(j)+d[1], float64(k))
+					x, y, z := im.Affine.Apply(float64(i)+d[0], float64(j)+d[1], float64(k))
 					px, py := c.ToPhantom(x, y)
-					r := c.region(px, py)
+					r := c.region(px, py, c.axial(z))
 					if r0 == -3 {
 						r0 = r
 					} else if r != r0 {

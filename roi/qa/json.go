@@ -65,7 +65,10 @@ func (r VialQA) MarshalJSON() ([]byte, error) {
 
 // UnmarshalJSON reads r, turning null numbers into NaN.
 func (r *VialQA) UnmarshalJSON(b []byte) error {
-	var j vialJSON
+	// An absent number is undefined too (NaN), never a silent 0: a
+	// qa.json without a vial's median must not record a median of 0 ms.
+	nan := nullFloat(math.NaN())
+	j := vialJSON{Mean: nan, Median: nan, SD: nan, Failed: nan, Reference: nan, RefUncPct: nan, Deviation: nan, Tolerance: nan, RadiusMM: nan}
 	if err := json.Unmarshal(b, &j); err != nil {
 		return err
 	}

@@ -17,8 +17,11 @@ type QA struct {
 	Session Session     `json:"session"`
 	Series  []SeriesRef `json:"series"`
 	Vials   []VialQA    `json:"vials"`
-	Verdict string      `json:"verdict"` // pass, fail, or not-measured when nothing was measured
-	Caution string      `json:"caution"`
+	Verdict string      `json:"verdict"` // pass, fail, undetermined, or not-measured when nothing was measured
+	// Identity says how the vials were told apart (absent in files from
+	// before it was recorded).
+	Identity *Identity `json:"identity,omitempty"`
+	Caution  string    `json:"caution"`
 }
 
 // Tool names the program that made the file.
@@ -79,6 +82,9 @@ type Localisation struct {
 	// Residual is the RMS distance (mm) between the vial centres found in
 	// the image and those predicted by the fitted placement.
 	Residual float64 `json:"residual_mm"`
+	// SpherePlane is the fractional slice index of the spheres' plane
+	// found from the images (absent without spheres or with one slice).
+	SpherePlane *float64 `json:"sphere_plane_slice,omitempty"`
 }
 
 // VialQA is the result of one vial for one quantity.
@@ -98,4 +104,70 @@ type VialQA struct {
 	Note      string     `json:"note,omitempty"`
 	CenterMM  [3]float64 `json:"center_mm"` // where the region was placed (RAS)
 	RadiusMM  float64    `json:"roi_radius_mm"`
+}
+
+// Identity statuses (qa.json "identity"."status").
+const (
+	IdentityFound        = "found"        // the values chose one placement by a clear margin
+	IdentityGiven        = "given"        // the user fixed the rotation and the face
+	IdentityUndetermined = "undetermined" // the vials could not be told apart
+)
+
+// Undetermined is the verdict of a vial whose identity is not known with
+// confidence: no pass or fail is given.
+const Undetermined = "undetermined"
+
+// Identity reports how the vials were told apart in a session.
+type Identity struct {
+	Status string `json:"status"` // found, given or undetermined
+	// Reason says in one line why the identity is undetermined or how it
+	// was fixed; Fix how the user can settle an undetermined one.
+	Reason    string          `json:"reason,omitempty"`
+	Fix       string          `json:"fix,omitempty"`
+	Measure   string          `json:"measure"`
+	Threshold float64         `json:"threshold"`
+	Groups    []IdentityGroup `json:"groups"`
+}
+
+// IdentityGroup is the identity of the maps that share one grid.
+type IdentityGroup struct {
+	Quantities []string `json:"quantities"`
+	Status     string   `json:"status"`
+	Reason     string   `json:"reason,omitempty"`
+	// Symmetries is the number of placements the layout allows (its
+	// symmetries); Placements the number evaluated (with other geometric
+	// candidates of nearly the best contrast).
+	Symmetries int     `json:"symmetries"`
+	Placements int     `json:"placements"`
+	Residual   float64 `json:"residual_mm"` // geometric fit of the chosen placement
+	Chosen     Choice  `json:"chosen"`
+	RunnerUp   *Choice `json:"runner_up,omitempty"`
+	// Margin is RunnerUp.Cost − Chosen.Cost; Scale the noise scale (log
+	// units) from the chosen placement's spread of log-ratios; Z the
+	// margin in units of Scale. nil when there is no runner-up.
+	Margin *float64 `json:"margin,omitempty"`
+	Scale  float64  `json:"noise_scale"`
+	Z      *float64 `json:"margin_z,omitempty"`
+	// Moved is the number of vial-quantity terms the runner-up measures
+	// elsewhere than the chosen placement.
+	Moved    int        `json:"moved_terms,omitempty"`
+	Vials    int        `json:"vials_measured"`
+	Evidence []Evidence `json:"evidence"`
+}
+
+// Choice is one candidate placement and its match cost.
+type Choice struct {
+	Rotation float64 `json:"rotation_deg"`
+	Mirrored bool    `json:"mirrored"`
+	Cost     float64 `json:"cost"`
+}
+
+// Evidence is one vial's reference and the median measured where the
+// chosen placement and the runner-up put it (nil when not measured).
+type Evidence struct {
+	ID        string   `json:"id"`
+	Quantity  string   `json:"quantity"`
+	Reference float64  `json:"reference_ms"`
+	Chosen    *float64 `json:"chosen_ms"`
+	RunnerUp  *float64 `json:"runner_up_ms,omitempty"`
 }

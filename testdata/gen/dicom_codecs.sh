@@ -60,6 +60,12 @@ dcmcjpeg +el +sv 7 "$OUT/mr8.dcm" "$OUT/mr8-sv7.dcm"
 # Lossy: baseline JPEG of the 8-bit copy, JPEG-LS near-lossless (NEAR 2).
 dcmcjpeg +eb "$OUT/mr8.dcm" "$OUT/lossy-mr8-baseline.dcm"
 dcmcjpls +en +md 2 "$OUT/mr8.dcm" "$OUT/lossy-mr8-jpegls-near2.dcm"
+# A multi-frame Enhanced MR file (4 frames, testdata/gen/dicom_protocols.py)
+# compressed frame by frame (one fragment per frame, Basic Offset Table).
+enh=testdata/dicom/geometry/rwv-enhanced/enhanced.dcm
+dcmcjpeg +e1 "$enh" "$OUT/enh-sv1.dcm"
+dcmcrle "$enh" "$OUT/enh-rle.dcm"
+gdcmconv --jpegls "$enh" "$OUT/enh-jpegls-gdcm.dcm"
 for kind in sv1 p14-sv4 rle jpegls j2k; do
 	mkdir -p "$OUT/ir-$kind"
 	for f in testdata/dicom/protocols/*; do

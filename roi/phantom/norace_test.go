@@ -1,0 +1,5 @@
+//go:build !race
+
+package phantom
+
+const raceEnabled = false
