@@ -41,10 +41,13 @@ bench:
 	$(GO) test -run '^$$' -bench . -benchtime $(BENCHTIME) -benchmem ./fit/ ./io/nifti/ ./io/dicom/ ./io/gzsplit/ ./io/preview/
 
 # make bench-peers: tauvox against a scipy curve_fit voxel loop and a numpy
-# log-linear script on the same generated files (needs Debian python3-numpy,
-# python3-scipy, python3-nibabel); results in docs/benchmarks.md.
+# log-linear script on the same generated files, then a pydicom + numpy
+# script on a 288-file DICOM series and the same series as .nii.gz (needs
+# Debian python3-numpy, python3-scipy, python3-nibabel, python3-pydicom);
+# results in docs/benchmarks.md.
 bench-peers: build
 	/usr/bin/python3 testdata/gen/peers_bench.py --tauvox $(BIN)
+	/usr/bin/python3 testdata/gen/dicom_peers_bench.py --tauvox $(BIN)
 
 # make bench-memory: peak RSS of tauvox fit on a 256x256x40x16 series and on
 # a generated 512x512x280x32 float32 series (9.4 GB; needs about 12 GB free

@@ -129,7 +129,7 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	fs.Var(&a.window, "range", rangeUsage)
 	fs.StringVar(&a.cpuprofile, "cpuprofile", "", "write a CPU profile to this file")
 	a.memory = cli.Bytes(pipeline.DefaultMemory)
-	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
+	fs.Var(&a.memory, "memory", "memory budget for the slabs of a NIfTI or DICOM series, bytes or with K, M, G (default 1G); larger series are read and fitted a range of slices at a time")
 	if m, ok := fit.Lookup(modelArg(args)); ok {
 		// fit --model M --help: the model first, then the options.
 		setHelp(fs, func() {
@@ -181,9 +181,9 @@ func runFit(ctx context.Context, args []string, e *env) error {
 	return fitSeries(ctx, c, a.quiet, e)
 }
 
-// inMemoryNIfTI makes fit load NIfTI series whole, as DICOM series are
-// (tests compare the two ways).
-var inMemoryNIfTI = false
+// inMemory makes fit load NIfTI and DICOM series whole instead of slab by
+// slab (tests compare the two ways).
+var inMemory = false
 
 // fitSeries runs the pipeline for tauvox fit: the output check,
 // the progress bar and the summary lines.
@@ -192,7 +192,7 @@ func fitSeries(ctx context.Context, c *pipeline.Config, quiet bool, e *env) erro
 		return err
 	}
 	c.Version = version()
-	c.Whole = c.Whole || inMemoryNIfTI
+	c.Whole = c.Whole || inMemory
 	var bar *progressbar.ProgressBar
 	var progress pipeline.Progress
 	if e.terminal && !quiet {

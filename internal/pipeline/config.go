@@ -48,8 +48,8 @@ type Config struct {
 	NoMask    bool
 	// Workers is the number of fit goroutines; 0 means one per CPU.
 	Workers int
-	// Memory is the slab budget in bytes for NIfTI series; 0 means
-	// DefaultMemory.
+	// Memory is the slab budget in bytes for series read from files
+	// (NIfTI or DICOM); 0 means DefaultMemory.
 	Memory int64
 	// Out is the output folder; Force replaces an existing one that holds
 	// only what tauvox wrote there, ForceAll (the user named the folder)
@@ -84,7 +84,7 @@ type Summary struct {
 	Counts        [fit.NumStatus]int // voxels per status
 	Workers       int
 	Slabs         int  // 1 for a series fitted in one go
-	BySlab        bool // read slab by slab (a NIfTI file), however many slabs
+	BySlab        bool // read slab by slab (NIfTI or DICOM files), however many slabs
 	Fit, Write    time.Duration
 	Sigma         float64 // the noise SD used (Rician), 0 otherwise
 	// Notes says what was done to the leftovers of an earlier run of the

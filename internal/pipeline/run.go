@@ -13,8 +13,9 @@ import (
 
 // Run fits the series of c and writes its maps, previews and
 // provenance.json into c.Out (staged: nothing is left behind on error).
-// A NIfTI file is read slab by slab within c.Memory unless c.Whole; any
-// other series is loaded whole. progress, when not nil, is told how many
+// A series from files (NIfTI, or a DICOM series or protocol) is read slab
+// by slab within c.Memory unless c.Whole; an image already loaded is
+// fitted whole. progress, when not nil, is told how many
 // voxels are done.
 func Run(ctx context.Context, c *Config, progress Progress) (*Summary, error) {
 	if err := c.check(); err != nil {
@@ -22,7 +23,7 @@ func Run(ctx context.Context, c *Config, progress Progress) (*Summary, error) {
 	}
 	c.Overrides.Notices = nil
 	if c.Image == nil && !c.Whole {
-		if st, err := os.Stat(c.Series); err == nil && !st.IsDir() && series.IsNIfTI(c.Series) {
+		if _, err := os.Stat(c.Series); err == nil {
 			return runSlabs(ctx, c, progress)
 		}
 	}

@@ -3,6 +3,7 @@ package pipeline
 import (
 	"context"
 	"fmt"
+	"os"
 	"runtime"
 	"runtime/debug"
 	"time"
@@ -14,54 +15,80 @@ import (
 	"github.com/tauvox/tauvox/volume"
 )
 
-// slabSource is a NIfTI series opened for reading by slabs, with its
-// protocol.
+// slabSource is a series opened for reading by slabs (a NIfTI file or a
+// DICOM series or protocol), with its protocol.
 type slabSource struct {
-	r      *nifti.SlabReader
+	read   func(dst []float32, z0, z1 int, vols []int) error
+	close  func() error
+	nii    *nifti.SlabReader // the NIfTI reader, nil for DICOM
+	dims   [4]int
+	affine volume.Affine
 	vols   []int // volumes fitted (after --skip-echoes), in file order
 	acq    []volume.Acquisition
 	src    volume.Source
 	inputs []series.Input
 }
 
-// openSlabSource opens a NIfTI series: the header, the sidecar beside it
-// and the command-line lists, as series.Load does, without the samples.
+// openSlabSource opens the series of c without reading its samples: a
+// NIfTI file (the header, the sidecar beside it and the command-line
+// lists, as series.Load does), or a DICOM folder or file (scanned once;
+// the series or protocol series.Load would choose).
 func openSlabSource(c *Config, tmpDir string) (*slabSource, error) {
-	if c.Overrides.Series != "" {
-		return nil, fmt.Errorf("%s: --series applies to DICOM folders, not to a NIfTI file", c.Series)
+	s := &slabSource{}
+	ov := &series.Overrides{TE: c.Overrides.TE, TI: c.Overrides.TI, TR: c.Overrides.TR, FA: c.Overrides.FA}
+	if st, err := os.Stat(c.Series); err == nil && (st.IsDir() || !series.IsNIfTI(c.Series)) {
+		o := c.Overrides
+		if info, ok := fit.Lookup(c.Spec.Model); ok && o.Needs == "" {
+			o.Needs = info.Needs // a folder with several protocols: the one this model fits
+		}
+		r, inputs, err := series.OpenDICOM(c.Series, &o)
+		if err != nil {
+			return nil, err
+		}
+		r.Workers = c.Workers
+		s.read, s.close = r.ReadSlab, func() error { return nil }
+		s.dims, s.affine, s.src, s.inputs, s.acq = r.Dims(), r.Affine(), r.Source(), inputs, r.Acq()
+		if err := series.Apply(s.acq, ov, c.Series); err != nil {
+			return nil, err
+		}
+	} else {
+		if c.Overrides.Series != "" {
+			return nil, fmt.Errorf("%s: --series applies to DICOM folders, not to a NIfTI file", c.Series)
+		}
+		r, err := nifti.OpenSlabs(c.Series, &nifti.SlabOptions{TempDir: tmpDir})
+		if err != nil {
+			return nil, err
+		}
+		s.nii, s.read, s.close = r, r.ReadSlab, r.Close
+		s.dims, s.affine, s.src = r.Dims(), r.Affine(), r.Source()
+		if s.acq, s.inputs, err = series.NIfTIProtocol(c.Series, s.dims[3], &s.src, ov); err != nil {
+			r.Close()
+			return nil, err
+		}
 	}
-	r, err := nifti.OpenSlabs(c.Series, &nifti.SlabOptions{TempDir: tmpDir})
-	if err != nil {
-		return nil, err
-	}
-	s := &slabSource{r: r, src: r.Source()}
-	nt := r.Dims()[3]
+	c.Overrides.Notices = append(c.Overrides.Notices, ov.Notices...)
+	nt := s.dims[3]
 	fail := func(err error) (*slabSource, error) {
-		r.Close()
+		s.close()
 		return nil, err
-	}
-	o := series.Overrides{TE: c.Overrides.TE, TI: c.Overrides.TI, TR: c.Overrides.TR, FA: c.Overrides.FA}
-	s.acq, s.inputs, err = series.NIfTIProtocol(c.Series, nt, &s.src, &o)
-	c.Overrides.Notices = append(c.Overrides.Notices, o.Notices...)
-	if err != nil {
-		return fail(err)
 	}
 	if nt < 2 {
-		return fail(fmt.Errorf("%s: holds %d volume; a relaxation fit needs a 4-D series", c.Series, nt))
+		return fail(c.errorf("holds %d volume; a relaxation fit needs a 4-D series", nt))
 	}
 	s.vols = make([]int, nt)
 	for i := range s.vols {
 		s.vols[i] = i
 	}
 	if c.SkipEchoes != 0 {
+		var err error
 		if s.vols, s.acq, err = series.KeepVolumes(s.acq, c.SkipEchoes); err != nil {
-			return fail(fmt.Errorf("%s: --skip-echoes: %v", c.Series, err))
+			return fail(c.errorf("--skip-echoes: %v", err))
 		}
 	}
 	return s, nil
 }
 
-// runSlabs fits a NIfTI series slab by slab within the --memory budget:
+// runSlabs fits a series from files (NIfTI or DICOM) slab by slab within the --memory budget:
 // a first pass over the slabs finds the automatic threshold (and the noise
 // level for --noise rician without --sigma) when the series holds more
 // than one slab; the second reads, fits and appends each slab to the maps.
@@ -87,12 +114,12 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		return nil, err
 	}
 	notes := append(append([]string(nil), c.Overrides.Notices...), st.Notes()...)
-	defer src.r.Close()
+	defer src.close()
 	if _, err := model.NewFitter(src.acq); err != nil {
 		return nil, c.protocolError(model, err)
 	}
-	dims := src.r.Dims()
-	affine := src.r.Affine()
+	dims := src.dims
+	affine := src.affine
 	nx, ny, nz := dims[0], dims[1], dims[2]
 	plane := nx * ny
 	nvol := len(src.vols)
@@ -121,6 +148,12 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		per += int64(plane) * 8
 	}
 	plan := fit.PlanSlabs(nz, per, c.memory())
+	// With more than one slab, the next slab is read while one is fitted:
+	// two sample buffers, so each slice costs its samples twice.
+	prefetch := len(plan.Slabs) > 2
+	if prefetch {
+		plan = fit.PlanSlabs(nz, per+4*int64(plane)*int64(nvol), c.memory())
+	}
 	// The slab buffers are allocated once and reused; a soft limit on the
 	// heap keeps the collector from letting the little garbage of each
 	// slab (worker buffers, compressor state) double the heap before it
@@ -153,13 +186,37 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		}
 	}
 	sums := mapset.StartChecksums(inputs) // while the series is read
-	buf := make([]float32, plan.Slices*plane*nvol)
+	bufs := [][]float32{make([]float32, plan.Slices*plane*nvol)}
+	if prefetch {
+		bufs = append(bufs, make([]float32, plan.Slices*plane*nvol))
+	}
+	// slab reads slab i into buffer i mod 2 (with prefetch), so that slab
+	// i+1 can be read while slab i is fitted.
 	slab := func(i int) (*volume.Image, error) {
 		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
 		n := (z1 - z0) * plane
+		buf := bufs[i%len(bufs)]
 		im := &volume.Image{Dims: [4]int{nx, ny, z1 - z0, nvol}, Data: buf[:n*nvol], Affine: affine, Acq: src.acq, Source: src.src}
-		return im, src.r.ReadSlab(im.Data, z0, z1, src.vols)
+		return im, src.read(im.Data, z0, z1, src.vols)
 	}
+	type fetched struct {
+		im  *volume.Image
+		err error
+	}
+	var pending chan fetched // the slab being read ahead
+	fetch := func(i int) chan fetched {
+		ch := make(chan fetched, 1)
+		go func() {
+			im, err := slab(i)
+			ch <- fetched{im, err}
+		}()
+		return ch
+	}
+	defer func() {
+		if pending != nil {
+			<-pending // no read into a buffer after the run returns
+		}
+	}()
 	tLoad := time.Since(t0)
 
 	// Pass 1: threshold and noise level over the whole series.
@@ -175,17 +232,28 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		var peaks []float32
 		if auto {
 			peaks = fit.ResetPeaks(make([]float32, plane*nz))
-			src.r.VolumeDone = func(_ int, vol []float32) { fit.MaxInto(peaks, vol) }
 		}
-		// A .nii.gz read whole may decode its second half on another CPU,
-		// within what the slab plan leaves of the memory budget.
-		src.r.SplitMemory = max(c.memory()-per*int64(nz), 0)
+		if src.nii != nil {
+			if auto {
+				src.nii.VolumeDone = func(_ int, vol []float32) { fit.MaxInto(peaks, vol) }
+			}
+			// A .nii.gz read whole may decode its second half on another
+			// CPU, within what the slab plan leaves of the memory budget.
+			src.nii.SplitMemory = max(c.memory()-per*int64(nz), 0)
+		}
 		first, err = slab(0)
-		src.r.VolumeDone, src.r.SplitMemory = nil, 0
+		if src.nii != nil {
+			src.nii.VolumeDone, src.nii.SplitMemory = nil, 0
+		}
 		if err != nil {
 			return nil, err
 		}
 		if auto {
+			if src.nii == nil {
+				for t := range nvol {
+					fit.MaxInto(peaks, first.Volume(t))
+				}
+			}
 			am = fit.PeaksMask(peaks, nvol)
 			thr = am.Threshold
 		}
@@ -268,7 +336,22 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		z0, z1 := plan.Slabs[i], plan.Slabs[i+1]
 		tr := time.Now()
 		im := first
-		if im == nil {
+		switch {
+		case im != nil:
+		case prefetch:
+			if pending == nil {
+				pending = fetch(i)
+			}
+			r := <-pending
+			pending = nil
+			if r.err != nil {
+				return nil, r.err
+			}
+			im = r.im
+			if i+1 < nslab {
+				pending = fetch(i + 1) // read ahead while this slab is fitted
+			}
+		default:
 			if im, err = slab(i); err != nil {
 				return nil, err
 			}
@@ -318,7 +401,10 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	}
 	// Temporary uncompressed copies live in the stage: remove them before
 	// the folder is committed.
-	for _, r := range []*nifti.SlabReader{src.r, auxReader(mask), auxReader(b1)} {
+	if err = src.close(); err != nil {
+		return nil, err
+	}
+	for _, r := range []*nifti.SlabReader{auxReader(mask), auxReader(b1)} {
 		if r != nil {
 			if err = r.Close(); err != nil {
 				return nil, err
@@ -328,7 +414,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	if nslab > 1 {
 		// The slab buffers (up to --memory) are not needed any more: let
 		// the previews, which read the maps back, reuse their memory.
-		buf, maps = nil, nil
+		bufs, maps = nil, nil
 		runtime.GC()
 	}
 	tc := time.Now()

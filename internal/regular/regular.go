@@ -47,24 +47,31 @@ func Kind(m fs.FileMode) string {
 // Open opens path for reading if it is a regular file (following
 // symbolic links), without blocking on a FIFO or device.
 func Open(path string) (*os.File, error) {
+	f, _, err := OpenInfo(path)
+	return f, err
+}
+
+// OpenInfo is Open that also returns the file's information (read once:
+// callers that need the size need no second stat).
+func OpenInfo(path string) (*os.File, os.FileInfo, error) {
 	f, err := os.OpenFile(path, os.O_RDONLY|nonBlock, 0)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	st, err := f.Stat()
 	if err != nil {
 		f.Close()
-		return nil, err
+		return nil, nil, err
 	}
 	if !st.Mode().IsRegular() {
 		f.Close()
-		return nil, &NotRegularError{Path: path, Kind: Kind(st.Mode())}
+		return nil, nil, &NotRegularError{Path: path, Kind: Kind(st.Mode())}
 	}
 	if err := clearNonBlock(f); err != nil {
 		f.Close()
-		return nil, err
+		return nil, nil, err
 	}
-	return f, nil
+	return f, st, nil
 }
 
 // ReadFile is os.ReadFile for regular files only.

@@ -79,3 +79,33 @@ func BenchmarkLoad2000(b *testing.B) {
 		_ = im
 	}
 }
+
+// BenchmarkScan20000 scans the headers of 20,000 files (1250 slices × 16
+// echoes, 64×64, written by WriteSeries) on every CPU, warm cache (the
+// first scan before the timer reads them into the page cache). The folder
+// is generated into TAUVOX_SCAN_DIR when that is set (and kept, so that
+// repeated runs skip the 20,000 writes), else into a temporary folder.
+func BenchmarkScan20000(b *testing.B) {
+	dir := os.Getenv("TAUVOX_SCAN_DIR")
+	if dir == "" {
+		dir = filepath.Join(b.TempDir(), "series")
+	}
+	if files, _ := os.ReadDir(dir); len(files) != 20000 {
+		os.RemoveAll(dir)
+		benchSeries(b, dir, 1250, 16)
+	}
+	if _, err := Scan([]string{dir}, nil); err != nil { // warm the cache
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		c, err := Scan([]string{dir}, nil)
+		if err != nil || len(c.Series) != 1 || c.Series[0].Files != 20000 {
+			b.Fatal(err, c)
+		}
+		sinkCatalog = c
+	}
+	b.StopTimer()
+	b.ReportMetric(b.Elapsed().Seconds()/float64(b.N), "s/scan")
+}

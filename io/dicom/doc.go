@@ -10,7 +10,9 @@
 // to the pixel data element (7FE0,0010/0008/0009), read in growing chunks
 // (inflated chunk by chunk for the deflated transfer syntax), so a large
 // export scans fast and the memory held is that of the headers, not the
-// pixels. Empty, truncated and malformed files become Problems with the
+// pixels. Headers are read on every CPU (runtime.GOMAXPROCS goroutines)
+// and gathered in file order, so the catalog does not depend on their
+// number. Empty, truncated and malformed files become Problems with the
 // path and reason, and the scan goes on.
 //
 // Images are grouped by SeriesInstanceUID, and a series that mixes
@@ -62,7 +64,14 @@
 //
 // # Pixel data
 //
-// LoadSeries reads only the files of one series. Samples are converted to
+// LoadSeries reads only the files of one series; OpenSeries and
+// OpenProtocol give a Reader that reads a series or protocol whole (Load)
+// or a range of slices of chosen volumes at a time (ReadSlab, for fitting
+// within a memory budget). Files are read on several goroutines
+// (Reader.Workers), each file with one positioned read of the frames a
+// slab needs, the samples converted straight into the destination; each
+// image is converted by itself, so the samples are the same for any
+// number of goroutines and any slab. Samples are converted to
 // float32 as RescaleSlope·stored + RescaleIntercept per file, or per frame
 // from the Pixel Value Transformation macro of enhanced files; 8, 16 and
 // 32-bit integers (signed or not, with BitsStored < BitsAllocated masked

@@ -1,6 +1,7 @@
 package dicom
 
 import (
+	"bufio"
 	"bytes"
 	"encoding/binary"
 	"fmt"
@@ -95,6 +96,13 @@ type frameInfo struct {
 // extracts the attributes tauvox uses. The library's panics on odd input
 // become FormatErrors.
 func parseHead(rf *rawFile, keepIDs bool) (fi *fileInfo, err error) {
+	return parseHeadWith(rf, keepIDs, nil)
+}
+
+// parseHeadWith is parseHead with br (nil: a new one) as the library's
+// buffered reader: the library keeps a *bufio.Reader of 4 KiB or more as
+// it is, so one per goroutine saves an allocation per file.
+func parseHeadWith(rf *rawFile, keepIDs bool, br *bufio.Reader) (fi *fileInfo, err error) {
 	meta := metaExplicit
 	switch {
 	case rf.syn.implicit:
@@ -108,7 +116,12 @@ func parseHead(rf *rawFile, keepIDs bool) (fi *fileInfo, err error) {
 		}
 	}()
 	n := int64(len(meta) + len(rf.head))
-	in := io.MultiReader(bytes.NewReader(meta), bytes.NewReader(rf.head))
+	var in io.Reader = io.MultiReader(bytes.NewReader(meta), bytes.NewReader(rf.head))
+	if br != nil {
+		br.Reset(in)
+		defer br.Reset(nil)
+		in = br
+	}
 	ds, err := lib.Parse(in, n, nil, lib.SkipPixelData(), lib.AllowUnknownSpecificCharacterSet())
 	if err != nil {
 		return nil, formatErr(rf.path, "header", err)

@@ -31,51 +31,11 @@ func LoadSeries(s *Series) (*volume.Image, error) {
 	if s == nil {
 		panic("dicom: LoadSeries of a nil series")
 	}
-	if s.err != nil {
-		return nil, s.err
+	r, err := OpenSeries(s)
+	if err != nil {
+		return nil, err
 	}
-	lay := s.lay
-	dims := [4]int{lay.nx, lay.ny, lay.nz, lay.nt}
-	count, err := volume.Count(dims)
-	if err != nil || int64(count) > s.opt.maxBytes()/4 {
-		return nil, unsupportedErr(s.Source.Path, fmt.Sprintf("series %s: %d×%d×%d×%d samples exceed the memory limit of %d bytes",
-			s.ID, dims[0], dims[1], dims[2], dims[3], s.opt.maxBytes()), ErrTooLarge)
-	}
-	im := &volume.Image{Dims: dims, Data: make([]float32, count), Affine: lay.affine, Source: s.Source}
-	im.Source.Pixels, im.Source.Warnings = s.pixelNotes()
-	im.Acq = append([]volume.Acquisition(nil), lay.acq...)
-
-	// Cells of each file, so that each file is read once.
-	type cell struct {
-		fr  *frameInfo
-		off int // sample offset in im.Data
-	}
-	byFile := map[*fileInfo][]cell{}
-	var order []*fileInfo
-	plane := lay.nx * lay.ny
-	for i, fr := range lay.cells {
-		if byFile[fr.file] == nil {
-			order = append(order, fr.file)
-		}
-		byFile[fr.file] = append(byFile[fr.file], cell{fr, i * plane})
-	}
-	var buf []byte
-	for _, f := range order {
-		if f.raw.syn.encapsulated {
-			buf, err = readCompressed(f, s.opt.maxBytes())
-		} else {
-			buf, err = readPixels(f, buf, s.opt.maxBytes())
-		}
-		if err != nil {
-			return nil, err
-		}
-		bps := bytesPerSample(f)
-		frameBytes := plane * bps
-		for _, c := range byFile[f] {
-			decode(im.Data[c.off:c.off+plane], buf[c.fr.index*frameBytes:(c.fr.index+1)*frameBytes], f, c.fr)
-		}
-	}
-	return im, nil
+	return r.Load()
 }
 
 func bytesPerSample(f *fileInfo) int {
@@ -86,6 +46,17 @@ func bytesPerSample(f *fileInfo) int {
 		return 8
 	}
 	return f.bitsAlloc / 8
+}
+
+// inflatedFrom returns the inflated data set of the deflated file rf
+// (PS3.5 §A.5) positioned at the value of its pixel data element.
+func inflatedFrom(file io.ReaderAt, rf *rawFile) (io.ReadCloser, error) {
+	zr := flate.NewReader(io.NewSectionReader(file, rf.dataStart, rf.size-rf.dataStart))
+	if _, err := io.CopyN(io.Discard, zr, rf.pix.value); err != nil {
+		zr.Close()
+		return nil, formatErr(rf.path, "deflated data set ends before the pixel data", err)
+	}
+	return zr, nil
 }
 
 // readPixels reads the pixel data of f into buf (grown when short) and
@@ -140,19 +111,14 @@ func readPixels(f *fileInfo, buf []byte, maxBytes int64) ([]byte, error) {
 
 // decode converts one frame of stored samples to rescaled float32.
 func decode(dst []float32, src []byte, f *fileInfo, fr *frameInfo) {
-	slope, icpt := fr.slope, fr.intercept
-	if !math.IsNaN(fr.rwvSlope) {
-		slope, icpt = fr.rwvSlope, fr.rwvIntercept // real-world values replace the rescale (PS3.3 C.7.6.16.2.11)
-	}
-	if math.IsNaN(slope) {
-		slope = 1 // absent: identity, PS3.3 C.11.1.1.2 (a present invalid slope is refused by the header reader)
-	}
-	if math.IsNaN(icpt) {
-		icpt = 0
-	}
+	slope, icpt := rescale(fr)
 	bo := f.raw.syn.bo
 	if bo == nil {
 		bo = binary.LittleEndian
+	}
+	if f.raw.pix.tag == 0x7FE00010 && f.bitsAlloc == 16 && f.bitsStored == 16 && bo == binary.LittleEndian {
+		decodeLE16(dst, src, f.pixelRep == 1, slope, icpt)
+		return
 	}
 	switch f.raw.pix.tag {
 	case 0x7FE00008:

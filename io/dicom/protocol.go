@@ -307,96 +307,48 @@ func describeJoined(list []*Series) string {
 // series; the others agree with it within the position tolerance (Scan
 // and Join checked it).
 func LoadProtocol(p *Protocol) (*volume.Image, error) {
-	if p.err != nil {
-		return nil, p.err
+	r, err := OpenProtocol(p)
+	if err != nil {
+		return nil, err
 	}
-	total := 0
-	for _, s := range p.members {
-		total += s.lay.nx * s.lay.ny * s.lay.nz * s.lay.nt
+	return r.Load()
+}
+
+// pixelNotes says how the pixel data of the protocol's series are stored
+// and scaled, and warns as Series.pixelNotes does; scaling is judged over
+// the whole protocol (a private scale that differs between its series is
+// warned about).
+func (p *Protocol) pixelNotes() (string, []string) {
+	var frames []*frameInfo
+	for _, m := range p.members {
+		frames = append(frames, m.frames...)
 	}
-	if lim := p.members[0].opt.maxBytes(); int64(total) > lim/4 {
-		return nil, unsupportedErr(p.members[0].Source.Path, fmt.Sprintf("protocol %s: %d samples exceed the memory limit of %d bytes", p.ID, total, lim), ErrTooLarge)
+	// Scaling is judged over the whole protocol: a private scale
+	// that differs between its series is warned about.
+	how, _ := p.members[0].pixelNotes()
+	if i := strings.Index(how, "; scaling: "); i >= 0 {
+		how = how[:i]
 	}
-	var out *volume.Image
-	for _, s := range p.members {
-		im, err := LoadSeries(s)
-		if err != nil {
-			return nil, err
-		}
-		if out == nil {
-			out = im
-			out.Source.Description = p.Description
-			var frames []*frameInfo
-			for _, m := range p.members {
-				frames = append(frames, m.frames...)
+	scale, warns := scaling(frames)
+	pixels := how + "; " + scale
+	seen := map[string]bool{}
+	var all []string
+	for _, m := range p.members {
+		_, w := m.pixelNotes()
+		for _, x := range append(w, warns...) {
+			if !seen[x] && !strings.HasPrefix(x, "the private scale slope") && !strings.HasPrefix(x, "Real World Value Mapping is present") {
+				seen[x] = true
+				all = append(all, x)
 			}
-			// Scaling is judged over the whole protocol: a private scale
-			// that differs between its series is warned about.
-			how, _ := p.members[0].pixelNotes()
-			if i := strings.Index(how, "; scaling: "); i >= 0 {
-				how = how[:i]
-			}
-			scale, warns := scaling(frames)
-			out.Source.Pixels = how + "; " + scale
-			seen := map[string]bool{}
-			var all []string
-			for _, m := range p.members {
-				_, w := m.pixelNotes()
-				for _, x := range append(w, warns...) {
-					if !seen[x] && !strings.HasPrefix(x, "the private scale slope") && !strings.HasPrefix(x, "Real World Value Mapping is present") {
-						seen[x] = true
-						all = append(all, x)
-					}
-				}
-			}
-			for _, x := range warns {
-				if !seen[x] {
-					seen[x] = true
-					all = append(all, x)
-				}
-			}
-			out.Source.Warnings = all
-			continue
-		}
-		if im.Dims[0] != out.Dims[0] || im.Dims[1] != out.Dims[1] || im.Dims[2] != out.Dims[2] {
-			return nil, &SeriesError{Path: s.Source.Path, Series: p.ID, Err: ErrIncomplete,
-				Reason: fmt.Sprintf("series %s has grid %v, not %v", s.ID, im.Dims[:3], out.Dims[:3])}
-		}
-		out.Data = append(out.Data, im.Data...)
-		out.Acq = append(out.Acq, im.Acq...)
-		out.Dims[3] += im.Dims[3]
-	}
-	// Members are sorted by their first volume; sort the volumes too
-	// (members with several volumes may interleave).
-	by := params[0]
-	for _, pr := range params {
-		if pr.name == p.Varying {
-			by = pr
 		}
 	}
-	nt := out.Dims[3]
-	order := make([]int, nt)
-	for i := range order {
-		order[i] = i
-	}
-	sort.SliceStable(order, func(a, b int) bool { return by.get(out.Acq[order[a]]) < by.get(out.Acq[order[b]]) })
-	sortedOK := true
-	for i, o := range order {
-		if o != i {
-			sortedOK = false
+	for _, x := range warns {
+		if !seen[x] {
+			seen[x] = true
+			all = append(all, x)
 		}
 	}
-	if !sortedOK {
-		n := out.Voxels()
-		data := make([]float32, len(out.Data))
-		acq := make([]volume.Acquisition, nt)
-		for t, o := range order {
-			copy(data[t*n:(t+1)*n], out.Data[o*n:(o+1)*n])
-			acq[t] = out.Acq[o]
-		}
-		out.Data, out.Acq = data, acq
-	}
-	return out, nil
+	return pixels, all
 }
 
 // LookupProtocol returns the protocol with the given ID.

@@ -1,6 +1,7 @@
 package dicom
 
 import (
+	"bufio"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -10,9 +11,12 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
+	"sync/atomic"
 
 	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/internal/regular"
@@ -183,25 +187,50 @@ func Scan(paths []string, opt *ScanOptions) (*Catalog, error) {
 	}
 	sort.Strings(files)
 
-	var infos []*fileInfo
-	for _, path := range files {
-		fi, err := c.readFile(path)
-		if err != nil {
-			if errors.Is(err, errNotDICOM) {
-				c.Skipped++
-				continue
+	// Headers are read on every CPU; the results are gathered in file
+	// order, so the catalog does not depend on the number of goroutines.
+	type result struct {
+		fi      *fileInfo
+		ignored bool
+		err     error
+	}
+	res := make([]result, len(files))
+	workers := max(min(runtime.GOMAXPROCS(0), len(files)), 1)
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			sc := &scratch{head: make([]byte, firstChunk), br: bufio.NewReaderSize(nil, 4096)}
+			for {
+				i := int(next.Add(1) - 1)
+				if i >= len(files) {
+					return
+				}
+				r := &res[i]
+				r.fi, r.ignored, r.err = c.readFile(files[i], sc)
 			}
-			if errors.Is(err, regular.ErrNotRegular) {
-				c.Skipped++
-				c.problem(path, err) // a FIFO, socket or device: noted, not read
-				continue
-			}
+		}()
+	}
+	wg.Wait()
+	infos := make([]*fileInfo, 0, len(files))
+	for i, r := range res {
+		path := files[i]
+		switch {
+		case r.err == nil && r.ignored:
+			c.Ignored++
+		case r.err == nil:
+			c.Files++
+			infos = append(infos, r.fi)
+		case errors.Is(r.err, errNotDICOM):
+			c.Skipped++
+		case errors.Is(r.err, regular.ErrNotRegular):
+			c.Skipped++
+			c.problem(path, r.err) // a FIFO, socket or device: noted, not read
+		default:
 			c.Unreadable++
-			c.problem(path, err)
-			continue
-		}
-		if fi != nil {
-			infos = append(infos, fi)
+			c.problem(path, r.err)
 		}
 	}
 	c.group(infos)
@@ -212,32 +241,40 @@ func (c *Catalog) problem(path string, err error) {
 	c.Problems = append(c.Problems, Problem{Path: path, Err: err})
 }
 
-// readFile reads one header; it returns nil, nil for a file left out.
-func (c *Catalog) readFile(path string) (*fileInfo, error) {
-	rf, err := readHead(path, c.opt.maxHead())
+// scratch is what one goroutine of Scan reuses from file to file: the
+// first chunk of each file (the head is dropped once parsed; the file
+// info keeps only values copied out of it) and the library's buffered
+// reader.
+type scratch struct {
+	head []byte
+	br   *bufio.Reader
+}
+
+// readFile reads one header; ignored is true for a file left out
+// (localizers, derived images, objects without pixel data). It only reads
+// c's options, so that files can be read at once.
+func (c *Catalog) readFile(path string, sc *scratch) (fi *fileInfo, ignored bool, err error) {
+	rf, err := readHeadInto(path, c.opt.maxHead(), sc.head)
 	if err != nil {
-		return nil, err
+		return nil, false, err
 	}
-	fi, err := parseHead(rf, c.opt.KeepIdentifiers)
+	fi, err = parseHeadWith(rf, c.opt.KeepIdentifiers, sc.br)
 	rf.head = nil // keep only what the grouping needs
 	if err != nil {
-		return nil, err
+		return nil, false, err
 	}
 	if !rf.pix.found {
-		c.Ignored++ // a DICOM object without pixel data (report, presentation state, ...)
-		return nil, nil
+		return nil, true, nil // a DICOM object without pixel data (report, presentation state, ...)
 	}
 	for i, v := range fi.imageType {
 		if v == "LOCALIZER" && !c.opt.Localizers || i == 0 && v == "DERIVED" && !c.opt.Derived {
-			c.Ignored++
-			return nil, nil
+			return nil, true, nil
 		}
 	}
 	if fi.seriesUID == "" {
-		return nil, formatErr(path, "image without SeriesInstanceUID (0020,000E)", nil)
+		return nil, false, formatErr(path, "image without SeriesInstanceUID (0020,000E)", nil)
 	}
-	c.Files++
-	return fi, nil
+	return fi, false, nil
 }
 
 // splitKey is what must agree inside one series: orientation, matrix and

@@ -98,7 +98,14 @@ type rawFile struct {
 // element length against the bytes that are there before anything is
 // allocated for it. maxHead caps the bytes read.
 func readHead(path string, maxHead int64) (*rawFile, error) {
-	f, err := regular.Open(path)
+	return readHeadInto(path, maxHead, nil)
+}
+
+// readHeadInto is readHead with scratch for the first chunk of the file
+// when it is large enough (the file's head then shares it: the caller
+// must be done with it before reusing scratch).
+func readHeadInto(path string, maxHead int64, scratch []byte) (*rawFile, error) {
+	f, st, err := regular.OpenInfo(path)
 	if err != nil {
 		if errors.Is(err, regular.ErrNotRegular) {
 			return nil, err // skipped with a note by the scan, never opened blocking
@@ -106,24 +113,22 @@ func readHead(path string, maxHead int64) (*rawFile, error) {
 		return nil, &fileError{path, "open", err}
 	}
 	defer f.Close()
-	st, err := f.Stat()
-	if err != nil {
-		return nil, &fileError{path, "stat", err}
-	}
-	if !st.Mode().IsRegular() {
-		return nil, errNotDICOM
-	}
-	return readHeadFrom(f, st.Size(), path, maxHead)
+	return readHeadFrom(f, st.Size(), path, maxHead, scratch)
 }
 
 // readHeadFrom is readHead for the size bytes of f; path is used in
 // messages.
-func readHeadFrom(f io.ReaderAt, size int64, path string, maxHead int64) (*rawFile, error) {
+func readHeadFrom(f io.ReaderAt, size int64, path string, maxHead int64, scratch []byte) (*rawFile, error) {
 	rf := &rawFile{path: path, size: size}
 	if rf.size == 0 {
 		return nil, formatErr(path, "file is empty (0 bytes)", nil)
 	}
-	buf := make([]byte, min(rf.size, firstChunk))
+	var buf []byte
+	if n := min(rf.size, firstChunk); int64(cap(scratch)) >= n {
+		buf = scratch[:n]
+	} else {
+		buf = make([]byte, n)
+	}
 	if _, err := io.ReadFull(io.NewSectionReader(f, 0, rf.size), buf); err != nil {
 		return nil, &fileError{path, "read", err}
 	}
@@ -511,8 +516,10 @@ func (w *walker) value(t tag.Tag, vr string, vl uint32, pos, end int64, depth in
 	if end >= 0 && pos+n > end {
 		return 0, formatErr(w.path, fmt.Sprintf("element %s at byte %d declares %d bytes but its item ends at byte %d", tagString(t), w.base+pos, n, w.base+end), nil)
 	}
-	if err := w.need(pos, n, "element "+tagString(t)); err != nil {
-		return 0, err
+	if pos+n > int64(len(w.b)) { // the message is built only when needed
+		if err := w.need(pos, n, "element "+tagString(t)); err != nil {
+			return 0, err
+		}
 	}
 	if vr == "SQ" {
 		return w.sequence(pos, pos+n, depth+1)

@@ -133,6 +133,23 @@ func NIfTIProtocol(path string, nt int, src *volume.Source, o *Overrides) ([]vol
 
 // loadDICOM scans a DICOM folder or file and loads one series.
 func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
+	r, inputs, err := OpenDICOM(path, o)
+	if err != nil {
+		return nil, nil, err
+	}
+	im, err := r.Load()
+	if err != nil {
+		return nil, nil, err
+	}
+	return im, inputs, nil
+}
+
+// OpenDICOM scans a DICOM folder or file once and opens the series or
+// protocol that Load would read (o.Series, or the one candidate; o.Needs
+// chooses among several), for a caller that reads its samples itself (in
+// slabs). The acquisition parameters are the headers' (o's lists are not
+// applied). It returns the reader and the files it reads.
+func OpenDICOM(path string, o *Overrides) (*dicom.Reader, []Input, error) {
 	var opt dicom.ScanOptions
 	if o != nil {
 		opt.KeepIdentifiers = o.KeepIdentifiers
@@ -232,13 +249,13 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 			return nil, nil, fmt.Errorf("%s: no DICOM series found (%d other files skipped)", path, cat.Skipped)
 		}
 	}
-	var im *volume.Image
+	var r *dicom.Reader
 	var paths []string
 	if prot != nil {
-		im, err = dicom.LoadProtocol(prot)
+		r, err = dicom.OpenProtocol(prot)
 		paths = prot.Paths()
 	} else {
-		im, err = dicom.LoadSeries(s)
+		r, err = dicom.OpenSeries(s)
 		paths = s.Paths()
 	}
 	if err != nil {
@@ -248,7 +265,14 @@ func loadDICOM(path string, o *Overrides) (*volume.Image, []Input, error) {
 	for _, p := range paths {
 		inputs = append(inputs, Input{Path: p, Role: "dicom"})
 	}
-	return im, inputs, nil
+	return r, inputs, nil
+}
+
+// Apply replaces the parameters o lists in acq (one value for every
+// volume, or one per volume) of a DICOM series; path names the series in
+// messages.
+func Apply(acq []volume.Acquisition, o *Overrides, path string) error {
+	return applyTo(acq, o, path, "the DICOM headers")
 }
 
 // applyTo replaces the parameters o lists: one value for every volume or

@@ -12,7 +12,13 @@ band of air at the edge), runs `tauvox fit` under /usr/bin/time -v and reads
   * 512x512x280 x 32 echoes (9.4 GB = 8.75 GiB .nii, generated into --dir and removed
     afterwards): peak RSS must stay under 2 GiB with the default --memory.
 
-Debian bookworm: python3-numpy; the time package for /usr/bin/time.
+  * with --dicom-only: a classic DICOM series of 512x512 x 64 slices x 64
+    echoes (4096 files written by pydicom, 2 GiB of 16-bit pixel data, 4
+    GiB as float32 samples): peak RSS must stay under 1.5 GiB with the
+    default --memory.
+
+Debian bookworm: python3-numpy, python3-pydicom; the time package for
+/usr/bin/time.
 Usage: /usr/bin/python3 testdata/gen/memory_bench.py [--tauvox bin/tauvox]
        [--dir /tmp] [--skip-large] [--large-method nlls]
 """
@@ -79,12 +85,55 @@ def peak_rss(cmd):
     return kb * 1024, wall, r.stdout.strip()
 
 
+def write_dicom(folder, nx, ny, nz, te, slope=0.05):
+    """A classic DICOM multi-echo series (one MR Image Storage file per
+    slice and echo, explicit VR little endian, 16-bit samples with
+    RescaleSlope) written with pydicom, file by file: the decays of
+    write_series stored as round(value / slope)."""
+    from pydicom.dataset import FileDataset, FileMetaDataset
+    from pydicom.uid import ExplicitVRLittleEndian, generate_uid
+    os.makedirs(folder)
+    rng = np.random.default_rng(6)
+    plane = nx * ny
+    t2 = (20 + 280 * (np.arange(plane) % 97) / 96).reshape(ny, nx)
+    air = (np.arange(nx) < 8) | (np.arange(nx) >= nx - 8)
+    uids = [generate_uid() for _ in range(3)]
+    for z in range(nz):
+        for t, e in enumerate(te):
+            meta = FileMetaDataset()
+            meta.MediaStorageSOPClassUID = "1.2.840.10008.5.1.4.1.1.4"
+            meta.MediaStorageSOPInstanceUID = generate_uid()
+            meta.TransferSyntaxUID = ExplicitVRLittleEndian
+            ds = FileDataset(None, {}, file_meta=meta, preamble=b"\0" * 128)
+            ds.is_little_endian, ds.is_implicit_VR = True, False
+            ds.SOPClassUID, ds.SOPInstanceUID = meta.MediaStorageSOPClassUID, meta.MediaStorageSOPInstanceUID
+            ds.Modality, ds.SeriesNumber, ds.SeriesDescription = "MR", 3, "memory bench"
+            ds.StudyInstanceUID, ds.SeriesInstanceUID, ds.FrameOfReferenceUID = uids
+            ds.ImageType = ["ORIGINAL", "PRIMARY", "M"]
+            ds.ScanningSequence, ds.EchoTime, ds.EchoNumbers, ds.RepetitionTime = "SE", f"{e:g}", t + 1, "5000"
+            ds.ImageOrientationPatient = ["1", "0", "0", "0", "1", "0"]
+            ds.ImagePositionPatient = ["0", "0", f"{2 * z}"]
+            ds.PixelSpacing, ds.SliceThickness = ["1", "1"], "2"
+            ds.Rows, ds.Columns, ds.SamplesPerPixel, ds.PhotometricInterpretation = ny, nx, 1, "MONOCHROME2"
+            ds.BitsAllocated, ds.BitsStored, ds.HighBit, ds.PixelRepresentation = 16, 16, 15, 0
+            ds.RescaleSlope, ds.RescaleIntercept = f"{slope:g}", "0"
+            a = np.where(air[None, :], 0, 1000 * np.exp(-e / t2)) + 10 * rng.standard_normal((ny, nx))
+            ds.PixelData = np.clip(np.round(np.abs(a) / slope), 0, 65535).astype("<u2").tobytes()
+            ds.save_as(os.path.join(folder, f"z{z:03d}e{t:02d}.dcm"), write_like_original=False)
+
+
+def folder_bytes(p):
+    if os.path.isdir(p):
+        return sum(os.path.getsize(os.path.join(p, f)) for f in os.listdir(p))
+    return os.path.getsize(p)
+
+
 def run(tauvox, series, out, extra):
     shutil.rmtree(out, ignore_errors=True)
     rss, wall, text = peak_rss([tauvox, "fit", series, "--model", "t2", "--out", out] + extra)
     prov = json.load(open(os.path.join(out, "provenance.json")))
     shutil.rmtree(out)
-    return {"rss": rss, "wall_s": wall, "input_bytes": os.path.getsize(series), "stdout": text,
+    return {"rss": rss, "wall_s": wall, "input_bytes": folder_bytes(series), "stdout": text,
             "slabs": prov["settings"]["slabs"], "timings": prov["timings_s"], "status": prov["status_counts"]}
 
 
@@ -100,10 +149,22 @@ def main():
     ap.add_argument("--dir", default=tempfile.gettempdir())
     ap.add_argument("--skip-large", action="store_true")
     ap.add_argument("--large-method", default="nlls")
+    ap.add_argument("--dicom-only", action="store_true",
+                    help="only the DICOM series: 512x512 x 64 slices x 64 echoes, 4096 files, 2 GiB of pixel data")
+    ap.add_argument("--dicom-method", default="loglinear")
     a = ap.parse_args()
     tauvox = os.path.abspath(a.tauvox)
     work = tempfile.mkdtemp(prefix="tauvox-mem-", dir=a.dir)
     try:
+        if a.dicom_only:
+            d = os.path.join(work, "dicom")
+            t0 = time.perf_counter()
+            write_dicom(d, 512, 512, 64, [5.0 * (k + 1) for k in range(64)])
+            print(f"wrote {d}: {len(os.listdir(d))} files, {folder_bytes(d) / 2**30:.2f} GiB in {time.perf_counter() - t0:.0f} s")
+            r = run(tauvox, d, os.path.join(work, "out"), ["--method", a.dicom_method, "--quiet"])
+            show(f"DICOM 512x512x64x64, t2 {a.dicom_method}", r, int(1.5 * 2**30), "1.5 GiB")
+            print(r["stdout"])
+            return
         te16 = [10.0 * (k + 1) for k in range(16)]
         for gz in (False, True):
             p = os.path.join(work, "mid.nii.gz" if gz else "mid.nii")
