@@ -7,12 +7,15 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
 	"time"
 
+	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/io/nifti"
+	"github.com/tauvox/tauvox/roi/phantom"
 	"github.com/tauvox/tauvox/volume"
 )
 
@@ -425,5 +428,110 @@ func TestNoEscapesToTerminal(t *testing.T) {
 		if strings.ContainsAny(stdout+stderr, "\x1b\x07") {
 			t.Errorf("%v: an escape reached the output: %q", args, stdout+stderr)
 		}
+	}
+}
+
+// TestNoInventedNumbers: through the command line, a series of zeros gets
+// no voxel with status ok (was T2 = 81 ms "ok"), with the automatic mask
+// and with --no-mask; a B1 map whose voxels are 0 or −1 gives those voxels
+// status bad-b1 (was fitted as B1 = 1) while the others fit.
+func TestNoInventedNumbers(t *testing.T) {
+	dir := t.TempDir()
+	sim := filepath.Join(dir, "sim")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t2", "--out", sim, "--matrix", "16", "--slices", "1"); code != 0 {
+		t.Fatal(e)
+	}
+	im, err := nifti.Read(filepath.Join(sim, "t2.nii.gz"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range im.Data {
+		im.Data[i] = 0
+	}
+	zero := filepath.Join(dir, "zero.nii.gz")
+	if err := nifti.Write(zero, im, nil); err != nil {
+		t.Fatal(err)
+	}
+	side, _ := os.ReadFile(filepath.Join(sim, "t2.json"))
+	os.WriteFile(filepath.Join(dir, "zero.json"), side, 0o644)
+	for i, extra := range [][]string{nil, {"--no-mask"}} {
+		out := filepath.Join(dir, "zmaps"+strconv.Itoa(i))
+		args := append([]string{"fit", zero, "--model", "t2", "--out", out, "--quiet", "--no-preview"}, extra...)
+		if code, _, e := tauvox(t, args...); code != 0 {
+			t.Fatalf("%v: exit %d: %s", extra, code, e)
+		}
+		st, err := nifti.Read(filepath.Join(out, "status.nii.gz"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		for v, s := range st.Data {
+			if s == float32(fit.OK) {
+				t.Fatalf("%v: voxel %d of a series of zeros has status ok", extra, v)
+			}
+		}
+	}
+
+	// t1-vfa with a B1 map: one voxel 0, one −1, the rest 1.
+	vsim := filepath.Join(dir, "vsim")
+	if code, _, e := tauvox(t, "simulate", "--kind", "t1-vfa", "--out", vsim, "--matrix", "16", "--slices", "1"); code != 0 {
+		t.Fatal(e)
+	}
+	ser, err := nifti.Read(filepath.Join(vsim, "t1-vfa.nii.gz"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	b1 := volume.New(ser.Dims[0], ser.Dims[1], ser.Dims[2], 1)
+	b1.Affine = ser.Affine
+	for i := range b1.Data {
+		b1.Data[i] = 1
+	}
+	c := 8 + 16*8 // a voxel of the phantom's body
+	b1.Data[c], b1.Data[c+1] = 0, -1
+	b1Path := filepath.Join(dir, "b1.nii.gz")
+	if err := nifti.Write(b1Path, b1, nil); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(dir, "vmaps")
+	if code, _, e := tauvox(t, "fit", filepath.Join(vsim, "t1-vfa.nii.gz"), "--model", "t1-vfa", "--b1", b1Path, "--no-mask", "--out", out, "--quiet", "--no-preview"); code != 0 {
+		t.Fatalf("exit %d: %s", code, e)
+	}
+	st, err := nifti.Read(filepath.Join(out, "status.nii.gz"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, v := range []int{c, c + 1} {
+		if st.Data[v] != float32(fit.BadB1) {
+			t.Errorf("voxel %d (B1 %v): status %v, want bad-b1", v, b1.Data[v], st.Data[v])
+		}
+	}
+	if st.Data[c+2] == float32(fit.BadB1) {
+		t.Error("a voxel with B1 = 1 has status bad-b1")
+	}
+}
+
+// TestPhantomNoEscapes: escape sequences in a phantom definition's name
+// and vial ids do not reach the terminal through tauvox phantom.
+func TestPhantomNoEscapes(t *testing.T) {
+	f := newFixtures(t)
+	def := phantom.Demo()
+	const esc = "\x1b]0;owned\x07\x1b[2J"
+	def.Name += esc
+	for i := range def.Vials {
+		def.Vials[i].ID += esc
+	}
+	b, err := json.Marshal(def)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := f.write(t, "hostile-def.json", b)
+	code, stdout, stderr := tauvox(t, "phantom", f.path("qmaps"), "--def", p, "--temperature", "20", "--date", "2026-05-01", "--out", f.path("hqa"))
+	if code > 1 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if !strings.Contains(stdout, "vial") {
+		t.Fatalf("no verdict table: %q", stdout)
+	}
+	if strings.ContainsAny(stdout+stderr, "\x1b\x07") {
+		t.Errorf("an escape reached the output: %q", stdout+stderr)
 	}
 }

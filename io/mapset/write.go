@@ -91,11 +91,6 @@ type Protocol struct {
 	FA *float64 `json:"flip_deg"`
 }
 
-// Caution is the statement every output carries.
-//
-// Deprecated: use output.Caution; this is the same constant.
-const Caution = output.Caution
-
 func num(v float64) *float64 {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return nil
@@ -344,7 +339,7 @@ func (w *Writer) Close() ([]string, error) {
 		Model: info.Model, Method: info.Method, Settings: info.Settings,
 		Field: num(info.Source.FieldStrength), Scanner: info.Source.Scanner, Acquired: info.Source.AcquiredAt,
 		Series: info.Source.Description, Pixels: info.Source.Pixels, Warnings: info.Source.Warnings, Patient: info.Source.Patient, Outputs: append([]string(nil), names...), Threshold: w.thr, AutoMask: info.AutoMask,
-		Status: map[string]int{}, Timings: info.Timings, Caution: Caution,
+		Status: map[string]int{}, Timings: info.Timings, Caution: output.Caution,
 	}
 	sums := <-w.sums
 	if sums.err != nil {

@@ -444,8 +444,3 @@ func Write(path string, im *volume.Image, extra map[string]any) error {
 	}
 	return output.WriteFile(SidecarName(path), append(b, '\n'))
 }
-
-// WriteFileAtomic writes b to path atomically.
-//
-// Deprecated: use output.WriteFile, which it calls.
-func WriteFileAtomic(path string, b []byte) error { return output.WriteFile(path, b) }
