@@ -1,14 +1,13 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 
+	"github.com/tauvox/tauvox/internal/refdata"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/volume"
 )
@@ -23,31 +22,11 @@ import (
 // 1000·SE(T2)/T2² (delta method). The whole command path is covered:
 // reading, the engine, the map writer.
 func TestFitSDMapsAgainstScipy(t *testing.T) {
-	raw, err := os.ReadFile("../../testdata/reference/scipy_t2.json")
+	ref, err := refdata.ReadScipyT2("../../testdata/reference/scipy_t2.json")
 	if err != nil {
 		t.Fatal(err)
 	}
-	var ref struct {
-		TE    []float64 `json:"te_ms"`
-		Cases []struct {
-			Offset bool      `json:"offset"`
-			Sigma  float64   `json:"sigma"`
-			Signal []float64 `json:"signal"`
-			M0     float64   `json:"M0"`
-			T2     float64   `json:"T2"`
-			SeT2   float64   `json:"se_T2"`
-			SeM0   float64   `json:"se_M0"`
-		} `json:"cases"`
-	}
-	if err := json.Unmarshal(raw, &ref); err != nil {
-		t.Fatal(err)
-	}
-	cases := ref.Cases[:0]
-	for _, c := range ref.Cases {
-		if !c.Offset && c.Sigma == 0 {
-			cases = append(cases, c)
-		}
-	}
+	cases := ref.Plain()
 	n := len(cases)
 	im := volume.New(n, 1, 1, len(ref.TE))
 	for v, c := range cases {

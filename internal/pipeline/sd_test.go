@@ -2,13 +2,12 @@ package pipeline
 
 import (
 	"context"
-	"encoding/json"
 	"math"
-	"os"
 	"path/filepath"
 	"testing"
 
 	"github.com/tauvox/tauvox/fit"
+	"github.com/tauvox/tauvox/internal/refdata"
 	"github.com/tauvox/tauvox/io/mapset"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/volume"
@@ -19,28 +18,11 @@ import (
 // testdata/gen/scipy_t2_refs.py) without offset or noise floor.
 func scipyT2(t *testing.T) (te []float64, signals [][]float64, t2, seT2, seM0 []float64) {
 	t.Helper()
-	raw, err := os.ReadFile("../../testdata/reference/scipy_t2.json")
+	ref, err := refdata.ReadScipyT2("../../testdata/reference/scipy_t2.json")
 	if err != nil {
 		t.Fatal(err)
 	}
-	var ref struct {
-		TE    []float64 `json:"te_ms"`
-		Cases []struct {
-			Offset bool      `json:"offset"`
-			Sigma  float64   `json:"sigma"`
-			Signal []float64 `json:"signal"`
-			T2     float64   `json:"T2"`
-			SeT2   float64   `json:"se_T2"`
-			SeM0   float64   `json:"se_M0"`
-		} `json:"cases"`
-	}
-	if err := json.Unmarshal(raw, &ref); err != nil {
-		t.Fatal(err)
-	}
-	for _, c := range ref.Cases {
-		if c.Offset || c.Sigma != 0 {
-			continue
-		}
+	for _, c := range ref.Plain() {
 		signals = append(signals, c.Signal)
 		t2, seT2, seM0 = append(t2, c.T2), append(seT2, c.SeT2), append(seM0, c.SeM0)
 	}

@@ -14,7 +14,3 @@ func checkThenRename(from, to string) error {
 	}
 	return os.Rename(from, to)
 }
-
-// held reports whether the output dir is a finished stage whose owner has
-// not let go yet (between its rename into place and its release).
-func held(dir string) bool { return owned(dir) }

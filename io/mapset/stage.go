@@ -188,7 +188,7 @@ func isEmpty(dir string) bool {
 // It returns a note for each replacement rolled back or finished.
 func sweep(parent, name string) []string {
 	target := filepath.Join(parent, name)
-	live := held(target)
+	live := owned(target) // a finished stage whose owner has not let go yet
 	tmps, _ := filepath.Glob(filepath.Join(parent, "."+name+".tmp-*"))
 	for _, d := range tmps {
 		if st, err := os.Lstat(d); err == nil && st.IsDir() {
