@@ -17,7 +17,8 @@ import (
 
 // TestDemoStability runs the whole demo (12 monthly sessions, vial A7
 // drifting by −5 %/yr): its stability summary names A7 as the only action
-// item (T1 ends outside its 5 % tolerance), drift.csv marks no other
+// item (its T1 drift reaches the 5 % tolerance within the 12-month
+// horizon; the last session is outside it, not proven), drift.csv marks no other
 // series as action, the chart command on its database exits 1 for that
 // action item and names it; then its last report is printed (below).
 func TestDemoStability(t *testing.T) {

@@ -28,8 +28,9 @@ and shows each vial's stability:
 
 Statistics use each vial's deviation from its temperature-corrected reference
 (percent). 'chart' exits with code 1 when there is an action item (a vial
-outside its tolerance, or drifting into it within the horizon), so a
-scheduled job can alert; --strict also for watch items.`
+beyond its tolerance by more than its uncertainty, or drifting into it
+within the horizon), so a scheduled job can alert; --strict also for watch
+items.`
 
 func runHistory(ctx context.Context, args []string, e *env) error {
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {

@@ -16,7 +16,7 @@ import (
 type chartArgs struct {
 	db, scanner, out, from, to string
 	baseline, minSessions      int
-	minDrift, minLimit         float64
+	minDrift, minLimit, driftC float64
 	horizon                    float64
 	strict                     bool
 	force                      cli.Force
@@ -33,11 +33,16 @@ sessions is not judged ("not enough sessions"). The SD is at least the
 largest of the vial median's standard error, the reference uncertainty and
 --min-limit/3. Rules that flag by default: 1 one session beyond 3 SD; 2 two
 of three beyond 2 SD on one side (Western Electric 1956); 5 EWMA (λ 0.2,
-3 SD) beyond its limits; 6 drift whose 95 % interval excludes 0 and whose
-size is at least --min-drift. Findings: action (the last session outside
-the vial's tolerance, or a drift reaching it within --horizon at the end of
-its 95 % interval nearest zero) and watch (a rule inside tolerance). Exit
-code 1 only for action items, or also for watch items with --strict.`, e)
+3 SD) beyond its limits; 6 drift whose --drift-confidence interval
+(default 99.73 %) excludes 0 and whose size is at least --min-drift.
+Findings describe the last session: action (it, or the mean of the last
+three, lies beyond the vial's tolerance by more than its expanded
+uncertainty 2u, u the series' own session-to-session SD; or a drift reaches
+the tolerance within --horizon at the end of its interval nearest zero) and
+watch (a rule on the last session, or a drift). A session outside its
+tolerance by less than 2u is reported as not proven, and earlier flagged
+sessions stay on the chart and in the reasons; neither flags the series.
+Exit code 1 only for action items, or also for watch items with --strict.`, e)
 	fs.StringVar(&a.db, "db", "", "history database file (required)")
 	fs.StringVar(&a.scanner, "scanner", "", "only this scanner")
 	fs.StringVar(&a.out, "out", "", "output folder (required)")
@@ -46,6 +51,7 @@ code 1 only for action items, or also for watch items with --strict.`, e)
 	fs.StringVar(&a.from, "baseline-from", "", "baseline: sessions from this date (YYYY-MM-DD) instead")
 	fs.StringVar(&a.to, "baseline-to", "", "baseline: sessions up to this date (with --baseline-from)")
 	fs.Float64Var(&a.minDrift, "min-drift", 1, "smallest drift that counts, percentage points per year")
+	fs.Float64Var(&a.driftC, "drift-confidence", 100*history.DefaultDriftConfidence, "confidence of the drift slope's interval, PCT percent (50–99.99)")
 	fs.Float64Var(&a.minLimit, "min-limit", history.DefaultMinLimit, "smallest ±3 SD limit half-width, PCT percentage points (0: no user floor)")
 	fs.IntVar(&a.minSessions, "min-sessions", history.DefaultMinSessions, "fewest sessions to judge a series (at least 3)")
 	fs.Float64Var(&a.horizon, "horizon", 12, "months ahead a drift is projected to the tolerance (action)")
@@ -66,7 +72,7 @@ func historyChart(ctx context.Context, args []string, e *env) error {
 		return err
 	}
 	set, err := (&qarun.ChartOptions{Baseline: a.baseline, From: a.from, To: a.to, MinDrift: a.minDrift,
-		MinLimit: a.minLimit, MinSessions: a.minSessions, Horizon: a.horizon}).Settings()
+		MinLimit: a.minLimit, MinSessions: a.minSessions, Horizon: a.horizon, DriftConfidence: a.driftC}).Settings()
 	if err != nil {
 		return err
 	}

@@ -43,6 +43,9 @@ type ChartOptions struct {
 	MinLimit    float64 // smallest ±3 SD half-width, percentage points (0: no user floor)
 	MinSessions int
 	Horizon     float64 // months
+	// DriftConfidence is the percent confidence of the drift slope's
+	// interval; 0 means history.DefaultDriftConfidence.
+	DriftConfidence float64
 }
 
 // Settings checks the options and returns the statistics settings.
@@ -56,9 +59,11 @@ func (o *ChartOptions) Settings() (*history.Settings, error) {
 		return nil, errors.New("--min-limit must be 0…100 percentage points")
 	case !(o.Horizon > 0) || o.Horizon > 120:
 		return nil, errors.New("--horizon must be 0…120 months (more than 0)")
+	case o.DriftConfidence != 0 && !(o.DriftConfidence >= 50 && o.DriftConfidence <= 99.99):
+		return nil, errors.New("--drift-confidence must be 50…99.99 percent")
 	}
 	set := &history.Settings{Baseline: history.Baseline{N: o.Baseline}, MinDrift: o.MinDrift,
-		MinLimit: o.MinLimit, MinSessions: o.MinSessions, Horizon: o.Horizon / 12}
+		MinLimit: o.MinLimit, MinSessions: o.MinSessions, Horizon: o.Horizon / 12, DriftConfidence: o.DriftConfidence / 100}
 	if o.MinLimit == 0 {
 		set.MinLimit = -1 // no user floor
 	}

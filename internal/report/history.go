@@ -458,6 +458,7 @@ type historyData struct {
 	Floor, Horizon, MinSessions    string
 	Rules                          string
 	Baseline, EWMA, Drift          string
+	DriftCI                        string // the drift interval's confidence, percent
 	Relative                       bool
 	Rows                           []historyRowData
 	Caution, Tool                  string
@@ -504,6 +505,7 @@ func historyPage(sum *HistorySummary, charts [][]byte, opt *HistoryOptions) *his
 		minDrift = 1
 	}
 	d := &historyData{
+		DriftCI: strconv.FormatFloat(100*set.DriftLevel(), 'f', -1, 64),
 		Source:  opt.Source,
 		Caution: output.Caution,
 		Tool:    opt.Tool,

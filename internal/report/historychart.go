@@ -67,7 +67,7 @@ const yearSeconds = 365.2425 * 24 * 3600
 // line, the end of the baseline), the EWMA once the baseline is complete,
 // and the session temperature.
 func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
-	var all, base, loo, fixed, watch, action plotter.XYs
+	var all, base, loo, fixed, watch, action, unproven plotter.XYs
 	var flagX []float64
 	var flagText []string
 	var sx, sy float64 // centroid of the drift fit's points
@@ -110,11 +110,17 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		}
 		label := ruleList(rules, ",")
 		switch {
-		case at(s.Outside, i):
+		case at(s.Beyond, i):
 			action = append(action, xy)
 			label = strings.TrimPrefix(label+",tol", ",")
 		case len(rules) > 0:
 			watch = append(watch, xy)
+			if at(s.Outside, i) {
+				label += ",tol?"
+			}
+		case at(s.Outside, i):
+			unproven = append(unproven, xy)
+			label = "tol?"
 		case i < len(s.Mode) && s.Mode[i] == history.ModeFixed:
 			fixed = append(fixed, xy)
 		case inBase && s.Complete:
@@ -183,7 +189,7 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 			l.Color, l.Width = tolEdge, vg.Points(1.6)
 			top.Add(l)
 			if sign > 0 {
-				leg.Add(fmt.Sprintf("tolerance ±%.1f %% (action outside)", t), band, l)
+				leg.Add(fmt.Sprintf("tolerance ±%.1f %%", t), band, l)
 			}
 		}
 		widen(t)
@@ -284,7 +290,8 @@ func historySVG(s *history.Series, set *history.Settings) ([]byte, error) {
 		{base, fmt.Sprintf("baseline session (n = %d)", s.BaselineN), draw.RingGlyph{}, sessionColor, 3},
 		{fixed, "session, judged on fixed limits", draw.CircleGlyph{}, sessionColor, 2.8},
 		{watch, "watch: a rule (label)", draw.PyramidGlyph{}, watchColor, 4.2},
-		{action, "action: outside tolerance", draw.CrossGlyph{}, failColor, 4.6},
+		{unproven, "outside tolerance, within 2u (not proven)", draw.RingGlyph{}, failColor, 4},
+		{action, "beyond tolerance by more than 2u", draw.CrossGlyph{}, failColor, 4.6},
 	} {
 		if len(g.xy) == 0 {
 			continue

@@ -68,7 +68,7 @@ func sparkline(s *history.Series) []byte {
 	for k, i := range idx {
 		x, y := px(xs[k]), py(ys[k])
 		switch {
-		case at(s.Outside, i):
+		case at(s.Beyond, i):
 			fmt.Fprintf(&b, `<path d="M%.1f %.1fl6 6m0 -6l-6 6" stroke="#d55e00" stroke-width="2"/>`, x-3, y-3)
 		case (i < len(s.Rules) && len(s.Rules[i]) > 0) || at(s.EWMAOut, i):
 			fmt.Fprintf(&b, `<path d="M%.1f %.1fl3.5 6h-7z" fill="#aa6e00"/>`, x, y-3.5)

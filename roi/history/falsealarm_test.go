@@ -60,6 +60,11 @@ type inControl struct {
 	histories, anyFlag int                // histories with any default flag (rules, drift)
 	action5, action10  int                // histories whose finding is action at tolerance 5 %, 10 %
 	outside5           int                // points outside a 5 % tolerance
+	beyond5            int                // points beyond it by more than their uncertainty
+	flaggedAll         int                // judged points flagged by a default rule or beyond tolerance (action or watch)
+	growJudged         int                // sessions judged as the history grows (default settings, 5 % tolerance)
+	growFlag           int                // of those, sessions whose finding is action or watch
+	growDrift          int                // of those, sessions with a drift flag
 	tooFew             int                // histories too short to judge
 }
 
@@ -97,6 +102,13 @@ func runInControl(seed uint64, reps, n int, scatter float64, baseline int) inCon
 			if s.Outside[i] {
 				c.outside5++
 			}
+			if s.Beyond[i] {
+				c.beyond5++
+				any = true
+			}
+			if flagged || s.Beyond[i] {
+				c.flaggedAll++
+			}
 		}
 		if s.Drifting {
 			c.rule[RuleDrift]++
@@ -107,6 +119,18 @@ func runInControl(seed uint64, reps, n int, scatter float64, baseline int) inCon
 		}
 		if d := Analyse(ps, def)[0]; d.Finding == FindingAction {
 			c.action5++
+		}
+		// Each session as it is recorded: the finding the QA report of
+		// that session shows (warn when action or watch).
+		for m := DefaultMinSessions - 1; m < n; m++ {
+			d := Analyse(ps[:m+1], def)[0]
+			c.growJudged++
+			if d.Finding == FindingAction || d.Finding == FindingWatch {
+				c.growFlag++
+			}
+			if d.Drifting {
+				c.growDrift++
+			}
 		}
 		for i := range ps {
 			ps[i].Tolerance = 10 / 100.0 * simRef
@@ -131,7 +155,7 @@ func detection(seed uint64, reps, n, at int, scatter float64, baseline int, shif
 			s := Analyse(ps[:m+1], set)[0]
 			hit := s.Drifting
 			for i := at; i <= m && !hit; i++ {
-				hit = len(s.Rules[i]) > 0 || s.EWMAOut[i] || s.Outside[i]
+				hit = s.Flagged(i)
 			}
 			if hit {
 				delays = append(delays, m-at+1)
@@ -153,13 +177,14 @@ func rate(k, n int) string {
 // cells, for the assertions.
 func simTables() (string, map[[3]int]inControl) {
 	const seed = 20261203
-	const reps = 400
+	const reps = 1000   // in-control histories per row
+	const repsDet = 400 // changed histories per detection row
 	var b strings.Builder
 	cells := map[[3]int]inControl{}
-	fmt.Fprintf(&b, "In-control histories: %d per row, seeded (PCG %d), monthly sessions (27–33 days apart), deviation scatter·N(0, 1), default settings (minimum %d sessions, limit floor ±%g %% for 3 SD, horizon %g year, drift rule from 1 %%/yr).\n", reps, seed, DefaultMinSessions, float64(DefaultMinLimit), DefaultHorizon)
-	b.WriteString("Rates in percent: per judged session for rules 1–5, \"flagged\" (any default rule: 1, 2, 5) and \"outside 5 %\" (a session beyond a 5 % tolerance by its scatter alone: a real tolerance failure, not a statistical signal), per history for the drift rule 6, \"any flag\" and \"action\".\n\n")
-	b.WriteString("| scatter % | sessions | baseline | rule 1 | rule 2 | rule 3 | rule 4 | rule 5 | flagged / session | outside 5 % / session | drift (6) / history | any flag / history | action / history, tol 5 % | action / history, tol 10 % |\n")
-	b.WriteString("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n")
+	fmt.Fprintf(&b, "In-control histories: %d per row, seeded (PCG %d), monthly sessions (27–33 days apart), deviation scatter·N(0, 1), default settings (minimum %d sessions, limit floor ±%g %% for 3 SD, horizon %g year, drift rule from 1 %%/yr with its %g %% slope interval excluding zero).\n", reps, seed, DefaultMinSessions, float64(DefaultMinLimit), DefaultHorizon, 100*DefaultDriftConfidence)
+	b.WriteString("Rates in percent. Per judged session of the whole history: rules 1–5, \"rules\" (any default rule: 1, 2, 5), \"outside 5 %\" (a session outside a 5 % tolerance by its scatter alone, reported as not proven), \"beyond 5 %\" (outside by more than the session's expanded uncertainty 2u) and \"point flags\" (rules or beyond). \"Finding as recorded\": each session judged when it is recorded (the history up to it), the share whose finding is action or watch, drift included: what the QA report of that session shows as warn. Per history: the drift rule 6 at the end, \"any flag\" (any point flag or drift) and \"action\" (the finding after the last session).\n\n")
+	b.WriteString("| scatter % | sessions | baseline | rule 1 | rule 2 | rule 3 | rule 4 | rule 5 | rules / session | outside 5 % / session | beyond 5 % / session | point flags / session | finding as recorded: action or watch / session | drift (6) / history | any flag / history | action / history, tol 5 % | action / history, tol 10 % |\n")
+	b.WriteString("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n")
 	for _, sc := range []float64{0.5, 1, 2, 3} {
 		for _, n := range []int{6, 10, 12, 24, 36} {
 			for _, bl := range []int{6, 12, 24} {
@@ -168,13 +193,14 @@ func simTables() (string, map[[3]int]inControl) {
 				}
 				c := runInControl(seed, reps, n, sc, bl)
 				cells[[3]int{int(sc * 10), n, bl}] = c
-				fmt.Fprintf(&b, "| %g | %d | %d | %s | %s | %s | %s | %s | **%s** | %s | %s | %s | %s | %s |\n", sc, n, bl,
+				fmt.Fprintf(&b, "| %g | %d | %d | %s | %s | %s | %s | %s | %s | %s | %s | %s | **%s** | %s | %s | **%s** | %s |\n", sc, n, bl,
 					rate(c.rule[1], c.judged), rate(c.rule[2], c.judged), rate(c.rule[3], c.judged), rate(c.rule[4], c.judged), rate(c.rule[RuleEWMA], c.judged),
-					rate(c.flagged, c.judged), rate(c.outside5, c.points), rate(c.rule[RuleDrift], reps), rate(c.anyFlag, reps), rate(c.action5, reps), rate(c.action10, reps))
+					rate(c.flagged, c.judged), rate(c.outside5, c.points), rate(c.beyond5, c.judged), rate(c.flaggedAll, c.judged), rate(c.growFlag, c.growJudged),
+					rate(c.rule[RuleDrift], reps), rate(c.anyFlag, reps), rate(c.action5, reps), rate(c.action10, reps))
 			}
 		}
 	}
-	b.WriteString("\nDetection: sessions from the change until the first flag (action or watch) on a session at or after it, or a drift flag, judging each history as it grows (400 histories per row; median and the share caught within 1, 3 and 6 sessions; tolerance 5 %).\n\n")
+	fmt.Fprintf(&b, "\nDetection: sessions from the change until the first flag (action or watch) on a session at or after it, or a drift flag, judging each history as it grows (%d histories per row; median and the share caught within 1, 3 and 6 sessions; tolerance 5 %%).\n\n", repsDet)
 	b.WriteString("| change | scatter % | change at session | baseline | median delay | caught ≤ 1 | ≤ 3 | ≤ 6 | caught at all |\n")
 	b.WriteString("|---|---|---|---|---|---|---|---|---|\n")
 	for _, d := range []struct {
@@ -192,14 +218,14 @@ func simTables() (string, map[[3]int]inControl) {
 		{"step +3 SD", 24, 36, 24, 1, stepAt},
 		{"step +3 SD", 24, 36, 24, 2, stepAt},
 	} {
-		delays := detection(seed, reps, d.n, d.at, d.scatter, d.baseln, d.shift(d.at, d.scatter))
-		fmt.Fprintf(&b, "| %s | %g | %d | %d | %s |\n", d.name, d.scatter, d.at+1, d.baseln, delayRow(delays, reps))
+		delays := detection(seed, repsDet, d.n, d.at, d.scatter, d.baseln, d.shift(d.at, d.scatter))
+		fmt.Fprintf(&b, "| %s | %g | %d | %d | %s |\n", d.name, d.scatter, d.at+1, d.baseln, delayRow(delays, repsDet))
 	}
 	for _, sc := range []float64{0.5, 1, 2} {
 		for _, bl := range []int{12, 24} {
 			drift := func(_ int, years float64) float64 { return -3 * years }
-			delays := detection(seed, reps, 36, 0, sc, bl, drift)
-			fmt.Fprintf(&b, "| drift −3 %%/yr from the first session | %g | 1 | %d | %s |\n", sc, bl, delayRow(delays, reps))
+			delays := detection(seed, repsDet, 36, 0, sc, bl, drift)
+			fmt.Fprintf(&b, "| drift −3 %%/yr from the first session | %g | 1 | %d | %s |\n", sc, bl, delayRow(delays, repsDet))
 		}
 	}
 	return b.String(), cells
@@ -227,35 +253,28 @@ func delayRow(d []int, reps int) string {
 	return fmt.Sprintf("%s | %s | %s | %s | %s", med, within(1), within(3), within(6), rate(len(d), reps))
 }
 
-// TestFalseAlarmRates: the defaults meet the targets of the design: a
-// stable vial is flagged by the statistics in at most 1 of 100 judged
-// sessions (and by the statistics or its tolerance where the tolerance is
-// at least 3 times the scatter), and a stable 10-session series has no action item in at least
-// 95 of 100 histories (where the tolerance is at least 2.5 times the
-// scatter: a vial whose scatter reaches its tolerance really does fail).
-// The tables must match testdata/falsealarm.md and docs/validation.md.
+// TestFalseAlarmRates: the defaults meet the targets of the design at
+// every simulated scatter (0.5–3 %), length and baseline: a stable vial
+// is flagged (action or watch: a default rule, or a session beyond its 5 %
+// tolerance by more than its uncertainty) in at most 1 of 100 judged
+// sessions, and a stable 10-session series has no action item (5 %
+// tolerance) in at least 95 of 100 histories. The tables must match
+// testdata/falsealarm.md and docs/validation.md.
 func TestFalseAlarmRates(t *testing.T) {
-	if testing.Short() {
-		t.Skip("simulation")
+	if testing.Short() || raceEnabled {
+		t.Skip("simulation (single goroutine; skipped under -short and the race detector)")
 	}
 	tables, cells := simTables()
 	for k, c := range cells {
 		sc := float64(k[0]) / 10
-		r := float64(c.flagged) / float64(max(1, c.judged))
-		if r > 0.01 {
-			t.Errorf("scatter %g %%, %d sessions, baseline %d: %.2f %% of sessions flagged, want ≤ 1 %%", sc, k[1], k[2], 100*r)
+		if r := float64(c.flaggedAll) / float64(max(1, c.judged)); r > 0.01 {
+			t.Errorf("scatter %g %%, %d sessions, baseline %d: %.2f %% of sessions carry a flag, want ≤ 1 %%", sc, k[1], k[2], 100*r)
 		}
-		// Action or watch, the tolerance failures included, where the
-		// 5 % tolerance is at least 3 times the scatter.
-		if all := float64(c.flagged+c.outside5) / float64(max(1, c.judged)); 3*sc <= 5 && all > 0.01 {
-			t.Errorf("scatter %g %%, %d sessions, baseline %d: %.2f %% of sessions action or watch, want ≤ 1 %%", sc, k[1], k[2], 100*all)
+		if r := float64(c.growFlag) / float64(max(1, c.growJudged)); r > 0.01 {
+			t.Errorf("scatter %g %%, %d sessions, baseline %d: %.2f %% of sessions recorded with an action or watch finding, want ≤ 1 %%", sc, k[1], k[2], 100*r)
 		}
 		if k[1] == 10 {
-			a := float64(c.action5) / float64(c.histories)
-			if 2.5*sc > 5 {
-				a = float64(c.action10) / float64(c.histories)
-			}
-			if a > 0.05 {
+			if a := float64(c.action5) / float64(c.histories); a > 0.05 {
 				t.Errorf("scatter %g %%, 10 sessions, baseline %d: %.1f %% of histories with an action item, want ≤ 5 %%", sc, k[2], 100*a)
 			}
 		}

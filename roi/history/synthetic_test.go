@@ -55,6 +55,20 @@ func synthHistory(seed uint64, sessions, cadence int) []Point {
 	return ps
 }
 
+// anyFlag reports whether a series carries any flag: a flagged session
+// anywhere in its history, a drift, or an action or watch finding.
+func anyFlag(s *Series) bool {
+	if s.Drifting || s.Finding == FindingAction || s.Finding == FindingWatch {
+		return true
+	}
+	for i := range s.Points {
+		if s.Flagged(i) {
+			return true
+		}
+	}
+	return false
+}
+
 type synthResult struct {
 	slope            float64
 	drift, excursion bool
@@ -71,7 +85,7 @@ func judgeSynth(ps []Point) synthResult {
 			r.drift = s.Drifting && math.Abs(s.Slope+3) <= 1.5
 		case s.Vial == "E2" && s.Quantity == "T2":
 			r.excursion = s.Flagged(5)
-		case s.Finding != FindingOK:
+		case anyFlag(s):
 			r.others++
 			r.names = append(r.names, s.Vial+" "+s.Quantity+": "+s.Finding)
 		}
@@ -82,12 +96,14 @@ func judgeSynth(ps []Point) synthResult {
 // TestSyntheticHistory: 10 sessions every 8 weeks (18 months) with the
 // default settings: the drift is found (rule 6) with a slope within
 // ±1.5 %/yr of −3 %/yr, the excursion is flagged, and at most 3 of the
-// other 22 series carry any flag. The fixed seed must meet all three; over
-// 200 seeds the share meeting all three is logged and must be at least
-// 65 % (measured: 73 %; each part on its own 85–94 %). With monthly
-// sessions the drift is found in only 38 % of the seeds: 10 sessions over
-// 9 months at 1 % scatter give the slope a standard error of about
-// 1.3 %/yr, too much to tell −3 %/yr from zero reliably.
+// other 22 series carry any flag (a flagged session anywhere, a drift or a
+// finding). The fixed seed must meet all three. Over 200 seeds the shares
+// are logged and bounded below (docs/validation.md): the drift rule's
+// 99.73 % interval, chosen so that stable series are flagged in at most 1
+// of 100 recorded sessions, finds a −3 %/yr drift at 1 % scatter in about
+// half of the 8-week histories (slope standard error ≈ 0.7 %/yr with 8
+// degrees of freedom) and in nine of ten 12-week ones; with monthly
+// sessions (9 months) it almost never can.
 func TestSyntheticHistory(t *testing.T) {
 	r := judgeSynth(synthHistory(1, 10, 56))
 	t.Logf("seed 1: D1 T1 slope %.2f %%/yr, drift found %v, excursion flagged %v, other series flagged %d %v", r.slope, r.drift, r.excursion, r.others, r.names)
@@ -95,25 +111,29 @@ func TestSyntheticHistory(t *testing.T) {
 		t.Errorf("seed 1: drift %v (slope %.2f), excursion %v, others flagged %d", r.drift, r.slope, r.excursion, r.others)
 	}
 	const n = 200
-	var ok, drift, exc, quiet int
-	for seed := uint64(1); seed <= n; seed++ {
-		r := judgeSynth(synthHistory(seed, 10, 56))
-		if r.drift {
-			drift++
+	for _, c := range []struct {
+		cadence, minAll, minQuiet int // days; shares in percent
+	}{{28, 0, 95}, {56, 35, 95}, {84, 70, 95}} {
+		var ok, drift, exc, quiet int
+		for seed := uint64(1); seed <= n; seed++ {
+			r := judgeSynth(synthHistory(seed, 10, c.cadence))
+			if r.drift {
+				drift++
+			}
+			if r.excursion {
+				exc++
+			}
+			if r.others <= 3 {
+				quiet++
+			}
+			if r.drift && r.excursion && r.others <= 3 {
+				ok++
+			}
 		}
-		if r.excursion {
-			exc++
+		t.Logf("every %d days, %d seeds: drift found within ±1.5 %%/yr %d, excursion flagged %d, ≤ 3 others flagged %d, all three %d", c.cadence, n, drift, exc, quiet, ok)
+		if ok < n*c.minAll/100 || quiet < n*c.minQuiet/100 {
+			t.Errorf("every %d days: %d of %d histories meet all three (want ≥ %d %%), %d quiet (want ≥ %d %%)", c.cadence, ok, n, c.minAll, quiet, c.minQuiet)
 		}
-		if r.others <= 3 {
-			quiet++
-		}
-		if r.drift && r.excursion && r.others <= 3 {
-			ok++
-		}
-	}
-	t.Logf("%d seeds: drift found within ±1.5 %%/yr %d, excursion flagged %d, ≤ 3 others flagged %d, all three %d", n, drift, exc, quiet, ok)
-	if ok < n*65/100 {
-		t.Errorf("only %d of %d seeded histories meet all three", ok, n)
 	}
 }
 

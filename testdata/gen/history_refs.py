@@ -8,8 +8,9 @@ ten vials x T1, T2. Each value is the deviation from the reference in
 percent: Gaussian noise (SD 0.4) around 0, except vial A5 T1, which drifts
 by -3 %/year from the first session. For every series the script records
 scipy.stats.linregress's slope (percentage points per year, time in mean
-Gregorian years since the first session) and its 95 % confidence interval
-slope +/- t.ppf(0.975, n-2) * stderr (Debian python3-scipy 1.10.1).
+Gregorian years since the first session) and its 99.73 % confidence
+interval slope +/- t.ppf(1 - 0.0027/2, n-2) * stderr, the interval of
+tauvox's drift rule (Debian python3-scipy 1.10.1).
 """
 import datetime as dt
 import json
@@ -32,7 +33,7 @@ for vial in ["A1", "A2", "A3", "A4", "A5", "A6", "A7", "A8", "B1", "B2"]:
         if vial == "A5" and q == "T1":
             dev = dev - 3.0 * years
         r = stats.linregress(years, dev)
-        t = stats.t.ppf(0.975, len(dates) - 2)
+        t = stats.t.ppf(1 - (1 - 0.9973) / 2, len(dates) - 2)
         series.append({
             "vial": vial, "quantity": q,
             "deviation_pct": [float(x) for x in dev],
