@@ -164,6 +164,12 @@ func writeBody(f *os.File, hdr []byte, im *volume.Image, o *WriteOptions, gz boo
 
 // writeSamples encodes data as little-endian samples of type dt.
 func writeSamples(w io.Writer, data []float32, dt Datatype) error {
+	if dt == Float32 && nativeLE {
+		// The samples' own memory is their little-endian encoding (the
+		// writer must not keep it: io.Writer's contract).
+		_, err := w.Write(float32Bytes(data))
+		return err
+	}
 	sz := dt.Size()
 	per := chunkBytes / sz
 	buf := make([]byte, chunkBytes)
