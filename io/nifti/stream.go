@@ -502,7 +502,7 @@ type StreamWriter struct {
 	path      string
 	f         *output.File
 	bw        *bufio.Writer
-	zw        *gzip.Writer
+	zw        io.WriteCloser
 	w         io.Writer
 	dt        Datatype
 	want, got int64
@@ -532,7 +532,7 @@ func Create(path string, dims [4]int, affine volume.Affine, opt *WriteOptions) (
 	sw.bw = bufio.NewWriterSize(f, 1<<20)
 	sw.w = sw.bw
 	if gz {
-		if sw.zw, err = gzip.NewWriterLevel(sw.bw, o.Compression); err != nil {
+		if sw.zw, err = newCompressor(sw.bw, o.Compression); err != nil {
 			sw.Abort()
 			return nil, &fileError{path, "cannot write", err}
 		}
@@ -585,7 +585,7 @@ func checkStream(path string, im *volume.Image, o *WriteOptions) (gz bool, err e
 	if math.IsNaN(o.TimeStep) || math.IsInf(o.TimeStep, 0) || o.TimeStep < 0 {
 		return false, bad(fmt.Sprintf("time step %g ms is not a finite non-negative number", o.TimeStep))
 	}
-	if (o.Compression < gzip.HuffmanOnly || o.Compression > gzip.BestCompression) && gz {
+	if (o.Compression < gzip.HuffmanOnly || o.Compression > gzip.BestCompression) && o.Compression != RunsCompression && gz {
 		return false, bad(fmt.Sprintf("gzip level %d out of range", o.Compression))
 	}
 	return gz, nil
