@@ -153,37 +153,46 @@ func (b *bits) take(k uint) uint64 {
 // data.
 func (b *bits) bitPos() int64 { return int64(b.pos)*8 - int64(b.n) }
 
-// decode reads one symbol of h. Needs at least 15 bits loaded (or the end).
-func (b *bits) decode(h *huffman) (int, error) {
+// decode reads one symbol of h, or returns −1 for data that are not a
+// code of h. Needs at least 15 bits loaded (or the end). The table lookup
+// is small enough to be inlined into the loops; longer codes go to
+// decodeLong.
+func (b *bits) decode(h *huffman) int {
 	e := h.table[b.buf&(1<<primary-1)]
-	if l := uint(e & 15); l != 0 {
-		if l > b.n {
-			return 0, errCorrupt
-		}
-		b.buf >>= l
-		b.n -= l
-		return int(e >> 4), nil
+	l := uint(e & 15)
+	if l == 0 || l > b.n {
+		return b.decodeLong(h)
 	}
-	// Slow path (codes longer than primary bits, or an unused pattern):
-	// canonical decoding one bit at a time (as in zlib's puff.c).
+	b.buf >>= l
+	b.n -= l
+	return int(e >> 4)
+}
+
+// decodeLong is the slow path of decode: codes longer than primary bits,
+// an unused pattern, or too few bits left.
+func (b *bits) decodeLong(h *huffman) int {
+	if e := h.table[b.buf&(1<<primary-1)]; e&15 != 0 {
+		return -1 // a short code, but fewer bits than it needs
+	}
+	// Canonical decoding one bit at a time (as in zlib's puff.c).
 	code, first, index := 0, 0, 0
 	for l := 1; l <= maxBits; l++ {
 		if b.n == 0 {
-			return 0, errCorrupt
+			return -1
 		}
 		code |= int(b.buf & 1)
 		b.buf >>= 1
 		b.n--
 		count := int(h.count[l])
 		if code-count < first {
-			return int(h.symbol[index+(code-first)]), nil
+			return int(h.symbol[index+(code-first)])
 		}
 		index += count
 		first += count
 		first <<= 1
 		code <<= 1
 	}
-	return 0, errCorrupt
+	return -1
 }
 
 var (
@@ -249,9 +258,9 @@ func (b *bits) dynamicHeader(lit, dist *huffman) error {
 	var lengths [286 + 30]uint8
 	for i := 0; i < nlit+ndist; {
 		b.need(maxBits + 7)
-		sym, err := b.decode(&clh)
-		if err != nil {
-			return err
+		sym := b.decode(&clh)
+		if sym < 0 {
+			return errCorrupt
 		}
 		var rep int
 		var val uint8
@@ -300,9 +309,14 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 		if b.n < 48 {
 			b.refill()
 		}
-		sym, err := b.decode(lit)
-		if err != nil {
-			return out, err
+		// decode, written out: the compiler does not inline it here.
+		var sym int
+		if e := lit.table[b.buf&(1<<primary-1)]; e&15 != 0 && uint(e&15) <= b.n {
+			b.buf >>= e & 15
+			b.n -= uint(e & 15)
+			sym = int(e >> 4)
+		} else if sym = b.decodeLong(lit); sym < 0 {
+			return out, errCorrupt
 		}
 		if sym < 256 {
 			out = append(out, T(sym))
@@ -322,9 +336,13 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 			}
 			n += int(b.take(e))
 		}
-		ds, err := b.decode(dist)
-		if err != nil {
-			return out, err
+		var ds int
+		if e := dist.table[b.buf&(1<<primary-1)]; e&15 != 0 && uint(e&15) <= b.n {
+			b.buf >>= e & 15
+			b.n -= uint(e & 15)
+			ds = int(e >> 4)
+		} else if ds = b.decodeLong(dist); ds < 0 {
+			return out, errCorrupt
 		}
 		if ds >= 30 {
 			return out, errCorrupt
