@@ -4,6 +4,7 @@ import (
 	"bytes"
 	stdgzip "compress/gzip"
 	"errors"
+	"io"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -163,5 +164,48 @@ func TestSplitCorrupt(t *testing.T) {
 	got, _, err := readWhole(t, two, true)
 	if err != nil || !sameBits(got, im.Data) {
 		t.Errorf("two members: %v, equal %v", err, err == nil && sameBits(got, im.Data))
+	}
+}
+
+// TestRunsCompression: a file written with RunsCompression (package
+// gzruns, as tauvox writes its maps) reads back bit for bit, in order and
+// with the split decoder (its blocks are dynamic blocks of 1 MiB of
+// input, which the split finds like any other), and standard gzip reads
+// it too.
+func TestRunsCompression(t *testing.T) {
+	base := splitSeries(t)
+	im := &volume.Image{Dims: [4]int{64, 64, 8, 64}, Affine: volume.Identity()}
+	for range 4 {
+		im.Data = append(im.Data, base.Data...)
+	}
+	for i := 0; i < len(im.Data); i += 7 { // background runs
+		if (i/4096)%3 == 0 {
+			im.Data[i] = float32(math.NaN())
+		}
+	}
+	p := filepath.Join(t.TempDir(), "r.nii.gz")
+	if err := Write(p, im, &WriteOptions{Compression: RunsCompression}); err != nil {
+		t.Fatal(err)
+	}
+	for _, split := range []bool{false, true} {
+		got, used, err := readWhole(t, p, split)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !sameBits(got, im.Data) {
+			t.Errorf("split %v: samples differ", split)
+		}
+		if split && !used {
+			t.Error("the split was not used")
+		}
+	}
+	f, _ := os.Open(p)
+	defer f.Close()
+	zr, err := stdgzip.NewReader(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n, err := io.Copy(io.Discard, zr); err != nil || n != 352+4*int64(len(im.Data)) {
+		t.Errorf("compress/gzip: %d bytes, %v", n, err)
 	}
 }
