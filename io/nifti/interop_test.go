@@ -193,9 +193,9 @@ func tauvoxWritten() map[string]struct {
 		opt *WriteOptions
 	}{
 		"map_runs_f32.nii.gz": {disc, &WriteOptions{Description: "tauvox map, runs compression", Compression: RunsCompression}},
-		"oblique_f32.nii.gz": {oblique, &WriteOptions{Description: "tauvox oblique float32", TimeStep: 10}},
-		"labels_u8.nii":      {labels, &WriteOptions{Datatype: Uint8, Description: "tauvox labels"}},
-		"shear_i16_n2.nii":   {shear, &WriteOptions{Datatype: Int16, Version: 2, Description: "tauvox shear nifti2"}},
+		"oblique_f32.nii.gz":  {oblique, &WriteOptions{Description: "tauvox oblique float32", TimeStep: 10}},
+		"labels_u8.nii":       {labels, &WriteOptions{Datatype: Uint8, Description: "tauvox labels"}},
+		"shear_i16_n2.nii":    {shear, &WriteOptions{Datatype: Int16, Version: 2, Description: "tauvox shear nifti2"}},
 	}
 }
 
