@@ -18,6 +18,7 @@ package gzsplit
 import (
 	"encoding/binary"
 	"errors"
+	mbits "math/bits"
 )
 
 // errCorrupt reports data that is not a valid deflate stream from the
@@ -40,6 +41,10 @@ type huffman struct {
 	count  [maxBits + 1]uint16
 	symbol [288]uint16 // symbols ordered by code
 	long   bool        // some code is longer than primary bits
+	// The state of the canonical decoding in decodeLong after primary
+	// bits that match no shorter code: the first code and the symbol
+	// index of length primary+1.
+	firstLong, indexLong int
 }
 
 // Completeness rules of build.
@@ -79,6 +84,13 @@ func (h *huffman) build(lengths []uint8, rule int) error {
 			offs[l]++
 		}
 	}
+	// decodeLong's state after primary bits (as its loop computes it).
+	first, index := 0, 0
+	for l := 1; l <= primary; l++ {
+		index += int(h.count[l])
+		first = (first + int(h.count[l])) << 1
+	}
+	h.firstLong, h.indexLong = first, index
 	// Fill the table: walk the codes in canonical order.
 	h.table = [1 << primary]uint16{}
 	h.long = false
@@ -174,9 +186,18 @@ func (b *bits) decodeLong(h *huffman) int {
 	if e := h.table[b.buf&(1<<primary-1)]; e&15 != 0 {
 		return -1 // a short code, but fewer bits than it needs
 	}
-	// Canonical decoding one bit at a time (as in zlib's puff.c).
-	code, first, index := 0, 0, 0
-	for l := 1; l <= maxBits; l++ {
+	// Canonical decoding one bit at a time (as in zlib's puff.c), from
+	// length primary+1 when that many bits are loaded: the first primary
+	// bits (the code's most significant, read first) match no shorter
+	// code, as their table entry says.
+	code, first, index, l := 0, 0, 0, 1
+	if b.n >= primary {
+		code = int(mbits.Reverse16(uint16(b.buf&(1<<primary-1)))>>(16-primary)) << 1
+		b.buf >>= primary
+		b.n -= primary
+		first, index, l = h.firstLong, h.indexLong, primary+1
+	}
+	for ; l <= maxBits; l++ {
 		if b.n == 0 {
 			return -1
 		}
