@@ -28,9 +28,9 @@ const DefaultCompression = gzip.BestSpeed
 // gzruns instead of a gzip level: runs of a repeated sample become
 // back-references and every other byte a Huffman-coded literal, with no
 // search for other matches. It suits maps (a background of one value
-// around noise-like numbers): on the 1.57 M-voxel maps of a T2 fit the
-// files are 0.5 % smaller than at BestSpeed for about 25 % less CPU time
-// (measured with the fit's eight maps, docs/benchmarks.md).
+// around noise-like numbers): on the eight 1.57 M-voxel maps of a T2
+// fit the files are 0.6 % smaller than at BestSpeed for about 40 % less
+// CPU time (docs/benchmarks.md; BenchmarkWriteMap in io/gzruns).
 const RunsCompression = -16
 
 // WriteOptions holds the settings of Write. The zero value (and a nil
