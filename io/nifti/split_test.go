@@ -119,6 +119,26 @@ func TestSplitRead(t *testing.T) {
 	}
 }
 
+// TestSplitNoEnd: a file whose second half holds no dynamic block to
+// start from (stored blocks only, gzip level 0) is read whole by the
+// ordinary decoder beside the split, and its trailer checked: the right
+// samples, the split not used; with the trailer's CRC-32 or length
+// changed, an error.
+func TestSplitNoEnd(t *testing.T) {
+	im := splitSeries(t)
+	p := gzipWith(t, im, 0, nil)
+	got, used, err := readWhole(t, p, true)
+	if err != nil || used || !sameBits(got, im.Data) {
+		t.Errorf("stored blocks: error %v, split used %v, samples equal %v", err, used, err == nil && sameBits(got, im.Data))
+	}
+	for _, at := range []int{8, 4} { // CRC-32, ISIZE
+		bad := gzipWith(t, im, 0, func(z []byte) { z[len(z)-at] ^= 1 })
+		if _, _, err := readWhole(t, bad, true); err == nil {
+			t.Errorf("trailer byte %d from the end changed: no error", at)
+		}
+	}
+}
+
 // TestSplitCorrupt: damage in the second half of the compressed data, or
 // a second gzip member after the first, never yields wrong samples: the
 // speculative end fails the CRC-32 of the trailer (or is not taken), the
