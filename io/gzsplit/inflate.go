@@ -9,6 +9,10 @@
 // (Resolve). The caller checks the whole output against the member's
 // CRC-32 (RFC 1952), so a wrong guess is detected and costs only time.
 //
+// Head is the ordinary, in-order decoder of the same blocks for the
+// beginning (it can be told to stop at the end's first block), so that
+// both halves cost the same per compressed byte.
+//
 // The method is that of the two-stage parallel decompressors described by
 // Kerbiriou & Chikhi (2019, "Parallel decompression of gzip-compressed
 // files and random access to DNA sequences", IEEE IPDPSW) and Knespel &
