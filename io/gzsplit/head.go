@@ -70,6 +70,10 @@ func (h *Head) SetStop(bit int64) { h.stop = bit }
 // (exact between blocks, which is where Read decodes the next one).
 func (h *Head) BitPos() int64 { return h.b.bitPos() }
 
+// Drained reports whether all the output decoded so far has been read
+// (BitPos is then where the next output begins).
+func (h *Head) Drained() bool { return h.rd == len(h.out) }
+
 // Consumed returns how many bytes of data the decoder has loaded (its
 // position in the compressed data, up to 8 bytes ahead of what it has
 // used).

@@ -25,14 +25,19 @@ var minSplitBytes int64 = 4 << 20
 // the stop until the end is decoded (or has failed: it then goes on), and
 // the caller checks the whole against the gzip CRC-32.
 type split struct {
-	mu       sync.Mutex
-	limit    int64 // stream offset where the ordinary decoder stops: the end's first byte once accepted
-	tail     *gzsplit.Tail
-	crc      uint32        // CRC-32 of the whole member, from its trailer
-	csBit    int64         // bit offset in all of the candidate end's first block; −1 until found
-	ackBit   int64         // the candidate the ordinary decoder has seen
-	honored  int64         // the candidate the ordinary decoder stops at; −1: none
-	closed   bool          // the read returned: nothing is accepted any more
+	mu      sync.Mutex
+	limit   int64 // stream offset where the ordinary decoder stops: the end's first byte once accepted
+	tail    *gzsplit.Tail
+	crc     uint32 // CRC-32 of the whole member, from its trailer
+	csBit   int64  // bit offset in all of the candidate end's first block; −1 until found
+	ackBit  int64  // the candidate the ordinary decoder has seen
+	honored int64  // the candidate the ordinary decoder stops at; −1: none
+	closed  bool   // the read returned: nothing is accepted any more
+	// Once an end is accepted, the ordinary decoder decides, when it
+	// stops, whether it stopped exactly where the end begins (decided,
+	// abort); only then does the end's goroutine write the destination.
+	decided  bool
+	abort    bool
 	from     int64         // compressed offset where the search for the end starts
 	finished bool          // the end's goroutine has returned
 	changed  chan struct{} // closed (and replaced) when a field above changes
@@ -140,8 +145,22 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		if !ok {
 			return
 		}
-		// Accepted: the destination beyond stopAt is this goroutine's
-		// until done is closed.
+		// Accepted: wait for the ordinary decoder to confirm that it
+		// stopped where the end begins (a damaged trailer could give
+		// another stopAt); the destination beyond stopAt is then this
+		// goroutine's until done is closed.
+		sp.mu.Lock()
+		for !sp.decided {
+			ch := sp.changed
+			sp.mu.Unlock()
+			<-ch
+			sp.mu.Lock()
+		}
+		abort := sp.abort
+		sp.mu.Unlock()
+		if abort {
+			return
+		}
 		rest := t.Rest()
 		sz := int64(r.Header.Datatype.Size())
 		at := stopAt - base + int64(t.HeadLen()) // sample byte where rest begins
@@ -205,10 +224,14 @@ func (sp *split) before(h *gzsplit.Head) {
 		<-ch
 		sp.mu.Lock()
 	}
-	if sp.csBit < 0 || sp.tail != nil || sp.finished {
-		if sp.tail == nil {
-			h.SetStop(-1)
+	if sp.tail != nil {
+		if sp.decided {
+			h.SetStop(-1) // aborted: read on in order
 		}
+		return
+	}
+	if sp.csBit < 0 || sp.finished {
+		h.SetStop(-1)
 		return
 	}
 	if sp.ackBit != sp.csBit {
@@ -238,7 +261,33 @@ func (sp *split) waitAt(pos int64) bool {
 		<-ch
 		sp.mu.Lock()
 	}
-	return sp.tail != nil && sp.limit == pos
+	if sp.tail != nil {
+		sp.decide(pos == sp.limit)
+		return !sp.abort
+	}
+	return false
+}
+
+// decide records, once, whether the end's goroutine may go on (the
+// ordinary decoder stopped exactly where the accepted end begins); sp.mu
+// is held.
+func (sp *split) decide(ok bool) {
+	if sp.tail == nil || sp.decided {
+		return
+	}
+	sp.decided, sp.abort = true, !ok
+	sp.notify()
+}
+
+// stopped is called when the ordinary decoder has stopped reading at
+// pos: an accepted end not yet confirmed at the stop is aborted.
+func (sp *split) stopped() {
+	if sp == nil {
+		return
+	}
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	sp.decide(false)
 }
 
 // close ends the split for a read that returns: no end is accepted from
@@ -249,6 +298,7 @@ func (sp *split) close() {
 	}
 	sp.mu.Lock()
 	sp.closed = true
+	sp.decide(false)
 	sp.notify()
 	accepted := sp.tail != nil
 	sp.mu.Unlock()
@@ -276,6 +326,9 @@ func (sp *split) accepted() bool {
 // fails (the caller then reads the end in order).
 func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte, end int64) bool {
 	<-sp.done // the rest converted, its CRC taken
+	if sp.abort {
+		return false
+	}
 	t := sp.tail
 	if len(win) != 1<<15 {
 		return false

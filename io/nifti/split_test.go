@@ -229,3 +229,35 @@ func TestRunsCompression(t *testing.T) {
 		t.Errorf("compress/gzip: %d bytes, %v", n, err)
 	}
 }
+
+// FuzzSplitRead damages one byte of a compressed series (at a position
+// and with a mask the fuzzer picks, past the first 4 KiB, which hold the
+// header: a damaged header fails at open) and reads it whole with and
+// without the split: where the ordinary decoder succeeds, the split
+// gives the same samples bit for bit; where it fails, so does the split.
+// Seeds: nothing changed, the middle, the trailer.
+func FuzzSplitRead(f *testing.F) {
+	f.Add(uint32(0), byte(0))
+	f.Add(uint32(900_000), byte(0x10))
+	f.Add(uint32(1<<31-8), byte(1))
+	f.Fuzz(func(t *testing.T, at uint32, mask byte) {
+		im := splitSeries(t)
+		p := gzipWith(t, im, 1, func(z []byte) {
+			k := 4096 + int(at)%(len(z)-4096)
+			if at >= 1<<31-8 { // the trailer
+				k = len(z) - 1 - int(at)%8
+			}
+			z[k] ^= mask
+		})
+		want, _, errSeq := readWhole(t, p, false)
+		got, _, errSplit := readWhole(t, p, true)
+		switch {
+		case errSeq == nil && errSplit != nil:
+			t.Fatalf("ordinary read fine, split: %v", errSplit)
+		case errSeq != nil && errSplit == nil:
+			t.Fatalf("ordinary read: %v, split read without error", errSeq)
+		case errSeq == nil && !sameBits(got, want):
+			t.Fatal("split read differs")
+		}
+	})
+}

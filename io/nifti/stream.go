@@ -266,9 +266,11 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	go func() {
 		defer close(done)
 		defer close(full)
+		defer sp.stopped() // an end not confirmed at the stop is not used
 		for pos := base; ; {
 			n := min(int64(seqChunkBytes), sp.limitFor(end)-pos)
 			if n <= 0 {
+				src.atLimit(pos)
 				return
 			}
 			var b []byte
@@ -410,6 +412,19 @@ func (o *ordered) readFull(b []byte) (int, error) {
 		return n + m, err
 	}
 	return n, nil
+}
+
+// atLimit confirms an accepted end when the head, having read to pos,
+// the end's start, stands exactly at its first block with nothing left
+// before it; anything else aborts the end.
+func (o *ordered) atLimit(pos int64) {
+	if o.head == nil || o.sp == nil {
+		return
+	}
+	sp := o.sp
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	sp.decide(pos == sp.limit && o.head.Drained() && o.head.BitPos() == sp.csBit)
 }
 
 // skip reads and drops n bytes from the head (the header, read from the
