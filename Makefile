@@ -38,7 +38,7 @@ slurm-test:
 # make bench: the engine and per-voxel benchmarks on two workers; results
 # and method in docs/benchmarks.md.
 bench:
-	$(GO) test -run '^$$' -bench . -benchtime $(BENCHTIME) -benchmem ./fit/ ./io/nifti/ ./io/dicom/ ./io/gzsplit/ ./io/preview/
+	$(GO) test -run '^$$' -bench . -benchtime $(BENCHTIME) -benchmem ./fit/ ./io/nifti/ ./io/dicom/ ./io/gzsplit/ ./io/gzruns/ ./io/preview/
 
 # make bench-peers: tauvox against a scipy curve_fit voxel loop and a numpy
 # log-linear script on the same generated files, then a pydicom + numpy

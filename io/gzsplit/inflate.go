@@ -9,6 +9,10 @@
 // (Resolve). The caller checks the whole output against the member's
 // CRC-32 (RFC 1952), so a wrong guess is detected and costs only time.
 //
+// Head is the ordinary, in-order decoder of the same blocks for the
+// beginning (it can be told to stop at the end's first block), so that
+// both halves cost the same per compressed byte.
+//
 // The method is that of the two-stage parallel decompressors described by
 // Kerbiriou & Chikhi (2019, "Parallel decompression of gzip-compressed
 // files and random access to DNA sequences", IEEE IPDPSW) and Knespel &
@@ -18,6 +22,7 @@ package gzsplit
 import (
 	"encoding/binary"
 	"errors"
+	mbits "math/bits"
 )
 
 // errCorrupt reports data that is not a valid deflate stream from the
@@ -40,6 +45,10 @@ type huffman struct {
 	count  [maxBits + 1]uint16
 	symbol [288]uint16 // symbols ordered by code
 	long   bool        // some code is longer than primary bits
+	// The state of the canonical decoding in decodeLong after primary
+	// bits that match no shorter code: the first code and the symbol
+	// index of length primary+1.
+	firstLong, indexLong int
 }
 
 // Completeness rules of build.
@@ -79,6 +88,13 @@ func (h *huffman) build(lengths []uint8, rule int) error {
 			offs[l]++
 		}
 	}
+	// decodeLong's state after primary bits (as its loop computes it).
+	first, index := 0, 0
+	for l := 1; l <= primary; l++ {
+		index += int(h.count[l])
+		first = (first + int(h.count[l])) << 1
+	}
+	h.firstLong, h.indexLong = first, index
 	// Fill the table: walk the codes in canonical order.
 	h.table = [1 << primary]uint16{}
 	h.long = false
@@ -153,37 +169,55 @@ func (b *bits) take(k uint) uint64 {
 // data.
 func (b *bits) bitPos() int64 { return int64(b.pos)*8 - int64(b.n) }
 
-// decode reads one symbol of h. Needs at least 15 bits loaded (or the end).
-func (b *bits) decode(h *huffman) (int, error) {
+// decode reads one symbol of h, or returns −1 for data that are not a
+// code of h. Needs at least 15 bits loaded (or the end). The table lookup
+// is small enough to be inlined into the loops; longer codes go to
+// decodeLong.
+func (b *bits) decode(h *huffman) int {
 	e := h.table[b.buf&(1<<primary-1)]
-	if l := uint(e & 15); l != 0 {
-		if l > b.n {
-			return 0, errCorrupt
-		}
-		b.buf >>= l
-		b.n -= l
-		return int(e >> 4), nil
+	l := uint(e & 15)
+	if l == 0 || l > b.n {
+		return b.decodeLong(h)
 	}
-	// Slow path (codes longer than primary bits, or an unused pattern):
-	// canonical decoding one bit at a time (as in zlib's puff.c).
-	code, first, index := 0, 0, 0
-	for l := 1; l <= maxBits; l++ {
+	b.buf >>= l
+	b.n -= l
+	return int(e >> 4)
+}
+
+// decodeLong is the slow path of decode: codes longer than primary bits,
+// an unused pattern, or too few bits left.
+func (b *bits) decodeLong(h *huffman) int {
+	if e := h.table[b.buf&(1<<primary-1)]; e&15 != 0 {
+		return -1 // a short code, but fewer bits than it needs
+	}
+	// Canonical decoding one bit at a time (as in zlib's puff.c), from
+	// length primary+1 when that many bits are loaded: the first primary
+	// bits (the code's most significant, read first) match no shorter
+	// code, as their table entry says.
+	code, first, index, l := 0, 0, 0, 1
+	if b.n >= primary {
+		code = int(mbits.Reverse16(uint16(b.buf&(1<<primary-1)))>>(16-primary)) << 1
+		b.buf >>= primary
+		b.n -= primary
+		first, index, l = h.firstLong, h.indexLong, primary+1
+	}
+	for ; l <= maxBits; l++ {
 		if b.n == 0 {
-			return 0, errCorrupt
+			return -1
 		}
 		code |= int(b.buf & 1)
 		b.buf >>= 1
 		b.n--
 		count := int(h.count[l])
 		if code-count < first {
-			return int(h.symbol[index+(code-first)]), nil
+			return int(h.symbol[index+(code-first)])
 		}
 		index += count
 		first += count
 		first <<= 1
 		code <<= 1
 	}
-	return 0, errCorrupt
+	return -1
 }
 
 var (
@@ -249,9 +283,9 @@ func (b *bits) dynamicHeader(lit, dist *huffman) error {
 	var lengths [286 + 30]uint8
 	for i := 0; i < nlit+ndist; {
 		b.need(maxBits + 7)
-		sym, err := b.decode(&clh)
-		if err != nil {
-			return err
+		sym := b.decode(&clh)
+		if sym < 0 {
+			return errCorrupt
 		}
 		var rep int
 		var val uint8
@@ -300,9 +334,14 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 		if b.n < 48 {
 			b.refill()
 		}
-		sym, err := b.decode(lit)
-		if err != nil {
-			return out, err
+		// decode, written out: the compiler does not inline it here.
+		var sym int
+		if e := lit.table[b.buf&(1<<primary-1)]; e&15 != 0 && uint(e&15) <= b.n {
+			b.buf >>= e & 15
+			b.n -= uint(e & 15)
+			sym = int(e >> 4)
+		} else if sym = b.decodeLong(lit); sym < 0 {
+			return out, errCorrupt
 		}
 		if sym < 256 {
 			out = append(out, T(sym))
@@ -322,9 +361,13 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 			}
 			n += int(b.take(e))
 		}
-		ds, err := b.decode(dist)
-		if err != nil {
-			return out, err
+		var ds int
+		if e := dist.table[b.buf&(1<<primary-1)]; e&15 != 0 && uint(e&15) <= b.n {
+			b.buf >>= e & 15
+			b.n -= uint(e & 15)
+			ds = int(e >> 4)
+		} else if ds = b.decodeLong(dist); ds < 0 {
+			return out, errCorrupt
 		}
 		if ds >= 30 {
 			return out, errCorrupt

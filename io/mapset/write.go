@@ -209,7 +209,7 @@ func NewWriter(st *Stage, outs []Output, dims [3]int, affine volume.Affine, info
 	}
 	grid := [4]int{dims[0], dims[1], dims[2], 1}
 	open := func(stem string, dt nifti.Datatype, meta map[string]any) error {
-		f, err := nifti.Create(st.Path(stem+".nii.gz"), grid, affine, &nifti.WriteOptions{Datatype: dt, Description: "tauvox " + stem})
+		f, err := nifti.Create(st.Path(stem+".nii.gz"), grid, affine, &nifti.WriteOptions{Datatype: dt, Description: "tauvox " + stem, Compression: nifti.RunsCompression})
 		if err != nil {
 			return err
 		}

@@ -178,13 +178,24 @@ func tauvoxWritten() map[string]struct {
 	for i := range shear.Data {
 		shear.Data[i] = float32(i) - 5
 	}
+	// A map as a fit writes it (RunsCompression): a disc of values in a
+	// NaN background, whose runs exceed one match (258 bytes).
+	disc := volume.New(40, 40, 3, 1)
+	for i := range disc.Data {
+		x, y := float64(i%40-20), float64(i/40%40-20)
+		disc.Data[i] = float32(math.NaN())
+		if x*x+y*y < 150 {
+			disc.Data[i] = float32(40+math.Cos(float64(i))*30) / 3
+		}
+	}
 	return map[string]struct {
 		im  *volume.Image
 		opt *WriteOptions
 	}{
-		"oblique_f32.nii.gz": {oblique, &WriteOptions{Description: "tauvox oblique float32", TimeStep: 10}},
-		"labels_u8.nii":      {labels, &WriteOptions{Datatype: Uint8, Description: "tauvox labels"}},
-		"shear_i16_n2.nii":   {shear, &WriteOptions{Datatype: Int16, Version: 2, Description: "tauvox shear nifti2"}},
+		"map_runs_f32.nii.gz": {disc, &WriteOptions{Description: "tauvox map, runs compression", Compression: RunsCompression}},
+		"oblique_f32.nii.gz":  {oblique, &WriteOptions{Description: "tauvox oblique float32", TimeStep: 10}},
+		"labels_u8.nii":       {labels, &WriteOptions{Datatype: Uint8, Description: "tauvox labels"}},
+		"shear_i16_n2.nii":    {shear, &WriteOptions{Datatype: Int16, Version: 2, Description: "tauvox shear nifti2"}},
 	}
 }
 

@@ -6,6 +6,7 @@ import (
 	"math"
 	"runtime"
 	"sync"
+	"sync/atomic"
 
 	"github.com/tauvox/tauvox/io/gzsplit"
 )
@@ -16,27 +17,33 @@ import (
 var minSplitBytes int64 = 4 << 20
 
 // split is the speculative decoding of the second half of a gzip image
-// (package gzsplit) beside the ordinary decoder. The ordinary decoder asks
-// limitFor how far to read; once the end has decoded (and lies ahead of
-// what it already committed to read) the limit becomes that end's first
-// byte, and the caller checks the whole against the gzip CRC-32.
-//
-// The two halves take about the same time (decoding costs about the same
-// per compressed byte), so the ordinary decoder pauses when its next read
-// could reach the compressed offset where the end begins, until the end
-// is decoded (or has failed): without the pause, a near tie would let it
-// run past the end's start and waste the other half's work.
+// (package gzsplit) beside the ordinary decoder, a gzsplit.Head on the
+// same file in memory. As soon as the end's first block is found, the
+// ordinary decoder is told to stop there (Head.SetStop) unless it is past
+// it already, and says which it did; the end is accepted only when the
+// ordinary decoder will stop at its start. The ordinary decoder waits at
+// the stop until the end is decoded (or has failed: it then goes on), and
+// the caller checks the whole against the gzip CRC-32.
 type split struct {
-	mu       sync.Mutex
-	limit    int64 // stream offset where the ordinary decoder stops: the end's first byte once accepted
-	reserved int64 // offset the ordinary decoder has committed to
-	tail     *gzsplit.Tail
-	crc      uint32        // CRC-32 of the whole member, from its trailer
-	cs       int64         // compressed offset of the end's first block; 0 until found
-	from     int64         // compressed offset where the search for it starts
+	mu      sync.Mutex
+	limit   int64 // stream offset where the ordinary decoder stops: the end's first byte once accepted
+	tail    *gzsplit.Tail
+	crc     uint32 // CRC-32 of the whole member, from its trailer
+	csBit   int64  // bit offset in all of the candidate end's first block; −1 until found
+	ackBit  int64  // the candidate the ordinary decoder has seen
+	honored int64  // the candidate the ordinary decoder stops at; −1: none
+	closed  bool   // the read returned: nothing is accepted any more
+	// Once an end is accepted, the ordinary decoder decides, when it
+	// stops, whether it stopped exactly where the end begins (decided,
+	// abort); only then does the end's goroutine write the destination.
+	decided  bool
+	abort    bool
+	from     int64         // compressed offset where the search for the end starts
 	finished bool          // the end's goroutine has returned
-	changed  chan struct{} // closed (and replaced) when cs, tail or finished change
-	raw      *countReader
+	changed  chan struct{} // closed (and replaced) when a field above changes
+	consumed atomic.Int64  // compressed bytes the ordinary decoder has loaded
+	all      []byte        // the whole compressed file
+	dstart   int           // offset of the member's deflate data in all
 	done     chan struct{} // closed when the end is decoded or has failed
 	// Once accepted, the end's goroutine converts the whole samples of
 	// the end's rest (Tail.Rest) into the destination and takes its
@@ -46,16 +53,11 @@ type split struct {
 	restUsed int64 // bytes of the rest converted
 }
 
-// pauseMargin is how far ahead of the end's compressed start the ordinary
-// decoder pauses: one read (at most seqChunkBytes of output, which deflate
-// cannot encode in much more input) plus the read-ahead buffer.
-func pauseMargin() int64 { return int64(seqChunkBytes + 2*chunkBytes) }
-
 // startSplit starts the speculative decoding of a whole-image read whose
 // samples occupy stream bytes base … base+need, or returns nil when it is
 // not worth it (no second CPU, a small file, not allowed the memory).
 func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
-	if r.gzFile == nil || r.gz.raw == nil || r.SplitMemory <= 0 || runtime.GOMAXPROCS(0) < 2 {
+	if r.gzFile == nil || r.SplitMemory <= 0 || runtime.GOMAXPROCS(0) < 2 {
 		return nil
 	}
 	fi, err := r.gzFile.Stat()
@@ -64,15 +66,25 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 	}
 	size := fi.Size()
 	from := size / 2
-	// The compressed half, and the end's output (twice over in the worst
+	// The compressed file, and the end's output (twice over in the worst
 	// case: 16-bit while it holds placeholders).
-	if (size-from)+2*need > r.SplitMemory {
+	if size+2*need > r.SplitMemory {
 		return nil
 	}
-	sp := &split{limit: math.MaxInt64, raw: r.gz.raw, done: make(chan struct{}), from: from, changed: make(chan struct{})}
-	go func(f interface {
-		ReadAt([]byte, int64) (int, error)
-	}) {
+	// Both decoders work from the file in memory, read at once: the
+	// ordinary one (gzsplit.Head, in sequential) from the start, the end's
+	// from the middle.
+	all := make([]byte, size)
+	if n, _ := r.gzFile.ReadAt(all, 0); int64(n) != size {
+		return nil
+	}
+	dstart, err := gzsplit.MemberData(all)
+	if err != nil {
+		return nil
+	}
+	sp := &split{limit: math.MaxInt64, all: all, dstart: dstart, done: make(chan struct{}), from: from,
+		changed: make(chan struct{}), csBit: -1, ackBit: -1, honored: -1}
+	go func() {
 		defer close(sp.done)
 		defer func() {
 			sp.mu.Lock()
@@ -80,10 +92,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 			sp.notify()
 			sp.mu.Unlock()
 		}()
-		data := make([]byte, size-from)
-		if n, _ := f.ReadAt(data, from); n != len(data) {
-			return
-		}
+		data := all[from:]
 		// A header found may be a false positive: try a few.
 		var t *gzsplit.Tail
 		for try, at := 0, 0; try < 8 && t == nil; try++ {
@@ -92,7 +101,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 				return
 			}
 			sp.mu.Lock()
-			sp.cs = from + start/8
+			sp.csBit = from*8 + start
 			sp.notify()
 			sp.mu.Unlock()
 			tail, err := gzsplit.Decode(data, start, int(need))
@@ -116,8 +125,18 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		if stopAt-base < 1<<15 || stopAt >= base+need {
 			return // the window would reach into the header, or no sample is in the end
 		}
+		// Accept only if the ordinary decoder stops at the end's start:
+		// wait until it has seen this candidate (it looks before each
+		// read) or the read has returned.
 		sp.mu.Lock()
-		ok := stopAt >= sp.reserved
+		csBit := sp.csBit
+		for sp.ackBit != csBit && !sp.closed {
+			ch := sp.changed
+			sp.mu.Unlock()
+			<-ch
+			sp.mu.Lock()
+		}
+		ok := !sp.closed && sp.honored == csBit
 		if ok {
 			sp.limit, sp.tail, sp.crc = stopAt, t, crc
 		}
@@ -126,8 +145,22 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		if !ok {
 			return
 		}
-		// Accepted: the destination beyond stopAt is this goroutine's
-		// until done is closed.
+		// Accepted: wait for the ordinary decoder to confirm that it
+		// stopped where the end begins (a damaged trailer could give
+		// another stopAt); the destination beyond stopAt is then this
+		// goroutine's until done is closed.
+		sp.mu.Lock()
+		for !sp.decided {
+			ch := sp.changed
+			sp.mu.Unlock()
+			<-ch
+			sp.mu.Lock()
+		}
+		abort := sp.abort
+		sp.mu.Unlock()
+		if abort {
+			return
+		}
 		rest := t.Rest()
 		sz := int64(r.Header.Datatype.Size())
 		at := stopAt - base + int64(t.HeadLen()) // sample byte where rest begins
@@ -156,7 +189,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		crcA := part(first, mid, rest[:cut])
 		wg.Wait()
 		sp.restCRC = gzsplit.CombineCRC(crcA, crcB, int64(len(rest))-cut)
-	}(r.gzFile)
+	}()
 	return sp
 }
 
@@ -167,32 +200,94 @@ func (sp *split) notify() {
 }
 
 // limitFor returns how far (stream offset, at most end) the ordinary
-// decoder at pos may read, and commits it to that.
-func (sp *split) limitFor(pos, end int64) int64 {
+// decoder may read: the end's start once an end is accepted.
+func (sp *split) limitFor(end int64) int64 {
 	if sp == nil {
 		return end
 	}
 	sp.mu.Lock()
 	defer sp.mu.Unlock()
-	// Pause while the next read could pass the end's start (or, before
-	// that is found, the point where the search for it begins).
-	for !sp.finished && sp.tail == nil {
-		target := sp.cs
-		if target == 0 {
-			target = sp.from
-		}
-		raw := sp.raw.n.Load()
-		if raw >= target || raw+pauseMargin() < target {
-			break
-		}
+	return min(sp.limit, end)
+}
+
+// before sets the stop of the ordinary decoder h before a read: at the
+// candidate end's start when it has not passed it, and records that it
+// has seen the candidate.
+func (sp *split) before(h *gzsplit.Head) {
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	// Before the candidate is known, go no further than the block that
+	// crosses the point where the search for it starts.
+	for sp.csBit < 0 && !sp.finished && !sp.closed && h.BitPos() >= sp.from*8 {
 		ch := sp.changed
 		sp.mu.Unlock()
 		<-ch
 		sp.mu.Lock()
 	}
-	lim := min(sp.limit, end)
-	sp.reserved = min(pos+int64(seqChunkBytes), lim)
-	return lim
+	if sp.tail != nil {
+		if sp.decided {
+			h.SetStop(-1) // aborted: read on in order
+		}
+		return
+	}
+	if sp.csBit < 0 || sp.finished {
+		h.SetStop(-1)
+		return
+	}
+	if sp.ackBit != sp.csBit {
+		sp.ackBit = sp.csBit
+		if h.BitPos() <= sp.csBit {
+			sp.honored = sp.csBit
+		}
+		sp.notify()
+	}
+	if sp.honored == sp.csBit {
+		h.SetStop(sp.csBit)
+	} else {
+		h.SetStop(-1)
+	}
+}
+
+// waitAt waits, with the ordinary decoder at its stop and pos bytes
+// read, until the end is accepted or not. It reports whether the decoder
+// is to stop here (the end was accepted and begins at pos).
+func (sp *split) waitAt(pos int64) bool {
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	cs := sp.honored
+	for sp.tail == nil && !sp.finished && sp.csBit == cs {
+		ch := sp.changed
+		sp.mu.Unlock()
+		<-ch
+		sp.mu.Lock()
+	}
+	if sp.tail != nil {
+		sp.decide(pos == sp.limit)
+		return !sp.abort
+	}
+	return false
+}
+
+// decide records, once, whether the end's goroutine may go on (the
+// ordinary decoder stopped exactly where the accepted end begins); sp.mu
+// is held.
+func (sp *split) decide(ok bool) {
+	if sp.tail == nil || sp.decided {
+		return
+	}
+	sp.decided, sp.abort = true, !ok
+	sp.notify()
+}
+
+// stopped is called when the ordinary decoder has stopped reading at
+// pos: an accepted end not yet confirmed at the stop is aborted.
+func (sp *split) stopped() {
+	if sp == nil {
+		return
+	}
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	sp.decide(false)
 }
 
 // close ends the split for a read that returns: no end is accepted from
@@ -202,7 +297,9 @@ func (sp *split) close() {
 		return
 	}
 	sp.mu.Lock()
-	sp.reserved = math.MaxInt64
+	sp.closed = true
+	sp.decide(false)
+	sp.notify()
 	accepted := sp.tail != nil
 	sp.mu.Unlock()
 	if accepted {
@@ -229,6 +326,9 @@ func (sp *split) accepted() bool {
 // fails (the caller then reads the end in order).
 func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte, end int64) bool {
 	<-sp.done // the rest converted, its CRC taken
+	if sp.abort {
+		return false
+	}
 	t := sp.tail
 	if len(win) != 1<<15 {
 		return false
@@ -253,13 +353,8 @@ func (r *SlabReader) finishSplit(c *converter, sp *split, crc uint32, win []byte
 		c.skip(sp.restUsed)
 	}
 	r.split = true
-	// The end's buffers (its output and the compressed half, about the
-	// size of the image together) are garbage now: collect them at once,
-	// so that what the caller allocates next (the maps) reuses their
-	// memory instead of adding to the peak.
 	sp.mu.Lock()
 	sp.tail = nil
 	sp.mu.Unlock()
-	runtime.GC()
 	return true
 }

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	stdgzip "compress/gzip"
 	"errors"
+	"io"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -118,6 +119,26 @@ func TestSplitRead(t *testing.T) {
 	}
 }
 
+// TestSplitNoEnd: a file whose second half holds no dynamic block to
+// start from (stored blocks only, gzip level 0) is read whole by the
+// ordinary decoder beside the split, and its trailer checked: the right
+// samples, the split not used; with the trailer's CRC-32 or length
+// changed, an error.
+func TestSplitNoEnd(t *testing.T) {
+	im := splitSeries(t)
+	p := gzipWith(t, im, 0, nil)
+	got, used, err := readWhole(t, p, true)
+	if err != nil || used || !sameBits(got, im.Data) {
+		t.Errorf("stored blocks: error %v, split used %v, samples equal %v", err, used, err == nil && sameBits(got, im.Data))
+	}
+	for _, at := range []int{8, 4} { // CRC-32, ISIZE
+		bad := gzipWith(t, im, 0, func(z []byte) { z[len(z)-at] ^= 1 })
+		if _, _, err := readWhole(t, bad, true); err == nil {
+			t.Errorf("trailer byte %d from the end changed: no error", at)
+		}
+	}
+}
+
 // TestSplitCorrupt: damage in the second half of the compressed data, or
 // a second gzip member after the first, never yields wrong samples: the
 // speculative end fails the CRC-32 of the trailer (or is not taken), the
@@ -164,4 +185,79 @@ func TestSplitCorrupt(t *testing.T) {
 	if err != nil || !sameBits(got, im.Data) {
 		t.Errorf("two members: %v, equal %v", err, err == nil && sameBits(got, im.Data))
 	}
+}
+
+// TestRunsCompression: a file written with RunsCompression (package
+// gzruns, as tauvox writes its maps) reads back bit for bit, in order and
+// with the split decoder (its blocks are dynamic blocks of 1 MiB of
+// input, which the split finds like any other), and standard gzip reads
+// it too.
+func TestRunsCompression(t *testing.T) {
+	base := splitSeries(t)
+	im := &volume.Image{Dims: [4]int{64, 64, 8, 64}, Affine: volume.Identity()}
+	for range 4 {
+		im.Data = append(im.Data, base.Data...)
+	}
+	for i := 0; i < len(im.Data); i += 7 { // background runs
+		if (i/4096)%3 == 0 {
+			im.Data[i] = float32(math.NaN())
+		}
+	}
+	p := filepath.Join(t.TempDir(), "r.nii.gz")
+	if err := Write(p, im, &WriteOptions{Compression: RunsCompression}); err != nil {
+		t.Fatal(err)
+	}
+	for _, split := range []bool{false, true} {
+		got, used, err := readWhole(t, p, split)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !sameBits(got, im.Data) {
+			t.Errorf("split %v: samples differ", split)
+		}
+		if split && !used {
+			t.Error("the split was not used")
+		}
+	}
+	f, _ := os.Open(p)
+	defer f.Close()
+	zr, err := stdgzip.NewReader(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n, err := io.Copy(io.Discard, zr); err != nil || n != 352+4*int64(len(im.Data)) {
+		t.Errorf("compress/gzip: %d bytes, %v", n, err)
+	}
+}
+
+// FuzzSplitRead damages one byte of a compressed series (at a position
+// and with a mask the fuzzer picks, past the first 4 KiB, which hold the
+// header: a damaged header fails at open) and reads it whole with and
+// without the split: where the ordinary decoder succeeds, the split
+// gives the same samples bit for bit; where it fails, so does the split.
+// Seeds: nothing changed, the middle, the trailer.
+func FuzzSplitRead(f *testing.F) {
+	f.Add(uint32(0), byte(0))
+	f.Add(uint32(900_000), byte(0x10))
+	f.Add(uint32(1<<31-8), byte(1))
+	f.Fuzz(func(t *testing.T, at uint32, mask byte) {
+		im := splitSeries(t)
+		p := gzipWith(t, im, 1, func(z []byte) {
+			k := 4096 + int(at)%(len(z)-4096)
+			if at >= 1<<31-8 { // the trailer
+				k = len(z) - 1 - int(at)%8
+			}
+			z[k] ^= mask
+		})
+		want, _, errSeq := readWhole(t, p, false)
+		got, _, errSplit := readWhole(t, p, true)
+		switch {
+		case errSeq == nil && errSplit != nil:
+			t.Fatalf("ordinary read fine, split: %v", errSplit)
+		case errSeq != nil && errSplit == nil:
+			t.Fatalf("ordinary read: %v, split read without error", errSeq)
+		case errSeq == nil && !sameBits(got, want):
+			t.Fatal("split read differs")
+		}
+	})
 }

@@ -2,6 +2,7 @@ package nifti
 
 import (
 	"bufio"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"hash/crc32"
@@ -9,10 +10,12 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 
 	"github.com/klauspost/compress/gzip"
 	"github.com/tauvox/tauvox/internal/output"
+	"github.com/tauvox/tauvox/io/gzsplit"
 	"github.com/tauvox/tauvox/volume"
 )
 
@@ -232,8 +235,17 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	}
 	sp := r.startSplit(base, need, dst)
 	defer sp.close()
+	// src reads the samples in order: with a split, from gzsplit.Head on
+	// the file in memory (the same decoder as the end's), else from the
+	// stream.
+	src := &ordered{s: s}
 	if sp != nil {
 		s.crc.on = false // the consumer below adds the samples to the CRC
+		src.head = gzsplit.NewHead(sp.all, sp.dstart)
+		src.sp, src.all = sp, sp.all
+		if err := src.skip(base); err != nil {
+			return err
+		}
 	}
 	// One goroutine inflates into a ring of buffers while this one
 	// converts them (and runs VolumeDone): the decompression, inherently
@@ -254,9 +266,11 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	go func() {
 		defer close(done)
 		defer close(full)
+		defer sp.stopped() // an end not confirmed at the stop is not used
 		for pos := base; ; {
-			n := min(int64(seqChunkBytes), sp.limitFor(pos, end)-pos)
+			n := min(int64(seqChunkBytes), sp.limitFor(end)-pos)
 			if n <= 0 {
+				src.atLimit(pos)
 				return
 			}
 			var b []byte
@@ -265,8 +279,8 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 			case <-stop:
 				return
 			}
-			got, err := s.readFull(b[:n])
-			if err == nil && int64(got) < n {
+			got, err := src.readFull(b[:n])
+			if err == nil && int64(got) < n && pos+int64(got) != sp.limitFor(end) {
 				err = short(pos + int64(got) - base)
 			}
 			select {
@@ -277,7 +291,7 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 			if err != nil {
 				return
 			}
-			pos += n
+			pos += int64(got)
 		}
 	}()
 	// On return the producer is stopped and waited for, so that nothing
@@ -307,17 +321,19 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	viaSplit := accepted && r.finishSplit(&c, sp, crc, win, end)
 	if accepted && !viaSplit {
 		// The speculative end failed its check: read it in order.
+		src.sp = nil
 		s.crc.on = true
 		b := make([]byte, seqChunkBytes)
 		for c.pos < need {
 			n := min(int64(seqChunkBytes), need-c.pos)
-			got, err := s.readFull(b[:n])
+			got, err := src.readFull(b[:n])
 			if err != nil {
 				return err
 			}
 			if int64(got) < n {
 				return short(c.pos + int64(got))
 			}
+			crc = crc32.Update(crc, crc32.IEEETable, b[:n])
 			c.add(b[:n])
 		}
 	}
@@ -325,9 +341,131 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 		return formatErr(r.name, "samples missing", io.ErrUnexpectedEOF)
 	}
 	if viaSplit {
-		return nil // the stream stopped at the split: its trailer was checked there
+		// The end's output and the compressed file (about the size of the
+		// image together) are garbage now: collect them at once, so that
+		// what the caller allocates next (the maps) reuses their memory
+		// instead of adding to the peak. The stream stopped at the split;
+		// the trailer was checked there.
+		src.head, src.sp, src.all, sp.all = nil, nil, nil, nil
+		runtime.GC()
+		return nil
+	}
+	if src.head != nil {
+		return src.finish(r.name, crc, base+need)
 	}
 	return s.finish()
+}
+
+// ordered is the in-order source of a sequential read: the stream, or,
+// beside a split, a gzsplit.Head on the compressed file in memory. A
+// gzip file of several members is read by the Head up to the end of its
+// first member, and from there by the stream (which reads members one
+// after another and checks each one's trailer).
+type ordered struct {
+	s    *stream
+	head *gzsplit.Head // nil: read s
+	sp   *split        // the split beside head; nil once it is over
+	all  []byte        // the compressed file head reads
+	pos  int64         // bytes read from head
+}
+
+// readFull reads len(b) bytes, fewer only at the end of the data or,
+// beside a split, where the accepted end begins.
+func (o *ordered) readFull(b []byte) (int, error) {
+	if o.head == nil {
+		return o.s.readFull(b)
+	}
+	n := 0
+	for n < len(b) {
+		if o.sp != nil {
+			o.sp.before(o.head)
+		} else {
+			o.head.SetStop(-1)
+		}
+		m, err := o.head.Read(b[n:])
+		n += m
+		o.pos += int64(m)
+		if o.sp != nil {
+			o.sp.consumed.Store(o.head.Consumed())
+		}
+		switch {
+		case err == nil:
+			continue
+		case err == gzsplit.ErrStop:
+			if o.sp.waitAt(o.pos) {
+				return n, nil
+			}
+			continue
+		case err != io.EOF:
+			return n, formatErr(o.s.name, "corrupt gzip stream", err)
+		case o.head.End()+8 >= len(o.all):
+			return n, nil // the end of the only member
+		}
+		// Another member follows: the stream goes on from here (it has
+		// not been read since the samples began, at o.s.pos).
+		if _, err := io.CopyN(io.Discard, o.s.r, o.pos-o.s.pos); err != nil {
+			return n, o.s.readErr(err)
+		}
+		o.s.pos = o.pos
+		o.head = nil
+		m, err = o.s.readFull(b[n:])
+		return n + m, err
+	}
+	return n, nil
+}
+
+// atLimit confirms an accepted end when the head, having read to pos,
+// the end's start, stands exactly at its first block with nothing left
+// before it; anything else aborts the end.
+func (o *ordered) atLimit(pos int64) {
+	if o.head == nil || o.sp == nil {
+		return
+	}
+	sp := o.sp
+	sp.mu.Lock()
+	defer sp.mu.Unlock()
+	sp.decide(pos == sp.limit && o.head.Drained() && o.head.BitPos() == sp.csBit)
+}
+
+// skip reads and drops n bytes from the head (the header, read from the
+// stream already).
+func (o *ordered) skip(n int64) error {
+	if n == 0 {
+		return nil
+	}
+	got, err := o.readFull(make([]byte, n))
+	if err == nil && int64(got) < n {
+		err = formatErr(o.s.name, "gzip stream ends inside the header", io.ErrUnexpectedEOF)
+	}
+	return err
+}
+
+// finish checks the member's trailer after a read by the head: the
+// CRC-32 (crc, of the stream's first n bytes, the samples' end) and
+// length of everything decoded, the bytes after the samples included
+// (RFC 1952 §2.3.1). As stream.finish, bytes more than 4 KiB past the
+// samples are not looked at.
+func (o *ordered) finish(name string, crc uint32, n int64) error {
+	if o.head == nil {
+		return o.s.finish()
+	}
+	rest, err := io.ReadAll(io.LimitReader(o.head, 4096))
+	if err != nil {
+		return formatErr(name, "corrupt gzip stream", err)
+	}
+	if len(rest) == 4096 {
+		return nil
+	}
+	crc = crc32.Update(crc, crc32.IEEETable, rest)
+	end := o.head.End()
+	t := o.all[end:]
+	if len(t) < 8 {
+		return formatErr(name, "gzip stream ends without its trailer", io.ErrUnexpectedEOF)
+	}
+	if binary.LittleEndian.Uint32(t) != crc || binary.LittleEndian.Uint32(t[4:]) != uint32(n+int64(len(rest))) {
+		return formatErr(name, "corrupt gzip stream", errors.New("gzip: invalid checksum"))
+	}
+	return nil
 }
 
 // converter turns the sample bytes of a sequential read into float32,
@@ -502,7 +640,7 @@ type StreamWriter struct {
 	path      string
 	f         *output.File
 	bw        *bufio.Writer
-	zw        *gzip.Writer
+	zw        io.WriteCloser
 	w         io.Writer
 	dt        Datatype
 	want, got int64
@@ -532,7 +670,7 @@ func Create(path string, dims [4]int, affine volume.Affine, opt *WriteOptions) (
 	sw.bw = bufio.NewWriterSize(f, 1<<20)
 	sw.w = sw.bw
 	if gz {
-		if sw.zw, err = gzip.NewWriterLevel(sw.bw, o.Compression); err != nil {
+		if sw.zw, err = newCompressor(sw.bw, o.Compression); err != nil {
 			sw.Abort()
 			return nil, &fileError{path, "cannot write", err}
 		}
@@ -585,7 +723,7 @@ func checkStream(path string, im *volume.Image, o *WriteOptions) (gz bool, err e
 	if math.IsNaN(o.TimeStep) || math.IsInf(o.TimeStep, 0) || o.TimeStep < 0 {
 		return false, bad(fmt.Sprintf("time step %g ms is not a finite non-negative number", o.TimeStep))
 	}
-	if (o.Compression < gzip.HuffmanOnly || o.Compression > gzip.BestCompression) && gz {
+	if (o.Compression < gzip.HuffmanOnly || o.Compression > gzip.BestCompression) && o.Compression != RunsCompression && gz {
 		return false, bad(fmt.Sprintf("gzip level %d out of range", o.Compression))
 	}
 	return gz, nil

@@ -7,8 +7,10 @@ import (
 	"image/color"
 	"image/png"
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -224,6 +226,70 @@ func TestAutoRange(t *testing.T) {
 		lo, hi := AutoRange(tc.vals)
 		if !scalar.EqualWithinAbsOrRel(lo, tc.lo, 1e-9, 1e-9) || !scalar.EqualWithinAbsOrRel(hi, tc.hi, 1e-9, 1e-9) {
 			t.Errorf("%s: AutoRange = %v, %v; want %v, %v", tc.name, lo, hi, tc.lo, tc.hi)
+		}
+	}
+}
+
+// TestAutoRangeExact checks the binned selection of AutoRange against a
+// full sort of the finite values (Hyndman & Fan definition 7 written out
+// on the sorted copy), exactly, on data that put the percentiles inside
+// crowded bins, across empty ones and at ties, zeros of both signs,
+// negative values and non-finite values.
+func TestAutoRangeExact(t *testing.T) {
+	r := rand.New(rand.NewPCG(5, 6))
+	ref := func(vals []float32) (float64, float64) {
+		var s []float64
+		for _, v := range vals {
+			if f := float64(v); !math.IsNaN(f) && !math.IsInf(f, 0) {
+				s = append(s, f)
+			}
+		}
+		if len(s) == 0 {
+			return math.NaN(), math.NaN()
+		}
+		slices.Sort(s)
+		q := func(p float64) float64 {
+			h := p * float64(len(s)-1)
+			k := int(math.Floor(h))
+			if k >= len(s)-1 {
+				return s[len(s)-1]
+			}
+			return s[k] + (h-float64(k))*(s[k+1]-s[k])
+		}
+		return q(0.01), q(0.99)
+	}
+	gens := map[string]func(i int) float32{
+		"normal":       func(int) float32 { return float32(100 + 30*r.NormFloat64()) },
+		"narrow":       func(int) float32 { return float32(1000 + 1e-3*r.NormFloat64()) },
+		"ties":         func(int) float32 { return float32(r.IntN(4)) },
+		"signed zeros": func(i int) float32 { return float32(math.Copysign(0, float64(i%2*2-1))) * float32(r.IntN(2)) },
+		"negative":     func(int) float32 { return float32(-math.Exp(5 * r.NormFloat64())) },
+		"wide":         func(int) float32 { return float32(math.Exp(40*r.Float64()-20) * float64(r.IntN(3)-1)) },
+		"nan and inf": func(i int) float32 {
+			switch i % 5 {
+			case 0:
+				return float32(math.NaN())
+			case 1:
+				return float32(math.Inf(1 - 2*(i%2)))
+			}
+			return float32(r.ExpFloat64())
+		},
+		"two clusters": func(i int) float32 { return float32(i%2)*1e6 + float32(r.Float64()) },
+	}
+	for name, g := range gens {
+		for _, n := range []int{1, 2, 3, 7, 100, 101, 1000, 100_003} {
+			vals := make([]float32, n)
+			for i := range vals {
+				vals[i] = g(i)
+			}
+			wlo, whi := ref(vals)
+			if math.IsNaN(wlo) { // nothing finite
+				continue
+			}
+			lo, hi := AutoRange(slices.Clone(vals))
+			if whi > wlo && (lo != wlo || hi != whi) {
+				t.Errorf("%s, n %d: AutoRange = %v, %v; the sorted values give %v, %v", name, n, lo, hi, wlo, whi)
+			}
 		}
 	}
 }
