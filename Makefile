@@ -74,6 +74,8 @@ FUZZ_TARGETS := \
 	./io/nifti/:FuzzDecode \
 	./io/nifti/:FuzzDecodeGzip \
 	./io/gzsplit/:FuzzDecode \
+	./io/nifti/:FuzzSplitRead \
+	./io/gzruns/:FuzzRoundTrip \
 	./io/sidecar/:FuzzRead \
 	./io/dicom/:FuzzReadHeader \
 	./io/dicom/:FuzzSeries \
