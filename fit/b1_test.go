@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"sort"
+	"strings"
 	"testing"
 
 	"github.com/tauvox/tauvox/volume"
@@ -180,6 +181,13 @@ func TestB1Protocol(t *testing.T) {
 		if _, err := m.NewFitter(append(acq, acq[0])); err == nil {
 			t.Errorf("%s: three volumes accepted", model)
 		}
+	}
+	// TRs of 20/100 written in ms where a sidecar wants seconds read as
+	// 20000/100000 ms: refused, naming the likely mistake.
+	afi, _ := New(Spec{Model: "b1-afi"})
+	_, err := afi.NewFitter(acqOf(2, func(i int, a *volume.Acquisition) { a.FlipAngle, a.RepetitionTime = 60, []float64{20000, 100000}[i] }))
+	if err == nil || !strings.Contains(err.Error(), "repetition time 20000 ms of volume 1 is implausible for b1-afi") || !strings.Contains(err.Error(), "was 20 ms meant") {
+		t.Errorf("AFI with TRs in seconds-as-ms: %v", err)
 	}
 	// Volume order does not matter.
 	for model, acq := range b1Protocols() {

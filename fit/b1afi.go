@@ -52,6 +52,9 @@ func (m *ActualFlipAngle) NewFitter(acq []volume.Acquisition) (Fitter, error) {
 		if !finite(a.RepetitionTime) || !(a.RepetitionTime > 0) {
 			return nil, protocolErr("repetition time of volume %d is missing or invalid", i+1)
 		}
+		if err := spoiledTRErr(m.Name(), a.RepetitionTime, i+1); err != nil {
+			return nil, err
+		}
 		if !finite(a.FlipAngle) || !(a.FlipAngle > 0 && a.FlipAngle < 180) {
 			return nil, protocolErr("flip angle of volume %d is missing or outside (0°, 180°)", i+1)
 		}

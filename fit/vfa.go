@@ -96,6 +96,9 @@ func (m *VariableFlipAngle) NewFitter(acq []volume.Acquisition) (Fitter, error) 
 		if a.RepetitionTime != tr {
 			return nil, protocolErr("repetition time differs between volumes (%g ms in volume 1, %g ms in volume %d)", tr, a.RepetitionTime, i+1)
 		}
+		if err := spoiledTRErr(m.Name(), a.RepetitionTime, i+1); err != nil {
+			return nil, err
+		}
 		alpha[i] = a.FlipAngle * math.Pi / 180
 		if a.FlipAngle != acq[0].FlipAngle {
 			distinct = true

@@ -254,6 +254,9 @@ func TestVFAProtocolErrors(t *testing.T) {
 		{"missing TR", &VariableFlipAngle{}, noTR, "repetition time of volume 2 is missing or invalid"},
 		{"zero TR", &VariableFlipAngle{}, faAcq([]float64{3, 10}, 0), "repetition time of volume 1 is missing or invalid"},
 		{"differing TR", &VariableFlipAngle{}, differ, "repetition time differs between volumes (15 ms in volume 1, 20 ms in volume 3)"},
+		// A sidecar TR of 15 written in ms where BIDS wants seconds
+		// (0.015) reads as 15000 ms.
+		{"TR in ms read as s", &VariableFlipAngle{}, faAcq([]float64{3, 10, 20}, 15000), "repetition time 15000 ms of volume 1 is implausible for t1-vfa, a spoiled gradient echo (TR of a few to about 100 ms; refused above 1000 ms): was 15 ms meant"},
 		{"one distinct angle", &VariableFlipAngle{}, faAcq([]float64{10, 10, 10}, 15), "all 3 volumes have flip angle 10°; the model needs at least 2 distinct angles"},
 		{"unknown method", &VariableFlipAngle{Estimator: RDNLS}, good, `model t1-vfa has no method "rdnls" (linear, nlls)`},
 	}

@@ -76,6 +76,9 @@ func TestUnitGuards(t *testing.T) {
 		{"vfa sidecar FA in rad", "t1-vfa", func() string {
 			return withSidecar(t, sims["t1-vfa"], func(s map[string]any) { s["FlipAngle"] = []any{0.0349, 0.0873, 0.1745, 0.2618, 0.3491, 0.5236} })
 		}, nil, "look like radians; sidecar flip angles are in degrees (BIDS)"},
+		{"vfa sidecar TR in ms", "t1-vfa", func() string {
+			return withSidecar(t, sims["t1-vfa"], func(s map[string]any) { s["RepetitionTime"] = 15 })
+		}, nil, "repetition time 15000 ms of volume 1 is implausible for t1-vfa, a spoiled gradient echo (TR of a few to about 100 ms; refused above 1000 ms): was 15 ms meant"},
 		{"vfa sidecar FA above 180", "t1-vfa", func() string {
 			return withSidecar(t, sims["t1-vfa"], func(s map[string]any) { s["FlipAngle"] = []any{2, 5, 10, 15, 20, 300} })
 		}, nil, "FlipAngle: 300 degrees is outside (0, 180]"},
