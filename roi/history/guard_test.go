@@ -26,7 +26,7 @@ func guardSeries(dev []float64, tol, unc float64) *Series {
 // tolerance session after session is caught by the mean of its last three
 // sessions; a session outside by less than 2u is reported, not flagged.
 // u is recomputed here from the definition (SD of the other sessions,
-// widened as limitSD does, floored by the measurement only).
+// widened as widenedSD does, floored by the measurement only).
 func TestGuardBand(t *testing.T) {
 	scatter3 := []float64{2.1, -3.4, 0.8, 3.9, -2.6, 1.2, -0.9, 2.8, -3.1}
 	for _, c := range []struct {

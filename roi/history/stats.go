@@ -182,8 +182,10 @@ const (
 	// (Series.Beyond, Series.LevelBeyond), or a significant drift crosses
 	// the tolerance within the horizon.
 	FindingAction = "action"
-	// FindingWatch: a statistical signal (a rule) inside tolerance, or an
-	// earlier session beyond tolerance.
+	// FindingWatch: a statistical signal (a rule) on the last session
+	// inside tolerance, or a drift that does not reach the tolerance
+	// within the horizon. Flags of earlier sessions are noted in Reasons
+	// without flagging the series.
 	FindingWatch = "watch"
 	// FindingOK: judged, nothing found.
 	FindingOK = "ok"
@@ -402,8 +404,8 @@ func (s *Series) analyse(set *Settings) {
 	// the fixed limits.
 	fixedSD, fixedU, baseSD, baseK := math.NaN(), math.NaN(), math.NaN(), 0
 	if s.Complete {
-		fixedSD = limitSD(s.Value, base, -1, s.BaselineMean, s.Floor, &scratch)
-		fixedU = limitSD(s.Value, base, -1, s.BaselineMean, s.MeasFloor, &scratch)
+		w := widenedSD(s.Value, base, -1, s.BaselineMean, &scratch)
+		fixedSD, fixedU = floored(w, s.Floor), floored(w, s.MeasFloor)
 		baseSD, baseK = poolSD(s.Value, base, -1, s.BaselineMean, &scratch)
 	}
 	for _, i := range finite {
@@ -421,8 +423,8 @@ func (s *Series) analyse(set *Settings) {
 			s.Mode[i] = ModeLeaveOneOut
 			c := median(s.Value, pool, i, &scratch)
 			s.Centre[i] = c
-			s.SD[i] = limitSD(s.Value, pool, i, c, s.Floor, &scratch)
-			s.Guard[i] = 2 * limitSD(s.Value, pool, i, c, s.MeasFloor, &scratch)
+			w := widenedSD(s.Value, pool, i, c, &scratch)
+			s.SD[i], s.Guard[i] = floored(w, s.Floor), 2*floored(w, s.MeasFloor)
 		}
 		s.Beyond[i] = s.Outside[i] && finiteF(s.Guard[i]) && math.Abs(s.Value[i]) > s.TolPct[i]+s.Guard[i]
 	}
@@ -517,13 +519,14 @@ func (s *Series) judge(set *Settings, finite []int) {
 	if len(earlier) > 0 {
 		note = append(note, fmt.Sprintf("earlier flagged session(s): %s", strings.Join(earlier, ", ")))
 	}
+	s.Reasons = append(append(action, watch...), note...)
 	switch {
 	case len(action) > 0:
-		s.Finding, s.Reasons = FindingAction, append(append(action, watch...), note...)
+		s.Finding = FindingAction
 	case len(watch) > 0:
-		s.Finding, s.Reasons = FindingWatch, append(watch, note...)
+		s.Finding = FindingWatch
 	default:
-		s.Finding, s.Reasons = FindingOK, note
+		s.Finding = FindingOK
 	}
 }
 
@@ -638,10 +641,10 @@ func (s *Series) floor(set *Settings) (float64, string, float64) {
 	return f, from, meas
 }
 
-// limitSD is the SD the rules use for a point judged against the values
-// of v over idx without skip, centred on their median c:
+// widenedSD is the SD of a point judged against the values of v over idx
+// without skip, centred on their median c, before any floor:
 //
-//	max(s·√(1 + π/(2k))·t(k−1)/3, floor)
+//	s·√(1 + π/(2k))·t(k−1)/3
 //
 // s is the SD of those values after setting aside any beyond 3.5 robust
 // SDs (1.4826·MAD) of c, so one excursion in the pool does not widen the
@@ -651,16 +654,27 @@ func (s *Series) floor(set *Settings) (float64, string, float64) {
 // quantile of Φ(3) = 0.99865, for the uncertainty of s: a new in-control
 // value then lies beyond 3 such SDs as rarely as a normal value beyond 3σ
 // (the prediction interval, e.g. Hahn & Meeker, Statistical Intervals,
-// 1991, ch. 4, from memory). The floor is a known SD and is not widened.
-func limitSD(v []float64, idx []int, skip int, c, floor float64, scratch *[]float64) float64 {
+// 1991, ch. 4, from memory). NaN with fewer than 2 values kept. The rules
+// use it at least at Series.Floor, the guard band at Series.MeasFloor
+// (floored); a floor is a known SD and is not widened.
+func widenedSD(v []float64, idx []int, skip int, c float64, scratch *[]float64) float64 {
 	sd, k := poolSD(v, idx, skip, c, scratch)
 	if k < 2 {
-		return floor
+		return math.NaN()
 	}
-	return math.Max(sd*math.Sqrt(1+math.Pi/(2*float64(k)))*tFactor(k-1), floor)
+	return sd * math.Sqrt(1+math.Pi/(2*float64(k))) * tFactor(k-1)
 }
 
-// poolSD is the SD of v over idx without skip, trimmed as limitSD says,
+// floored is sd, at least floor; floor alone when sd is NaN (too few
+// values to estimate it).
+func floored(sd, floor float64) float64 {
+	if math.IsNaN(sd) {
+		return floor
+	}
+	return math.Max(sd, floor)
+}
+
+// poolSD is the SD of v over idx without skip, trimmed as widenedSD says,
 // and the number of values kept.
 func poolSD(v []float64, idx []int, skip int, c float64, scratch *[]float64) (float64, int) {
 	mad := math.NaN() // no trimming in small pools: their MAD is too unsure
@@ -949,7 +963,7 @@ func drift(ps []Point, v []float64, conf float64) (slope, lo, hi float64) {
 	return slope, slope - tq*se, slope + tq*se
 }
 
-// Trimming of the pools in limitSD: values beyond trimAt robust SDs of the
+// Trimming of the pools in widenedSD: values beyond trimAt robust SDs of the
 // median are set aside in pools of more than trimFrom values (in smaller
 // ones the MAD itself is too unsure and trimming made the limits narrow:
 // 1.3–1.8 % of in-control sessions flagged at 3 % scatter with 6–12
