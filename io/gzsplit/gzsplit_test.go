@@ -188,3 +188,70 @@ func BenchmarkInflate(b *testing.B) {
 		}
 	})
 }
+
+// TestPlausibleQuickCheck: the completeness test of the code-length code
+// that plausible makes first (clComplete, RFC 1951 §3.2.7: a complete
+// prefix code has Kraft sum 1) rejects no position that the full header
+// check (dynamicHeader) accepts, and accepts every true block start: over
+// every bit position of the first 64 KiB of streams from each compressor
+// of TestTailMatchesStream, both tests give the same answer.
+func TestPlausibleQuickCheck(t *testing.T) {
+	for _, c := range compressors() {
+		var buf bytes.Buffer
+		w := c.make(&buf)
+		w.Write(testData("float", 1<<20, 3))
+		w.Close()
+		z := buf.Bytes()
+		limit := min(len(z)-8, 64<<10)
+		accepted := 0
+		for pos := int64(0); pos < int64(limit)*8; pos++ {
+			b := &bits{data: z, pos: int(pos / 8)}
+			b.refill()
+			b.take(uint(pos % 8))
+			b.take(3)
+			var lit, dist huffman
+			full := b.dynamicHeader(&lit, &dist) == nil
+			if got := plausible(z, pos); got != full {
+				t.Fatalf("%s: bit %d: plausible %v, full header check %v", c.name, pos, got, full)
+			}
+			if full {
+				accepted++
+			}
+		}
+		t.Logf("%s: %d positions of %d accepted", c.name, accepted, limit*8)
+	}
+}
+
+// TestResolveHalves: a head of placeholders large enough to be filled in
+// two halves at once resolves to the same bytes as one pass, element by
+// element (literals kept, each placeholder from its window byte).
+func TestResolveHalves(t *testing.T) {
+	r := rand.New(rand.NewPCG(11, 12))
+	win := make([]byte, windowSize)
+	for i := range win {
+		win[i] = byte(r.Uint32())
+	}
+	for _, n := range []int{10, 1<<20 - 1, 1 << 20, 3_000_001} {
+		tl := &Tail{head: make([]uint16, n), rest: []byte{1, 2, 3}}
+		for i := range tl.head {
+			if r.IntN(3) == 0 {
+				tl.head[i] = uint16(marker + r.IntN(windowSize))
+			} else {
+				tl.head[i] = uint16(r.IntN(256))
+			}
+		}
+		head, rest, err := tl.Resolve(win)
+		if err != nil || len(head) != n || !bytes.Equal(rest, tl.rest) {
+			t.Fatalf("n=%d: %d bytes, rest %v, err %v", n, len(head), rest, err)
+		}
+		for i, v := range tl.head {
+			want := byte(v)
+			if v >= marker {
+				want = win[v-marker]
+			}
+			if head[i] != want {
+				t.Fatalf("n=%d: byte %d = %d, want %d", n, i, head[i], want)
+			}
+		}
+	}
+}

@@ -23,6 +23,8 @@ import (
 	"encoding/binary"
 	"errors"
 	mbits "math/bits"
+	"slices"
+	"unsafe"
 )
 
 // errCorrupt reports data that is not a valid deflate stream from the
@@ -33,15 +35,22 @@ const (
 	windowSize = 1 << 15 // deflate's largest distance
 	primary    = 10      // bits of the first-level Huffman table
 	maxBits    = 15
-	// A table entry holds the symbol in its upper bits and the code
-	// length in its low 4 bits; length 0 marks a code longer than the
-	// primary table, decoded by the slow path.
+	// A table entry (uint32) holds the code length in bits 0–3 (0 marks
+	// a code longer than the primary table, decoded by the slow path),
+	// the number of extra bits that follow the code in bits 4–7, flags
+	// in bits 8–15 and a value in bits 16–31: the symbol of a plain code;
+	// for the literal/length code the literal byte or the length's base;
+	// for the distance code the distance's base (RFC 1951 §3.2.5). The
+	// decoder then needs no second lookup of what a symbol means.
+	isLiteral = 1 << 8
+	isEnd     = 1 << 9  // end of block
+	isInvalid = 1 << 10 // a symbol no valid stream uses (286, 287; distances 30, 31)
 )
 
 // huffman is a canonical Huffman code (RFC 1951 §3.2.2) with a lookup
 // table for codes up to primary bits and counts for the rest.
 type huffman struct {
-	table  [1 << primary]uint16
+	table  [1 << primary]uint32
 	count  [maxBits + 1]uint16
 	symbol [288]uint16 // symbols ordered by code
 	long   bool        // some code is longer than primary bits
@@ -58,10 +67,11 @@ const (
 	any             // or anything not over-subscribed (the fixed distance code)
 )
 
-// build makes the code of the given lengths (0 = unused symbol). It
-// refuses over-subscribed codes and incomplete ones beyond what rule
-// allows.
-func (h *huffman) build(lengths []uint8, rule int) error {
+// build makes the code of the given lengths (0 = unused symbol), with
+// table entries from info (litInfo, distInfo; nil: a plain code whose
+// entries hold the symbol). It refuses over-subscribed codes and
+// incomplete ones beyond what rule allows.
+func (h *huffman) build(lengths []uint8, rule int, info []uint32) error {
 	h.count = [maxBits + 1]uint16{}
 	for _, l := range lengths {
 		h.count[l]++
@@ -96,14 +106,18 @@ func (h *huffman) build(lengths []uint8, rule int) error {
 	}
 	h.firstLong, h.indexLong = first, index
 	// Fill the table: walk the codes in canonical order.
-	h.table = [1 << primary]uint16{}
+	h.table = [1 << primary]uint32{}
 	h.long = false
 	code, idx := 0, 0
 	for l := 1; l <= maxBits; l++ {
 		for k := 0; k < int(h.count[l]); k++ {
 			if l <= primary {
 				rev := reverse(code, l)
-				e := h.symbol[idx]<<4 | uint16(l)
+				sym := h.symbol[idx]
+				e := uint32(sym)<<16 | uint32(l)
+				if info != nil {
+					e = info[sym] | uint32(l)
+				}
 				for j := rev; j < 1<<primary; j += 1 << l {
 					h.table[j] = e
 				}
@@ -181,7 +195,7 @@ func (b *bits) decode(h *huffman) int {
 	}
 	b.buf >>= l
 	b.n -= l
-	return int(e >> 4)
+	return int(e >> 16)
 }
 
 // decodeLong is the slow path of decode: codes longer than primary bits,
@@ -227,11 +241,34 @@ var (
 	distExtra   = [30]uint8{0, 0, 0, 0, 1, 1, 2, 2, 3, 3, 4, 4, 5, 5, 6, 6, 7, 7, 8, 8, 9, 9, 10, 10, 11, 11, 12, 12, 13, 13}
 	// clOrder is the order of the code-length code lengths (RFC 1951 §3.2.7).
 	clOrder = [19]uint8{16, 17, 18, 0, 8, 7, 9, 6, 10, 5, 11, 4, 12, 3, 13, 2, 14, 1, 15}
+	// litInfo and distInfo are the table entries (without the code
+	// length) of each literal/length and distance symbol.
+	litInfo  [288]uint32
+	distInfo [32]uint32
 )
 
 var fixedLit, fixedDist huffman
 
 func init() {
+	for s := range litInfo {
+		switch {
+		case s < 256:
+			litInfo[s] = uint32(s)<<16 | isLiteral
+		case s == 256:
+			litInfo[s] = isEnd
+		case s < 257+29:
+			litInfo[s] = uint32(lengthBase[s-257])<<16 | uint32(lengthExtra[s-257])<<4
+		default:
+			litInfo[s] = isInvalid
+		}
+	}
+	for s := range distInfo {
+		if s < 30 {
+			distInfo[s] = uint32(distBase[s])<<16 | uint32(distExtra[s])<<4
+		} else {
+			distInfo[s] = isInvalid
+		}
+	}
 	var l [288]uint8
 	for i := range l {
 		switch {
@@ -245,14 +282,14 @@ func init() {
 			l[i] = 8
 		}
 	}
-	if err := fixedLit.build(l[:], complete); err != nil {
+	if err := fixedLit.build(l[:], complete, litInfo[:]); err != nil {
 		panic(err)
 	}
 	var d [30]uint8
 	for i := range d {
 		d[i] = 5
 	}
-	if err := fixedDist.build(d[:], any); err != nil {
+	if err := fixedDist.build(d[:], any, distInfo[:]); err != nil {
 		panic(err)
 	}
 }
@@ -277,7 +314,7 @@ func (b *bits) dynamicHeader(lit, dist *huffman) error {
 		cl[clOrder[i]] = uint8(b.take(3))
 	}
 	var clh huffman
-	if err := clh.build(cl[:], complete); err != nil {
+	if err := clh.build(cl[:], complete, nil); err != nil {
 		return err
 	}
 	var lengths [286 + 30]uint8
@@ -321,76 +358,147 @@ func (b *bits) dynamicHeader(lit, dist *huffman) error {
 	if lengths[256] == 0 { // no end-of-block code
 		return errCorrupt
 	}
-	if err := lit.build(lengths[:nlit], single); err != nil {
+	if err := lit.build(lengths[:nlit], single, litInfo[:]); err != nil {
 		return err
 	}
-	return dist.build(lengths[nlit:nlit+ndist], single)
+	return dist.build(lengths[nlit:nlit+ndist], single, distInfo[:])
 }
 
 // symbols decodes the compressed data of one block into out (whose
 // earlier part is the window), returning out extended.
 func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error) {
+	// The bit reader's state lives in locals for the loop (the compiler
+	// keeps them in registers; through b every step would be a load and
+	// a store), and goes back to b around the slow paths and on return (save).
+	buf, nb, pos, data := b.buf, b.n, b.pos, b.data
 	for {
-		if b.n < 48 {
-			b.refill()
+		// Room for the longest match and the 8 bytes a word copy may
+		// write past it.
+		if cap(out)-len(out) < maxMatch+8 {
+			out = slices.Grow(out, maxMatch+8)
+		}
+		if nb < 48 {
+			if pos+8 <= len(data) {
+				buf |= binary.LittleEndian.Uint64(data[pos:]) << nb
+				pos += int((63 - nb) >> 3)
+				nb |= 56
+			} else {
+				b.buf, b.n, b.pos = buf, nb, pos
+				b.refill()
+				buf, nb, pos = b.buf, b.n, b.pos
+			}
 		}
 		// decode, written out: the compiler does not inline it here.
-		var sym int
-		if e := lit.table[b.buf&(1<<primary-1)]; e&15 != 0 && uint(e&15) <= b.n {
-			b.buf >>= e & 15
-			b.n -= uint(e & 15)
-			sym = int(e >> 4)
-		} else if sym = b.decodeLong(lit); sym < 0 {
-			return out, errCorrupt
+		e := lit.table[buf&(1<<primary-1)]
+		if l := uint(e & 15); l != 0 && l <= nb {
+			buf >>= l
+			nb -= l
+		} else {
+			b.buf, b.n, b.pos = buf, nb, pos
+			sym := b.decodeLong(lit)
+			buf, nb, pos = b.buf, b.n, b.pos
+			if sym < 0 {
+				return save(b, buf, nb, pos, out, errCorrupt)
+			}
+			e = litInfo[sym]
 		}
-		if sym < 256 {
-			out = append(out, T(sym))
+		if e&isLiteral != 0 {
+			out = append(out, T(e>>16))
 			continue
 		}
-		if sym == 256 {
-			return out, nil
-		}
-		sym -= 257
-		if sym >= 29 {
-			return out, errCorrupt
-		}
-		n := int(lengthBase[sym])
-		if e := uint(lengthExtra[sym]); e > 0 {
-			if b.n < e {
-				return out, errCorrupt
+		if e&(isEnd|isInvalid) != 0 {
+			if e&isEnd != 0 {
+				return save(b, buf, nb, pos, out, nil)
 			}
-			n += int(b.take(e))
+			return save(b, buf, nb, pos, out, errCorrupt)
 		}
-		var ds int
-		if e := dist.table[b.buf&(1<<primary-1)]; e&15 != 0 && uint(e&15) <= b.n {
-			b.buf >>= e & 15
-			b.n -= uint(e & 15)
-			ds = int(e >> 4)
-		} else if ds = b.decodeLong(dist); ds < 0 {
-			return out, errCorrupt
-		}
-		if ds >= 30 {
-			return out, errCorrupt
-		}
-		d := int(distBase[ds])
-		if e := uint(distExtra[ds]); e > 0 {
-			if b.n < e {
-				return out, errCorrupt
+		n := int(e >> 16)
+		if x := uint(e >> 4 & 15); x > 0 {
+			if nb < x {
+				return save(b, buf, nb, pos, out, errCorrupt)
 			}
-			d += int(b.take(e))
+			n += int(buf & (1<<x - 1))
+			buf >>= x
+			nb -= x
 		}
-		from := len(out) - d
-		if from < 0 {
-			return out, errCorrupt
-		}
-		if d >= n {
-			out = append(out, out[from:from+n]...)
+		e = dist.table[buf&(1<<primary-1)]
+		if l := uint(e & 15); l != 0 && l <= nb {
+			buf >>= l
+			nb -= l
 		} else {
-			for k := 0; k < n; k++ {
-				out = append(out, out[from+k])
+			b.buf, b.n, b.pos = buf, nb, pos
+			ds := b.decodeLong(dist)
+			buf, nb, pos = b.buf, b.n, b.pos
+			if ds < 0 {
+				return save(b, buf, nb, pos, out, errCorrupt)
 			}
+			e = distInfo[ds&31]
+		}
+		if e&isInvalid != 0 {
+			return save(b, buf, nb, pos, out, errCorrupt)
+		}
+		d := int(e >> 16)
+		if x := uint(e >> 4 & 15); x > 0 {
+			if nb < x {
+				return save(b, buf, nb, pos, out, errCorrupt)
+			}
+			d += int(buf & (1<<x - 1))
+			buf >>= x
+			nb -= x
+		}
+		o := len(out)
+		from := o - d
+		if from < 0 {
+			return save(b, buf, nb, pos, out, errCorrupt)
+		}
+		// The copy, written out (the method is described at copyNear):
+		// most matches of float samples are 3 or 4 bytes from far back.
+		if sz := int(unsafe.Sizeof(T(0))); d >= 8/sz {
+			all := unsafe.Slice((*byte)(unsafe.Pointer(unsafe.SliceData(out))), cap(out)*sz)
+			for k := 0; k < n*sz; k += 8 {
+				binary.LittleEndian.PutUint64(all[o*sz+k:], binary.LittleEndian.Uint64(all[from*sz+k:]))
+			}
+			out = out[:o+n]
+		} else if sz == 1 && d >= 4 {
+			// 4 bytes back (the period of float32 samples) to 7: the
+			// same in words of 4 bytes.
+			all := unsafe.Slice((*byte)(unsafe.Pointer(unsafe.SliceData(out))), cap(out))
+			for k := 0; k < n; k += 4 {
+				binary.LittleEndian.PutUint32(all[o+k:], binary.LittleEndian.Uint32(all[from+k:]))
+			}
+			out = out[:o+n]
+		} else {
+			out = copyNear(out, from, n)
 		}
 	}
+}
+
+// save stores the bit reader's state kept in symbols' locals, and
+// returns symbols' results.
+func save[T uint8 | uint16](b *bits, buf uint64, n uint, pos int, out []T, err error) ([]T, error) {
+	b.buf, b.n, b.pos = buf, n, pos
+	return out, err
+}
+
+// maxMatch is deflate's longest match.
+const maxMatch = 258
+
+// A match appends out[from:from+n] to out, byte by byte in
+// effect (a match may overlap its own output). symbols has made room for
+// n more elements and 8 bytes beyond, so a match from at least 8 bytes
+// back is copied 8 bytes at a time as unaligned words, which costs less
+// than a call of memmove for the short matches of float samples. The
+// source of each word ends before the word it is copied to begins, so
+// every byte read has been written; a word may reach past the match's end
+// into the room after it, which later output overwrites. Nearer matches
+// go to copyNear.
+
+// copyNear appends out[from:from+n] to out one element at a time.
+func copyNear[T uint8 | uint16](out []T, from, n int) []T {
+	for k := range n {
+		out = append(out, out[from+k])
+	}
+	return out
 }
 
 // stored copies a stored block (after its 3 header bits).

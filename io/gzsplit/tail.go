@@ -38,14 +38,33 @@ func (t *Tail) Resolve(window []byte) (head, rest []byte, err error) {
 		return nil, nil, errors.New("gzsplit: window must be 32 KiB")
 	}
 	head = make([]byte, len(t.head))
-	for i, v := range t.head {
+	// The caller waits for this (the ordinary decoder is done): a large
+	// head is filled in two halves at once.
+	h := len(t.head) / 2
+	if h < 1<<19 {
+		resolve(head, t.head, window)
+		return head, t.rest, nil
+	}
+	done := make(chan struct{})
+	go func() {
+		resolve(head[h:], t.head[h:], window)
+		close(done)
+	}()
+	resolve(head[:h], t.head[:h], window)
+	<-done
+	return head, t.rest, nil
+}
+
+// resolve writes src into dst with each placeholder replaced by its byte
+// of window.
+func resolve(dst []byte, src []uint16, window []byte) {
+	for i, v := range src {
 		if v < marker {
-			head[i] = byte(v)
+			dst[i] = byte(v)
 		} else {
-			head[i] = window[v-marker]
+			dst[i] = window[v-marker]
 		}
 	}
-	return head, t.rest, nil
 }
 
 // Decode decodes data from bit offset start, a block boundary, to the end
@@ -85,7 +104,7 @@ func Decode(data []byte, start int64, sizeHint int) (*Tail, error) {
 	if !final {
 		// Second stage: bytes, behind the last 32 KiB of the first (free of
 		// placeholders).
-		rest := make([]byte, windowSize, windowSize+max(sizeHint-len(t.head), 1<<16))
+		rest := make([]byte, windowSize, windowSize+max(sizeHint-len(t.head), 1<<16)+maxMatch+8)
 		for i, v := range head[len(head)-windowSize:] {
 			rest[i] = byte(v)
 		}
@@ -141,14 +160,41 @@ func Find(data []byte, from, limit int) (int64, bool) {
 }
 
 // plausible checks the code definitions of a dynamic block header at bit
-// offset start.
+// offset start. The code-length code comes first and must be complete
+// (its Kraft sum exactly 1): most positions that pass Find's first test
+// fail this one, which costs a few shifts, before any table is built.
 func plausible(data []byte, start int64) bool {
 	b := &bits{data: data, pos: int(start / 8)}
 	b.refill()
 	b.take(uint(start % 8))
 	b.take(3)
+	if c := *b; !clComplete(&c) {
+		return false
+	}
 	var lit, dist huffman
 	return b.dynamicHeader(&lit, &dist) == nil
+}
+
+// clComplete reports whether the code-length code of a dynamic block
+// header read by b (after BFINAL and BTYPE) is a complete prefix code:
+// HCLEN+4 lengths of 3 bits after HLIT, HDIST and HCLEN (RFC 1951
+// §3.2.7), whose Kraft sum Σ 2^(7−l) over the nonzero lengths l must be
+// 2^7. Data too short to tell are left to dynamicHeader.
+func clComplete(b *bits) bool {
+	if !b.need(14) {
+		return true
+	}
+	nclen := int(b.take(14)>>10) + 4
+	sum := 0
+	for range nclen {
+		if !b.need(3) {
+			return true
+		}
+		if l := b.take(3); l != 0 {
+			sum += 1 << (7 - l)
+		}
+	}
+	return sum == 1<<7
 }
 
 // HeadLen returns the length of the part of the tail that may hold
