@@ -509,6 +509,15 @@ func convert(dst []float32, src []byte, dt Datatype, o binary.ByteOrder, sc scal
 			dst[i] = sc.apply(float64(le.Uint64(src[8*i:])))
 		}
 	case Float32:
+		if nativeLE && (!sc.on || sc.slope == 1 && sc.inter == 0) {
+			// The samples, little-endian by now, are the bytes of dst as it
+			// lies in memory: one copy, bit for bit (NaN payloads too). The
+			// identity scaling (slope 1, intercept 0, which nibabel writes
+			// for float data) is taken as none: the value of every sample is
+			// the same, and a stored −0 stays −0 instead of becoming +0.
+			copy(float32Bytes(dst), src[:4*len(dst)])
+			return
+		}
 		if !sc.on {
 			for i := range dst {
 				dst[i] = math.Float32frombits(le.Uint32(src[4*i:]))

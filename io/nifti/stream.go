@@ -382,7 +382,7 @@ func (o *ordered) readFull(b []byte) (int, error) {
 		} else {
 			o.head.SetStop(-1)
 		}
-		m, err := o.head.Read(b[n:])
+		m, err := o.read(b[n:])
 		n += m
 		o.pos += int64(m)
 		if o.sp != nil {
@@ -396,6 +396,8 @@ func (o *ordered) readFull(b []byte) (int, error) {
 				return n, nil
 			}
 			continue
+		case err == errChanged:
+			return n, &fileError{o.s.name, "cannot read", err}
 		case err != io.EOF:
 			return n, formatErr(o.s.name, "corrupt gzip stream", err)
 		case o.head.End()+8 >= len(o.all):
@@ -413,6 +415,20 @@ func (o *ordered) readFull(b []byte) (int, error) {
 	}
 	return n, nil
 }
+
+// read reads from head, the decoder of the file in memory (mapped: a
+// fault there, the file changed under it, comes back as errChanged).
+func (o *ordered) read(p []byte) (n int, err error) {
+	if gerr := guard(o.all, func() { n, err = o.head.Read(p) }); gerr != nil {
+		return n, gerr
+	}
+	return n, err
+}
+
+// readerFunc is a function as an io.Reader.
+type readerFunc func([]byte) (int, error)
+
+func (f readerFunc) Read(p []byte) (int, error) { return f(p) }
 
 // atLimit confirms an accepted end when the head, having read to pos,
 // the end's start, stands exactly at its first block with nothing left
@@ -449,7 +465,10 @@ func (o *ordered) finish(name string, crc uint32, n int64) error {
 	if o.head == nil {
 		return o.s.finish()
 	}
-	rest, err := io.ReadAll(io.LimitReader(o.head, 4096))
+	rest, err := io.ReadAll(io.LimitReader(readerFunc(o.read), 4096))
+	if err == errChanged {
+		return &fileError{name, "cannot read", err}
+	}
 	if err != nil {
 		return formatErr(name, "corrupt gzip stream", err)
 	}
@@ -458,11 +477,15 @@ func (o *ordered) finish(name string, crc uint32, n int64) error {
 	}
 	crc = crc32.Update(crc, crc32.IEEETable, rest)
 	end := o.head.End()
-	t := o.all[end:]
-	if len(t) < 8 {
+	var t [8]byte
+	var k int
+	if err := guard(o.all, func() { k = copy(t[:], o.all[end:]) }); err != nil {
+		return &fileError{name, "cannot read", err}
+	}
+	if k < 8 {
 		return formatErr(name, "gzip stream ends without its trailer", io.ErrUnexpectedEOF)
 	}
-	if binary.LittleEndian.Uint32(t) != crc || binary.LittleEndian.Uint32(t[4:]) != uint32(n+int64(len(rest))) {
+	if binary.LittleEndian.Uint32(t[:]) != crc || binary.LittleEndian.Uint32(t[4:]) != uint32(n+int64(len(rest))) {
 		return formatErr(name, "corrupt gzip stream", errors.New("gzip: invalid checksum"))
 	}
 	return nil
