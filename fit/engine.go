@@ -442,7 +442,8 @@ func ResetPeaks(peaks []float32) []float32 {
 func MaxInto(peaks, vol []float32) {
 	vol = vol[:len(peaks)]
 	for v, s := range vol {
-		if s > peaks[v] && !math.IsInf(float64(s), 0) {
+		// s > peaks[v] rules out NaN and −Inf; the bound rules out +Inf.
+		if s > peaks[v] && s <= math.MaxFloat32 {
 			peaks[v] = s
 		}
 	}

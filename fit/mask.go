@@ -2,6 +2,7 @@ package fit
 
 import (
 	"math"
+	"sync"
 
 	"github.com/tauvox/tauvox/volume"
 )
@@ -74,9 +75,40 @@ func AutoMaskOf(im *volume.Image) AutoMask {
 func PeaksMask(peaks []float32, n int) AutoMask {
 	var p PeakHistogram
 	p.Volumes = n
-	p.Raise(peaks)
-	p.Add(peaks)
+	if len(peaks) < 1<<18 {
+		p.Raise(peaks)
+		p.Add(peaks)
+		return p.Mask()
+	}
+	// A large series: the two halves of the voxels on two CPUs, into two
+	// histograms with the same top, then added. Counts are whole numbers,
+	// so the sum is exactly the count of the whole.
+	var q PeakHistogram
+	a, b := peaks[:len(peaks)/2], peaks[len(peaks)/2:]
+	both(func() { p.Raise(a) }, func() { q.Raise(b) })
+	p.h.Top = max(p.h.Top, q.h.Top)
+	q.h.Top = p.h.Top
+	both(func() { p.Add(a) }, func() { q.Add(b) })
+	for i, c := range q.h.Count {
+		p.h.Count[i] += c
+	}
+	p.h.Total += q.h.Total
+	for i, c := range q.fine.count {
+		p.fine.count[i] += c
+	}
 	return p.Mask()
+}
+
+// both runs f and g at once and returns when both have.
+func both(f, g func()) {
+	var wg sync.WaitGroup
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		g()
+	}()
+	f()
+	wg.Wait()
 }
 
 // RayleighMaxCDF is the distribution function of the largest of n

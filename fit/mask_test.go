@@ -176,3 +176,31 @@ func TestNoiseMaskFallback(t *testing.T) {
 		}
 	}
 }
+
+// TestPeaksMaskHalves: PeaksMask of a large series, taken in two halves
+// on two CPUs, gives exactly the mask of one pass over all the peaks
+// (Raise, Add and Mask of one PeakHistogram), with air, tissue and −Inf
+// peaks (what MaxInto leaves), for several sizes around the split.
+func TestPeaksMaskHalves(t *testing.T) {
+	r := rand.New(rand.NewPCG(9, 10))
+	for _, n := range []int{1 << 18, 1<<18 + 1, 700_001} {
+		peaks := make([]float32, n)
+		for i := range peaks {
+			switch k := r.IntN(1000); {
+			case k < 4: // a voxel without a finite sample (ResetPeaks)
+				peaks[i] = float32(math.Inf(-1))
+			case k < 600:
+				peaks[i] = float32(math.Abs(r.NormFloat64()) * 20) // air
+			default:
+				peaks[i] = float32(800 + 100*r.NormFloat64()) // tissue
+			}
+		}
+		var one PeakHistogram
+		one.Volumes = 12
+		one.Raise(peaks)
+		one.Add(peaks)
+		if got, want := PeaksMask(peaks, 12), one.Mask(); got != want {
+			t.Errorf("%d peaks: halves %+v, one pass %+v", n, got, want)
+		}
+	}
+}
