@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
-	"runtime"
 	"strings"
 	"sync"
 
@@ -114,8 +113,11 @@ func fitPreviews(ctx context.Context, dir string, outs []fit.Param, win preview.
 			}
 		}
 		// Montages of maps up to 4 Mi voxels (16 MiB of pixels at one pixel
-		// per voxel) are drawn in parallel; larger ones one at a time.
-		parallel := runtime.GOMAXPROCS(0)
+		// per voxel) are drawn all at once, beside the map files being
+		// written: the scheduler then shares the CPUs among them to the
+		// end (with one CPU's worth at a time, the last montage was drawn
+		// alone while the other CPU idled). Larger ones, one at a time.
+		parallel := len(jobs)
 		if len(jobs) > 0 && jobs[0].im.Voxels() > 1<<22 {
 			parallel = 1
 		}

@@ -2,12 +2,15 @@ package preview
 
 import (
 	"bufio"
+	"bytes"
 	"encoding/binary"
+	"hash/adler32"
 	"hash/crc32"
 	"image"
 	"io"
+	"sync"
 
-	"github.com/klauspost/compress/zlib"
+	"github.com/klauspost/compress/flate"
 )
 
 // encodePNG writes an opaque img (every alpha 255, as a montage always
@@ -18,10 +21,19 @@ import (
 // which the LZ77 stage matches directly; on a 128×128×24 T2 map the
 // filters Sub, Up and Paeth all gave larger files (measured: 499 KB
 // unfiltered, 621 KB Sub, 1.2 MB Up, 628 KB Paeth at level 1). The data
-// are compressed with klauspost/compress's zlib at its fastest level,
+// are compressed with klauspost/compress's deflate at its fastest level,
 // several times faster than image/png's encoder (which tries five
-// filters per row) and, on such maps, a smaller file. Any PNG decoder reads the result; the tests
-// decode it with image/png.
+// filters per row) and, on such maps, a smaller file. Any PNG decoder
+// reads the result; the tests decode it with image/png.
+//
+// A large image is compressed in parts of whole rows at once (one per
+// 2 MiB of scanlines, up to 4), as independent deflate streams joined into one zlib stream (the
+// method of parallel gzip compressors): every part but the last ends with
+// a sync flush (an empty stored block, RFC 1951 §3.2.4, so the next part
+// starts on a byte), no part refers back into another, and the Adler-32
+// of the whole is combined from those of the parts (adler32Combine). The
+// last montage of a fit is then not left to one CPU while the other
+// idles.
 func encodePNG(w io.Writer, img *image.RGBA) error {
 	b := img.Bounds()
 	width, height := b.Dx(), b.Dy()
@@ -33,32 +45,98 @@ func encodePNG(w io.Writer, img *image.RGBA) error {
 	binary.BigEndian.PutUint32(ihdr[4:], uint32(height))
 	ihdr[8], ihdr[9] = 8, ctype // bit depth, colour type; compression, filter, interlace 0
 	writeChunk(bw, "IHDR", ihdr[:])
-	cw := &chunkWriter{w: bw, buf: make([]byte, 0, 64<<10)}
-	zw, err := zlib.NewWriterLevel(cw, zlib.BestSpeed)
-	if err != nil {
-		return err
-	}
 	stride := 1 + width*bpp
-	line := make([]byte, stride) // line[0] = 0: filter type None
-	for y := 0; y < height; y++ {
-		off := img.PixOffset(b.Min.X, b.Min.Y+y)
-		pix := img.Pix[off : off+4*width]
-		for x := 0; x < width; x++ {
-			line[1+3*x], line[2+3*x], line[3+3*x] = pix[4*x], pix[4*x+1], pix[4*x+2]
-		}
-		if _, err := zw.Write(line); err != nil {
-			return err
-		}
+	// The parts follow from the size alone, so the file is the same on
+	// any machine.
+	k := min(max(height*stride/minPartBytes, 1), maxParts, height)
+	parts := make([]pngPart, k)
+	var wg sync.WaitGroup
+	for i := range parts {
+		y0, y1 := height*i/k, height*(i+1)/k
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			parts[i] = compressRows(img, y0, y1, i == k-1)
+		}()
 	}
-	if err := zw.Close(); err != nil {
-		return err
+	wg.Wait()
+	cw := &chunkWriter{w: bw, buf: make([]byte, 0, 64<<10)}
+	cw.Write([]byte{0x78, 0x01}) // zlib header: deflate, 32 KiB window, fastest (RFC 1950)
+	var sum uint32 = 1           // the Adler-32 of no data
+	for _, p := range parts {
+		if p.err != nil {
+			return p.err
+		}
+		cw.Write(p.data)
+		sum = adler32Combine(sum, p.adler, p.n)
 	}
+	var tail [4]byte
+	binary.BigEndian.PutUint32(tail[:], sum)
+	cw.Write(tail[:])
 	cw.flush()
 	writeChunk(bw, "IEND", nil)
 	if cw.err != nil {
 		return cw.err
 	}
 	return bw.Flush()
+}
+
+const (
+	minPartBytes = 2 << 20 // scanline bytes per part
+	maxParts     = 4
+)
+
+// pngPart is the compressed scanlines of some rows: raw deflate data,
+// with the Adler-32 and length of the scanline bytes.
+type pngPart struct {
+	data  []byte
+	adler uint32
+	n     int64
+	err   error
+}
+
+// compressRows compresses the scanlines of rows y0…y1−1 of img (relative
+// to its bounds) as deflate data that ends with the final block (last) or
+// a sync flush.
+func compressRows(img *image.RGBA, y0, y1 int, last bool) pngPart {
+	b := img.Bounds()
+	width := b.Dx()
+	var out bytes.Buffer
+	fw, err := flate.NewWriter(&out, flate.BestSpeed)
+	if err != nil {
+		return pngPart{err: err}
+	}
+	sum := adler32.New()
+	line := make([]byte, 1+3*width) // line[0] = 0: filter type None
+	for y := y0; y < y1; y++ {
+		off := img.PixOffset(b.Min.X, b.Min.Y+y)
+		pix := img.Pix[off : off+4*width]
+		for x := 0; x < width; x++ {
+			line[1+3*x], line[2+3*x], line[3+3*x] = pix[4*x], pix[4*x+1], pix[4*x+2]
+		}
+		fw.Write(line)
+		sum.Write(line)
+	}
+	if last {
+		err = fw.Close()
+	} else {
+		err = fw.Flush()
+	}
+	return pngPart{data: out.Bytes(), adler: sum.Sum32(), n: int64(y1-y0) * int64(len(line)), err: err}
+}
+
+// adler32Combine returns the Adler-32 of A followed by B from those of A
+// and B and the length of B: zlib's adler32_combine (Adler & Gailly). With
+// A's sums a1 = 1 + ΣA, b1 and B's a2, b2: a = a1 + a2 − 1 and
+// b = b1 + b2 + len(B)·(a1 − 1), modulo 65521 (RFC 1950 §9).
+func adler32Combine(adlerA, adlerB uint32, lenB int64) uint32 {
+	const mod = 65521
+	rem := uint64(lenB % mod)
+	a1, b1 := uint64(adlerA&0xffff), uint64(adlerA>>16)
+	a2, b2 := uint64(adlerB&0xffff), uint64(adlerB>>16)
+	a := (a1 + a2 + mod - 1) % mod
+	bsum := (b1 + b2 + rem*a1 + mod - rem) % mod
+	return uint32(bsum<<16 | a)
 }
 
 // writeChunk writes one PNG chunk: length, type, data, and the CRC-32 of

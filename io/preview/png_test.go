@@ -2,6 +2,7 @@ package preview
 
 import (
 	"bytes"
+	"hash/adler32"
 	"image"
 	"image/color"
 	"image/png"
@@ -166,6 +167,53 @@ func TestPercentileSelect(t *testing.T) {
 			for _, p := range []float64{0, 0.01, 0.5, 0.99, 1} {
 				if got, want := percentile(s, p), ref(p); got != want {
 					t.Fatalf("n %d kind %d p %v: %v, want %v", n, kind, p, got, want)
+				}
+			}
+		}
+	}
+}
+
+// TestAdler32Combine: the Adler-32 of two pieces combined (zlib's
+// adler32_combine) equals hash/adler32's checksum of the whole, for
+// pieces of 0 bytes to over 65,521 (the modulus), on random bytes.
+func TestAdler32Combine(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	data := make([]byte, 300_000)
+	for i := range data {
+		data[i] = byte(r.Uint32())
+	}
+	for _, cut := range []int{0, 1, 5552, 65520, 65521, 65522, 200_001, len(data)} {
+		a, b := data[:cut], data[cut:]
+		got := adler32Combine(adler32.Checksum(a), adler32.Checksum(b), int64(len(b)))
+		if want := adler32.Checksum(data); got != want {
+			t.Errorf("cut at %d: combined %08x, want %08x", cut, got, want)
+		}
+	}
+}
+
+// TestEncodePNGParts: an image large enough to be compressed in several
+// parts (4 here) decodes with image/png to the same pixels, and so does
+// one of two parts.
+func TestEncodePNGParts(t *testing.T) {
+	r := rand.New(rand.NewPCG(5, 6))
+	for _, h := range []int{1500, 2900} { // 2 and 4 parts
+		img := image.NewRGBA(image.Rect(0, 0, 1000, h))
+		for i := 0; i < len(img.Pix); i += 4 {
+			v := uint8(r.IntN(8)) // a few levels, runs of repeated pixels
+			img.Pix[i], img.Pix[i+1], img.Pix[i+2], img.Pix[i+3] = v*30, 255-v*20, v, 255
+		}
+		var buf bytes.Buffer
+		if err := encodePNG(&buf, img); err != nil {
+			t.Fatal(err)
+		}
+		got, err := png.Decode(&buf)
+		if err != nil {
+			t.Fatalf("%d rows: image/png cannot decode: %v", h, err)
+		}
+		for y := 0; y < h; y++ {
+			for x := 0; x < 1000; x++ {
+				if g := color.RGBAModel.Convert(got.At(x, y)).(color.RGBA); g != img.RGBAAt(x, y) {
+					t.Fatalf("%d rows: pixel (%d,%d) = %v, want %v", h, x, y, g, img.RGBAAt(x, y))
 				}
 			}
 		}
