@@ -8,6 +8,7 @@ import (
 	"sync"
 	"sync/atomic"
 
+	"github.com/tauvox/tauvox/internal/mapped"
 	"github.com/tauvox/tauvox/io/gzsplit"
 )
 
@@ -75,15 +76,19 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 	if size+2*need > r.SplitMemory {
 		return nil
 	}
-	// Both decoders work from the file mapped into memory (mapFile): the
+	// Both decoders work from the file mapped into memory (mapped.File): the
 	// ordinary one (gzsplit.Head, in sequential) from the start, the end's
 	// from near the middle.
-	all, unmap, err := mapFile(r.gzFile, size)
+	all, unmap, err := mapped.File(r.gzFile, size)
 	if err != nil {
-		return nil
+		// Not mapped here: read it.
+		all, unmap = make([]byte, size), func() {}
+		if n, _ := r.gzFile.ReadAt(all, 0); int64(n) != size {
+			return nil
+		}
 	}
 	var dstart int
-	if gerr := guard(all, func() { dstart, err = gzsplit.MemberData(all) }); gerr != nil || err != nil {
+	if gerr := mapped.Guard(all, func() { dstart, err = gzsplit.MemberData(all) }); gerr != nil || err != nil {
 		unmap()
 		return nil
 	}
@@ -102,13 +107,13 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		}()
 		data := all[from:]
 		// A header found may be a false positive: try a few. A fault on
-		// the mapped file (guard) ends the search: the ordinary decoder
+		// the mapped file (mapped.Guard) ends the search: the ordinary decoder
 		// then reads on in order and reports it.
 		var t *gzsplit.Tail
 		for try, at := 0, 0; try < 8 && t == nil; try++ {
 			var start int64
 			var ok bool
-			if gerr := guard(all, func() { start, ok = gzsplit.Find(data, at, min(len(data), 8<<20)) }); gerr != nil || !ok {
+			if gerr := mapped.Guard(all, func() { start, ok = gzsplit.Find(data, at, min(len(data), 8<<20)) }); gerr != nil || !ok {
 				return
 			}
 			sp.mu.Lock()
@@ -117,7 +122,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 			sp.mu.Unlock()
 			var tail *gzsplit.Tail
 			var derr error
-			if gerr := guard(all, func() { tail, derr = gzsplit.Decode(data, start, int(need)) }); gerr != nil {
+			if gerr := mapped.Guard(all, func() { tail, derr = gzsplit.Decode(data, start, int(need)) }); gerr != nil {
 				return
 			}
 			// A single gzip member: the stream ends with its 8-byte
@@ -132,7 +137,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		}
 		var crc uint32
 		var isize int64
-		if guard(all, func() {
+		if mapped.Guard(all, func() {
 			crc = binary.LittleEndian.Uint32(data[len(data)-8:])
 			isize = int64(binary.LittleEndian.Uint32(data[len(data)-4:]))
 		}) != nil {

@@ -14,6 +14,7 @@ import (
 	"strings"
 
 	"github.com/klauspost/compress/gzip"
+	"github.com/tauvox/tauvox/internal/mapped"
 	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/gzsplit"
 	"github.com/tauvox/tauvox/volume"
@@ -396,7 +397,7 @@ func (o *ordered) readFull(b []byte) (int, error) {
 				return n, nil
 			}
 			continue
-		case err == errChanged:
+		case err == mapped.ErrChanged:
 			return n, &fileError{o.s.name, "cannot read", err}
 		case err != io.EOF:
 			return n, formatErr(o.s.name, "corrupt gzip stream", err)
@@ -417,9 +418,9 @@ func (o *ordered) readFull(b []byte) (int, error) {
 }
 
 // read reads from head, the decoder of the file in memory (mapped: a
-// fault there, the file changed under it, comes back as errChanged).
+// fault there, the file changed under it, comes back as mapped.ErrChanged).
 func (o *ordered) read(p []byte) (n int, err error) {
-	if gerr := guard(o.all, func() { n, err = o.head.Read(p) }); gerr != nil {
+	if gerr := mapped.Guard(o.all, func() { n, err = o.head.Read(p) }); gerr != nil {
 		return n, gerr
 	}
 	return n, err
@@ -466,7 +467,7 @@ func (o *ordered) finish(name string, crc uint32, n int64) error {
 		return o.s.finish()
 	}
 	rest, err := io.ReadAll(io.LimitReader(readerFunc(o.read), 4096))
-	if err == errChanged {
+	if err == mapped.ErrChanged {
 		return &fileError{name, "cannot read", err}
 	}
 	if err != nil {
@@ -479,7 +480,7 @@ func (o *ordered) finish(name string, crc uint32, n int64) error {
 	end := o.head.End()
 	var t [8]byte
 	var k int
-	if err := guard(o.all, func() { k = copy(t[:], o.all[end:]) }); err != nil {
+	if err := mapped.Guard(o.all, func() { k = copy(t[:], o.all[end:]) }); err != nil {
 		return &fileError{name, "cannot read", err}
 	}
 	if k < 8 {
