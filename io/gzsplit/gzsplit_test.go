@@ -9,6 +9,7 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
+	"os"
 	"testing"
 
 	kflate "github.com/klauspost/compress/flate"
@@ -252,6 +253,34 @@ func TestResolveHalves(t *testing.T) {
 			if head[i] != want {
 				t.Fatalf("n=%d: byte %d = %d, want %d", n, i, head[i], want)
 			}
+		}
+	}
+}
+
+// BenchmarkInflateFile decodes, in one goroutine, the whole deflate stream
+// of the gzip file named by $TAUVOX_BENCH_GZ (from its first block, as
+// Decode would a tail; skipped when unset). docs/benchmarks.md runs it on
+// the 47 MB .nii.gz that testdata/gen/dicom_peers_bench.py writes (float32
+// samples, nibabel's gzip level 1), whose matches are short and far back
+// unlike BenchmarkInflate's.
+func BenchmarkInflateFile(b *testing.B) {
+	path := os.Getenv("TAUVOX_BENCH_GZ")
+	if path == "" {
+		b.Skip("TAUVOX_BENCH_GZ is not set")
+	}
+	data, err := os.ReadFile(path)
+	if err != nil {
+		b.Fatal(err)
+	}
+	start, err := MemberData(data)
+	if err != nil {
+		b.Fatal(err)
+	}
+	n := int(binary.LittleEndian.Uint32(data[len(data)-4:]))
+	b.SetBytes(int64(n))
+	for b.Loop() {
+		if _, err := Decode(data, int64(start)*8, n); err != nil {
+			b.Fatal(err)
 		}
 	}
 }
