@@ -46,3 +46,35 @@ func TestGuardMappedFault(t *testing.T) {
 	var none []byte
 	Guard(mem, func() { sum += none[3] })
 }
+
+// TestRelease: pages of a mapping given back (Release) read again with
+// the file's bytes, whatever range is asked for (unaligned ends, empty,
+// outside).
+func TestRelease(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "f.bin")
+	want := make([]byte, 64<<10)
+	for i := range want {
+		want[i] = byte(i * 7)
+	}
+	if err := os.WriteFile(p, want, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.Open(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	mem, unmap, err := File(f, int64(len(want)))
+	if err != nil {
+		t.Skip("not mapped here:", err)
+	}
+	defer unmap()
+	for _, r := range [][2]int{{0, 1 << 14}, {100, 40000}, {5000, 5000}, {-4, 10}, {60000, 1 << 20}, {0, len(want)}} {
+		Release(mem, r[0], r[1])
+		for i := range want {
+			if mem[i] != want[i] {
+				t.Fatalf("after Release(%d, %d): byte %d = %d, want %d", r[0], r[1], i, mem[i], want[i])
+			}
+		}
+	}
+}

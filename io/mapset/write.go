@@ -12,7 +12,6 @@ import (
 	"sync"
 	"time"
 
-	"github.com/tauvox/tauvox/internal/mapped"
 	"github.com/tauvox/tauvox/internal/output"
 	"github.com/tauvox/tauvox/io/nifti"
 	"github.com/tauvox/tauvox/volume"
@@ -99,25 +98,13 @@ func num(v float64) *float64 {
 	return &v
 }
 
-// Checksum returns the SHA-256 (hex) and size of a file. A large regular
-// file is hashed where it lies in the page cache (mapped, package
-// internal/mapped), without copying it through a read buffer.
+// Checksum returns the SHA-256 (hex) and size of a file.
 func Checksum(path string) (string, int64, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return "", 0, err
 	}
 	defer f.Close()
-	if fi, err := f.Stat(); err == nil && fi.Mode().IsRegular() && fi.Size() >= 1<<20 {
-		if mem, unmap, err := mapped.File(f, fi.Size()); err == nil {
-			defer unmap()
-			var sum [sha256.Size]byte
-			if err := mapped.Guard(mem, func() { sum = sha256.Sum256(mem) }); err != nil {
-				return "", 0, fmt.Errorf("%s: %w", path, err)
-			}
-			return hex.EncodeToString(sum[:]), fi.Size(), nil
-		}
-	}
 	h := sha256.New()
 	n, err := io.Copy(h, f)
 	if err != nil {

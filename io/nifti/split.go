@@ -44,6 +44,8 @@ type split struct {
 	changed  chan struct{} // closed (and replaced) when a field above changes
 	consumed atomic.Int64  // compressed bytes the ordinary decoder has loaded
 	all      []byte        // the whole compressed file
+	mapping  *mapping      // all's mapping, released by close
+	isMapped bool          // all is a mapping (not a copy): parts read may be released
 	dstart   int           // offset of the member's deflate data in all
 	done     chan struct{} // closed when the end is decoded or has failed
 	// Once accepted, the end's goroutine converts the whole samples of
@@ -80,6 +82,7 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 	// ordinary one (gzsplit.Head, in sequential) from the start, the end's
 	// from near the middle.
 	all, unmap, err := mapped.File(r.gzFile, size)
+	isMapped := err == nil
 	if err != nil {
 		// Not mapped here: read it.
 		all, unmap = make([]byte, size), func() {}
@@ -92,11 +95,13 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		unmap()
 		return nil
 	}
-	sp := &split{limit: math.MaxInt64, all: all, dstart: dstart, done: make(chan struct{}), from: from,
+	sp := &split{limit: math.MaxInt64, all: all, isMapped: isMapped, dstart: dstart, done: make(chan struct{}), from: from,
 		changed: make(chan struct{}), csBit: -1, ackBit: -1, honored: -1}
-	// Every reader of all (the ordinary decoder, the end's goroutine)
-	// holds sp: the mapping goes when sp does.
-	runtime.AddCleanup(sp, func(unmap func()) { unmap() }, unmap)
+	// The mapping goes when the read returns (close), unless the end's
+	// goroutine still reads it; then when sp goes, which that goroutine
+	// holds as long as it runs.
+	sp.mapping = &mapping{unmap: unmap}
+	runtime.AddCleanup(sp, func(m *mapping) { m.release() }, sp.mapping)
 	go func() {
 		defer close(sp.done)
 		defer func() {
@@ -142,6 +147,11 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 			isize = int64(binary.LittleEndian.Uint32(data[len(data)-4:]))
 		}) != nil {
 			return
+		}
+		if sp.isMapped {
+			// The end is decoded: its part of the file is not read again
+			// (unless the end is dropped and the ordinary decoder reads on).
+			mapped.Release(all, int(from), len(all))
 		}
 		u := isize // the member's length, ISIZE modulo 2^32
 		for u < base+need {
@@ -218,6 +228,14 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 	}()
 	return sp
 }
+
+// mapping is the compressed file's mapping, released once.
+type mapping struct {
+	once  sync.Once
+	unmap func()
+}
+
+func (m *mapping) release() { m.once.Do(m.unmap) }
 
 // notify wakes a paused ordinary decoder; sp.mu is held.
 func (sp *split) notify() {
@@ -327,9 +345,18 @@ func (sp *split) close() {
 	sp.decide(false)
 	sp.notify()
 	accepted := sp.tail != nil
+	finished := sp.finished
 	sp.mu.Unlock()
 	if accepted {
 		<-sp.done
+		finished = true
+	}
+	// The ordinary decoder is done with the file: unless the end's
+	// goroutine is still at work on it, give its pages back now (mapped
+	// pages count in the resident size) rather than when the collector
+	// finds sp.
+	if finished {
+		sp.mapping.release()
 	}
 }
 

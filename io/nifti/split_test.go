@@ -15,11 +15,12 @@ import (
 )
 
 // splitSeries returns a 64×64×8×16 multi-echo series of noisy decays
-// (2 MiB as float32); the tests lower minSplitBytes so that it is split.
+// (2 MiB as float32); the tests lower minSplitBytes so that it is split,
+// and releaseBytes so that the pages read are given back on the way.
 func splitSeries(t *testing.T) *volume.Image {
-	oldMin, oldChunk := minSplitBytes, seqChunkBytes
-	minSplitBytes, seqChunkBytes = 64<<10, 16<<10
-	t.Cleanup(func() { minSplitBytes, seqChunkBytes = oldMin, oldChunk })
+	oldMin, oldChunk, oldRelease := minSplitBytes, seqChunkBytes, releaseBytes
+	minSplitBytes, seqChunkBytes, releaseBytes = 64<<10, 16<<10, 16<<10
+	t.Cleanup(func() { minSplitBytes, seqChunkBytes, releaseBytes = oldMin, oldChunk, oldRelease })
 	im := &volume.Image{Dims: [4]int{64, 64, 8, 16}, Affine: volume.Identity()}
 	im.Data = make([]float32, 64*64*8*16)
 	r := rand.New(rand.NewPCG(5, 6))

@@ -243,7 +243,7 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 	if sp != nil {
 		s.crc.on = false // the consumer below adds the samples to the CRC
 		src.head = gzsplit.NewHead(sp.all, sp.dstart)
-		src.sp, src.all = sp, sp.all
+		src.sp, src.all, src.mapped = sp, sp.all, sp.isMapped
 		if err := src.skip(base); err != nil {
 			return err
 		}
@@ -363,11 +363,13 @@ func (r *SlabReader) sequential(dst []float32, per, nvol int) error {
 // first member, and from there by the stream (which reads members one
 // after another and checks each one's trailer).
 type ordered struct {
-	s    *stream
-	head *gzsplit.Head // nil: read s
-	sp   *split        // the split beside head; nil once it is over
-	all  []byte        // the compressed file head reads
-	pos  int64         // bytes read from head
+	s        *stream
+	head     *gzsplit.Head // nil: read s
+	sp       *split        // the split beside head; nil once it is over
+	all      []byte        // the compressed file head reads
+	pos      int64         // bytes read from head
+	mapped   bool          // all is a mapping: the part read is released as head goes
+	released int           // all[:released] has been released
 }
 
 // readFull reads len(b) bytes, fewer only at the end of the data or,
@@ -422,6 +424,13 @@ func (o *ordered) readFull(b []byte) (int, error) {
 func (o *ordered) read(p []byte) (n int, err error) {
 	if gerr := mapped.Guard(o.all, func() { n, err = o.head.Read(p) }); gerr != nil {
 		return n, gerr
+	}
+	// Give back the pages head has passed, releaseBytes at a time, keeping the
+	// last 64 KiB (the decoder loads a few bytes ahead and never looks
+	// back in the input).
+	if c := int(o.head.Consumed()) - 1<<16; o.mapped && c-o.released >= releaseBytes {
+		mapped.Release(o.all, o.released, c)
+		o.released = c
 	}
 	return n, err
 }
@@ -555,6 +564,11 @@ func keepWindow(win, b []byte) []byte {
 	}
 	return win
 }
+
+// releaseBytes is how much of a mapped file the ordinary decoder of a
+// split read passes before it gives those pages back (a variable for the
+// tests, which use small files).
+var releaseBytes = 8 << 20
 
 // seqChunkBytes is the size of the buffers of a sequential read (a
 // variable for the tests of the split, which use small files).
