@@ -53,7 +53,6 @@ type huffman struct {
 	table  [1 << primary]uint32
 	count  [maxBits + 1]uint16
 	symbol [288]uint16 // symbols ordered by code
-	long   bool        // some code is longer than primary bits
 	// The state of the canonical decoding in decodeLong after primary
 	// bits that match no shorter code: the first code and the symbol
 	// index of length primary+1.
@@ -107,22 +106,18 @@ func (h *huffman) build(lengths []uint8, rule int, info []uint32) error {
 	h.firstLong, h.indexLong = first, index
 	// Fill the table: walk the codes in canonical order.
 	h.table = [1 << primary]uint32{}
-	h.long = false
+	// (Codes longer than the table are left to decodeLong.)
 	code, idx := 0, 0
-	for l := 1; l <= maxBits; l++ {
+	for l := 1; l <= primary; l++ {
 		for k := 0; k < int(h.count[l]); k++ {
-			if l <= primary {
-				rev := reverse(code, l)
-				sym := h.symbol[idx]
-				e := uint32(sym)<<16 | uint32(l)
-				if info != nil {
-					e = info[sym] | uint32(l)
-				}
-				for j := rev; j < 1<<primary; j += 1 << l {
-					h.table[j] = e
-				}
-			} else {
-				h.long = true
+			rev := reverse(code, l)
+			sym := h.symbol[idx]
+			e := uint32(sym)<<16 | uint32(l)
+			if info != nil {
+				e = info[sym] | uint32(l)
+			}
+			for j := rev; j < 1<<primary; j += 1 << l {
+				h.table[j] = e
 			}
 			code++
 			idx++
@@ -451,8 +446,17 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 		if from < 0 {
 			return save(b, buf, nb, pos, out, errCorrupt)
 		}
-		// The copy, written out (the method is described at copyNear):
-		// most matches of float samples are 3 or 4 bytes from far back.
+		// The copy, written out: out[from:from+n] appended, byte by
+		// byte in effect (a match may overlap its own output). There is
+		// room for n more elements and 8 bytes beyond (the top of the
+		// loop), so a match from at least 8 bytes back is copied 8 bytes
+		// at a time as unaligned words, which costs less than a call of
+		// memmove for the short matches of float samples (3 or 4 bytes
+		// from far back). The source of each word ends before the word
+		// it is copied to begins, so every byte read has been written; a
+		// word may reach past the match's end into the room after it,
+		// which later output overwrites. Nearer matches go 4 bytes at a
+		// time, or to copyNear.
 		if sz := int(unsafe.Sizeof(T(0))); d >= 8/sz {
 			all := unsafe.Slice((*byte)(unsafe.Pointer(unsafe.SliceData(out))), cap(out)*sz)
 			for k := 0; k < n*sz; k += 8 {
@@ -482,16 +486,6 @@ func save[T uint8 | uint16](b *bits, buf uint64, n uint, pos int, out []T, err e
 
 // maxMatch is deflate's longest match.
 const maxMatch = 258
-
-// A match appends out[from:from+n] to out, byte by byte in
-// effect (a match may overlap its own output). symbols has made room for
-// n more elements and 8 bytes beyond, so a match from at least 8 bytes
-// back is copied 8 bytes at a time as unaligned words, which costs less
-// than a call of memmove for the short matches of float samples. The
-// source of each word ends before the word it is copied to begins, so
-// every byte read has been written; a word may reach past the match's end
-// into the room after it, which later output overwrites. Nearer matches
-// go to copyNear.
 
 // copyNear appends out[from:from+n] to out one element at a time.
 func copyNear[T uint8 | uint16](out []T, from, n int) []T {
