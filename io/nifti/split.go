@@ -6,7 +6,6 @@ import (
 	"math"
 	"runtime"
 	"sync"
-	"sync/atomic"
 
 	"github.com/tauvox/tauvox/internal/mapped"
 	"github.com/tauvox/tauvox/io/gzsplit"
@@ -42,7 +41,6 @@ type split struct {
 	from     int64         // compressed offset where the search for the end starts
 	finished bool          // the end's goroutine has returned
 	changed  chan struct{} // closed (and replaced) when a field above changes
-	consumed atomic.Int64  // compressed bytes the ordinary decoder has loaded
 	all      []byte        // the whole compressed file
 	mapping  *mapping      // all's mapping, released by close
 	isMapped bool          // all is a mapping (not a copy): parts read may be released
@@ -110,42 +108,13 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 			sp.notify()
 			sp.mu.Unlock()
 		}()
-		data := all[from:]
-		// A header found may be a false positive: try a few. A fault on
-		// the mapped file (mapped.Guard) ends the search: the ordinary decoder
+		// Everything that reads the file runs under one mapped.Guard: a
+		// fault on the mapping ends the search, and the ordinary decoder
 		// then reads on in order and reports it.
 		var t *gzsplit.Tail
-		for try, at := 0, 0; try < 8 && t == nil; try++ {
-			var start int64
-			var ok bool
-			if gerr := mapped.Guard(all, func() { start, ok = gzsplit.Find(data, at, min(len(data), 8<<20)) }); gerr != nil || !ok {
-				return
-			}
-			sp.mu.Lock()
-			sp.csBit = from*8 + start
-			sp.notify()
-			sp.mu.Unlock()
-			var tail *gzsplit.Tail
-			var derr error
-			if gerr := mapped.Guard(all, func() { tail, derr = gzsplit.Decode(data, start, int(need)) }); gerr != nil {
-				return
-			}
-			// A single gzip member: the stream ends with its 8-byte
-			// trailer (CRC-32, ISIZE) at the end of the file.
-			if derr == nil && tail.End == len(data)-8 {
-				t = tail
-			}
-			at = int(start/8) + 1
-		}
-		if t == nil {
-			return
-		}
 		var crc uint32
 		var isize int64
-		if mapped.Guard(all, func() {
-			crc = binary.LittleEndian.Uint32(data[len(data)-8:])
-			isize = int64(binary.LittleEndian.Uint32(data[len(data)-4:]))
-		}) != nil {
+		if mapped.Guard(all, func() { t, crc, isize = sp.findEnd(int(need)) }) != nil || t == nil {
 			return
 		}
 		if sp.isMapped {
@@ -227,6 +196,32 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		sp.restCRC = gzsplit.CombineCRC(crcA, crcB, int64(len(rest))-cut)
 	}()
 	return sp
+}
+
+// findEnd finds and decodes the end of the member in sp.all from sp.from
+// on, publishing each candidate's start (csBit), and returns it with the
+// member's CRC-32 and ISIZE from its trailer, or a nil Tail. need is the
+// expected output size (to allocate once).
+func (sp *split) findEnd(need int) (*gzsplit.Tail, uint32, int64) {
+	data := sp.all[sp.from:]
+	// A header found may be a false positive: try a few.
+	for try, at := 0, 0; try < 8; try++ {
+		start, ok := gzsplit.Find(data, at, min(len(data), 8<<20))
+		if !ok {
+			return nil, 0, 0
+		}
+		sp.mu.Lock()
+		sp.csBit = sp.from*8 + start
+		sp.notify()
+		sp.mu.Unlock()
+		// A single gzip member: the stream ends with its 8-byte trailer
+		// (CRC-32, ISIZE) at the end of the file.
+		if t, err := gzsplit.Decode(data, start, need); err == nil && t.End == len(data)-8 {
+			return t, binary.LittleEndian.Uint32(data[len(data)-8:]), int64(binary.LittleEndian.Uint32(data[len(data)-4:]))
+		}
+		at = int(start/8) + 1
+	}
+	return nil, 0, 0
 }
 
 // mapping is the compressed file's mapping, released once.
