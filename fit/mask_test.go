@@ -204,3 +204,33 @@ func TestPeaksMaskHalves(t *testing.T) {
 		}
 	}
 }
+
+// TestMaxIntoHalves: the peaks taken in two halves at once equal those of
+// MaxInto, element by element, with NaN, ±Inf and an odd length.
+func TestMaxIntoHalves(t *testing.T) {
+	r := rand.New(rand.NewPCG(13, 14))
+	n := 1001
+	one, two := ResetPeaks(make([]float32, n)), ResetPeaks(make([]float32, n))
+	for range 5 {
+		vol := make([]float32, n+3) // longer than the peaks, as a slab's volume may be
+		for i := range vol {
+			switch k := r.IntN(100); {
+			case k == 0:
+				vol[i] = float32(math.NaN())
+			case k == 1:
+				vol[i] = float32(math.Inf(1))
+			case k == 2:
+				vol[i] = float32(math.Inf(-1))
+			default:
+				vol[i] = float32(r.NormFloat64() * 100)
+			}
+		}
+		MaxInto(one, vol)
+		MaxIntoHalves(two, vol)
+	}
+	for i := range one {
+		if math.Float32bits(one[i]) != math.Float32bits(two[i]) {
+			t.Fatalf("voxel %d: halves %v, one pass %v", i, two[i], one[i])
+		}
+	}
+}

@@ -235,7 +235,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		}
 		if src.nii != nil {
 			if auto {
-				src.nii.VolumeDone = func(_ int, vol []float32) { maxIntoHalves(peaks, vol) }
+				src.nii.VolumeDone = func(_ int, vol []float32) { fit.MaxIntoHalves(peaks, vol) }
 			}
 			// A .nii.gz read whole may decode its second half on another
 			// CPU, within what the slab plan leaves of the memory budget.

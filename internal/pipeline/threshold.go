@@ -8,7 +8,6 @@ import (
 	"io"
 	"math"
 	"os"
-	"sync"
 
 	"github.com/tauvox/tauvox/fit"
 	"github.com/tauvox/tauvox/volume"
@@ -76,20 +75,4 @@ func streamThreshold(ctx context.Context, nslab int, slab func(int) (*volume.Ima
 		done += n
 	}
 	return ph.Mask(), nil
-}
-
-// maxIntoHalves is fit.MaxInto on the two halves of the voxels at once.
-// The volumes of a split .nii.gz read's second half are reported together
-// when that half is joined, one after another on the reading goroutine:
-// the peaks (each voxel's own) are then taken on two CPUs.
-func maxIntoHalves(peaks, vol []float32) {
-	h := len(peaks) / 2
-	var wg sync.WaitGroup
-	wg.Add(1)
-	go func() {
-		defer wg.Done()
-		fit.MaxInto(peaks[h:], vol[h:len(peaks)])
-	}()
-	fit.MaxInto(peaks[:h], vol[:h])
-	wg.Wait()
 }
