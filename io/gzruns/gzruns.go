@@ -8,8 +8,8 @@ import (
 )
 
 // blockBytes is the input of one deflate block: its Huffman code is built
-// for these bytes (a code costs about 150 bytes, so blocks of 256 KiB
-// spend well under 0.1 % on codes).
+// for these bytes (a code costs about 150 bytes, so blocks of 1 MiB spend
+// well under 0.1 % on codes).
 const blockBytes = 1 << 20
 
 // minRun is the shortest repetition coded as a match: shorter ones are
@@ -46,7 +46,7 @@ func NewWriter(w io.Writer) *Writer {
 var ErrClosed = errors.New("gzruns: write after close")
 
 // Write compresses p. The data are coded at once, in blocks of up to
-// 256 KiB; p is not kept.
+// blockBytes; p is not kept.
 func (z *Writer) Write(p []byte) (int, error) {
 	if z.err != nil {
 		return 0, z.err
