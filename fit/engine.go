@@ -335,11 +335,19 @@ func (m *Maps) reset(outs []Param, nv int) *Maps {
 	if m == nil {
 		m = &Maps{}
 	}
-	grow := func(s []float32) []float32 {
-		if cap(s) < nv {
-			return make([]float32, nv)
+	// A large map is allocated on its own goroutine: make clears memory
+	// the heap reuses, and the maps of a million voxels took 11 ms one
+	// after another (docs/benchmarks.md's series), half that side by side.
+	var wg sync.WaitGroup
+	grow := func(s *[]float32) {
+		switch {
+		case cap(*s) >= nv:
+			*s = (*s)[:nv]
+		case nv < 1<<18:
+			*s = make([]float32, nv)
+		default:
+			wg.Go(func() { *s = make([]float32, nv) })
 		}
-		return s[:nv]
 	}
 	m.Outputs = outs
 	if len(m.Values) != len(outs) {
@@ -347,14 +355,15 @@ func (m *Maps) reset(outs []Param, nv int) *Maps {
 		m.SE = make([][]float32, len(outs))
 	}
 	for k := range outs {
-		m.Values[k] = grow(m.Values[k])
-		m.SE[k] = grow(m.SE[k])
+		grow(&m.Values[k])
+		grow(&m.SE[k])
 	}
-	m.R2 = grow(m.R2)
+	grow(&m.R2)
 	if cap(m.Status) < nv {
 		m.Status = make([]uint8, nv)
 	}
 	m.Status = m.Status[:nv]
+	wg.Wait()
 	m.Counts = [NumStatus]int{}
 	m.Threshold = 0
 	return m

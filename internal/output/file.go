@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"sync"
 )
 
 // File is a file being written under a temporary name in the folder of
@@ -40,8 +41,16 @@ func Create(path string) (*File, error) {
 // Path returns the target path.
 func (f *File) Path() string { return f.path }
 
+// StartSync starts writing the file's data to disk without waiting for
+// it, where the system allows it (Linux: sync_file_range(2) with
+// SYNC_FILE_RANGE_WRITE); elsewhere it does nothing. A writer that has
+// written everything but commits later (after other work) calls it so
+// that the sync in Commit finds the data on its way.
+func (f *File) StartSync() { startSync(f.File) }
+
 // Commit syncs and closes the temporary file, renames it to the target
-// (replacing a file there) and syncs the folder. On error the temporary
+// (replacing a file there) and syncs the folder, unless the folder's
+// flush is deferred to its owner (DeferDirSync). On error the temporary
 // file is removed and the target left as it was.
 func (f *File) Commit() error {
 	if f.done {
@@ -59,7 +68,9 @@ func (f *File) Commit() error {
 		os.Remove(f.Name())
 		return err
 	}
-	SyncDir(filepath.Dir(f.path))
+	if dir := filepath.Dir(f.path); !isDeferred(dir) {
+		SyncDir(dir)
+	}
 	return nil
 }
 
@@ -110,4 +121,25 @@ func SyncDir(dir string) {
 		d.Sync()
 		d.Close()
 	}
+}
+
+// deferred holds the folders (cleaned paths) whose entries their owner
+// flushes once, when every file is in, instead of File.Commit after each
+// rename into them: a folder of outputs that is itself renamed into place
+// when complete is flushed once before that rename (every file in it is
+// still synced by its Commit).
+var deferred sync.Map
+
+// DeferDirSync makes File.Commit leave the flush of dir's entries to the
+// caller, who must call SyncDir(dir) once every file is in, before it
+// relies on them; the returned function ends the deferral.
+func DeferDirSync(dir string) (end func()) {
+	dir = filepath.Clean(dir)
+	deferred.Store(dir, struct{}{})
+	return func() { deferred.Delete(dir) }
+}
+
+func isDeferred(dir string) bool {
+	_, ok := deferred.Load(filepath.Clean(dir))
+	return ok
 }

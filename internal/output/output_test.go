@@ -76,3 +76,31 @@ func TestNum(t *testing.T) {
 		}
 	}
 }
+
+// TestDeferDirSync: a folder whose flush is deferred is known as such
+// until the deferral ends, and files committed into it (after StartSync)
+// arrive whole.
+func TestDeferDirSync(t *testing.T) {
+	dir := t.TempDir()
+	end := DeferDirSync(dir + "/")
+	if !isDeferred(dir) {
+		t.Fatal("folder not deferred")
+	}
+	f, err := Create(filepath.Join(dir, "a.bin"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Write([]byte("samples"))
+	f.StartSync()
+	if err := f.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	SyncDir(dir)
+	end()
+	if isDeferred(dir) {
+		t.Error("still deferred after end")
+	}
+	if b, _ := os.ReadFile(filepath.Join(dir, "a.bin")); string(b) != "samples" {
+		t.Errorf("content %q", b)
+	}
+}

@@ -2,6 +2,8 @@ package mapset
 
 import (
 	"path/filepath"
+
+	"github.com/tauvox/tauvox/internal/output"
 	"strings"
 	"sync"
 )
@@ -23,12 +25,18 @@ func (s *Stage) register() {
 		stages.final = map[string]string{}
 	}
 	stages.final[s.tmp] = s.target
+	// The entries of the folder are flushed once, by Commit, not after
+	// every file committed into it.
+	s.endDefer = output.DeferDirSync(s.tmp)
 }
 
 func (s *Stage) unregister() {
 	stages.Lock()
 	defer stages.Unlock()
 	delete(stages.final, s.tmp)
+	if s.endDefer != nil {
+		s.endDefer()
+	}
 }
 
 // FinalPath returns p with the temporary folder of any open Stage it lies

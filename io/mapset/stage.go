@@ -10,6 +10,8 @@ import (
 	"sort"
 	"strings"
 	"syscall"
+
+	"github.com/tauvox/tauvox/internal/output"
 )
 
 // ErrExists reports an output folder that exists when Force was not given.
@@ -30,6 +32,8 @@ type Stage struct {
 	start  os.FileInfo // the target as found at the start (nil: absent)
 	empty  bool        // the target was an empty folder at the start
 	notes  []string
+	// endDefer ends the deferral of the folder's flush (register).
+	endDefer func()
 }
 
 // ownerFile is the file inside a temporary folder whose lock marks the
@@ -267,6 +271,10 @@ func (s *Stage) Commit() error {
 	if err := s.writeList(); err != nil {
 		return fail(err)
 	}
+	// Every file was synced as it was committed; the folder's entries are
+	// flushed here, once, before it is renamed into place, and the rename
+	// after it (the parent's flush, syncParent).
+	output.SyncDir(s.tmp)
 	now, err := os.Lstat(s.target)
 	switch {
 	case err != nil && !errors.Is(err, os.ErrNotExist):
@@ -315,12 +323,17 @@ func (s *Stage) Commit() error {
 			os.Rename(old, s.target)
 			return fail(err)
 		}
+		s.syncParent()
 		s.release(s.target)
 		return os.RemoveAll(old)
 	}
+	s.syncParent()
 	s.release(s.target)
 	return nil
 }
+
+// syncParent flushes the rename of the finished folder into place.
+func (s *Stage) syncParent() { output.SyncDir(filepath.Dir(s.target)) }
 
 // writeList writes the names of the stage's entries (the owner file
 // aside) into its .tauvox-written file.

@@ -683,6 +683,7 @@ type StreamWriter struct {
 	want, got int64
 	err       error
 	done      bool
+	finished  bool // every sample written, the stream ended and flushed
 }
 
 // Create starts the image at path with grid dims and the affine; opt is
@@ -792,6 +793,36 @@ func (w *StreamWriter) Append(samples []float32) error {
 		return w.err
 	}
 	w.got += int64(len(samples))
+	if w.got == w.want {
+		// The last samples: end the stream now and start its write to
+		// disk, so that the sync in Close, after whatever the caller does
+		// in between, finds the data written.
+		if err := w.finish(); err != nil {
+			return err
+		}
+		w.f.StartSync()
+	}
+	return nil
+}
+
+// finish ends the compressed stream and flushes the file's buffer.
+func (w *StreamWriter) finish() error {
+	if w.finished {
+		return nil
+	}
+	if w.zw != nil {
+		if err := w.zw.Close(); err != nil {
+			w.err = &fileError{w.path, "cannot write", err}
+			w.Abort()
+			return w.err
+		}
+	}
+	if err := w.bw.Flush(); err != nil {
+		w.err = &fileError{w.path, "cannot write", err}
+		w.Abort()
+		return w.err
+	}
+	w.finished = true
 	return nil
 }
 
@@ -809,18 +840,8 @@ func (w *StreamWriter) Close() error {
 		w.Abort()
 		return w.err
 	}
-	fail := func(op string, err error) error {
-		w.err = &fileError{w.path, op, err}
-		w.Abort()
-		return w.err
-	}
-	if w.zw != nil {
-		if err := w.zw.Close(); err != nil {
-			return fail("cannot write", err)
-		}
-	}
-	if err := w.bw.Flush(); err != nil {
-		return fail("cannot write", err)
+	if err := w.finish(); err != nil {
+		return err
 	}
 	w.done = true
 	if err := w.f.Commit(); err != nil {

@@ -66,7 +66,7 @@ func Montage(im *volume.Image, o *Options) (*image.RGBA, error) {
 		return nil, fmt.Errorf("preview: montage of an image with %d volumes; give one 3-D map", im.Dims[3])
 	}
 	nx, ny, nz := im.Dims[0], im.Dims[1], im.Dims[2]
-	cm := colorMap(o)
+	cm := paletteTable(colorMap(o))
 	invalid := Black
 	if o.Invalid != nil {
 		invalid = *o.Invalid
@@ -105,7 +105,10 @@ func Montage(im *volume.Image, o *Options) (*image.RGBA, error) {
 		tile := img.SubImage(image.Rect(x, y, x+tw, y+th)).(*image.RGBA)
 		Slice(tile, im.Data[k*nx*ny:(k+1)*nx*ny], nx, ny, cm, lo, hi, invalid)
 		if tw >= 40 && th >= lineH+6 {
-			DrawLabel(img, x+1, y+1, fmt.Sprint(k), white, color.RGBA{0, 0, 0, 160})
+			// White on an opaque black box: a translucent box blended
+			// with the voxels beneath made colours of its own, too many
+			// for a palette where the corner of a slice holds values.
+			DrawLabel(img, x+1, y+1, fmt.Sprint(k), white, color.RGBA{0, 0, 0, 255})
 		}
 	}
 	draw.Draw(img, bar.Bounds().Add(image.Pt(margin+gridW+16, y0)), bar, image.Point{}, draw.Src)
@@ -122,6 +125,31 @@ func colorMap(o *Options) ColorMap {
 		cm = cm.Reversed()
 	}
 	return cm
+}
+
+// montageColors is the most table entries a montage draws: with the
+// white background, the ink of its text, the colour bar's frame and the
+// invalid colour, at most 256 colours in all, so that the PNG is written
+// with a palette (encodePNG).
+const montageColors = 252
+
+// paletteTable returns cm with at most montageColors entries: a longer
+// table (matplotlib's have 256) is sampled at evenly spaced entries, its
+// first and last kept (entry k of the result is entry round(k·(n−1)/251)
+// of cm). A montage then shows 252 levels instead of 256, a step of
+// 0.4 % of the window instead of 0.39 %; its file is half the size and
+// takes half the time to compress (one byte per pixel instead of three).
+// The table of a reversed map samples to the reverse of the forward one.
+func paletteTable(cm ColorMap) ColorMap {
+	n := len(cm.Colors)
+	if n <= montageColors {
+		return cm
+	}
+	c := make([]color.RGBA, montageColors)
+	for k := range c {
+		c[k] = cm.Colors[(2*k*(n-1)+montageColors-1)/(2*(montageColors-1))]
+	}
+	return ColorMap{Name: cm.Name, Colors: c}
 }
 
 // tileSize returns the displayed size of an nx×ny slice with voxel sizes

@@ -219,3 +219,84 @@ func TestEncodePNGParts(t *testing.T) {
 		}
 	}
 }
+
+// TestEncodePNGPalette: an opaque image of at most 256 colours is written
+// with a palette (colour type 3, PNG specification §11.2.2: IHDR byte 9)
+// and one of 257 in RGB (type 2); image/png decodes both to the same
+// pixels. The palette holds the colours in the order they first occur.
+func TestEncodePNGPalette(t *testing.T) {
+	for _, n := range []int{1, 2, 255, 256, 257, 1000} {
+		img := image.NewRGBA(image.Rect(0, 0, 97, 61))
+		for i := 0; i < len(img.Pix); i += 4 {
+			k := (i / 4 * 7919) % n // every colour occurs, in a scattered order
+			img.Pix[i], img.Pix[i+1], img.Pix[i+2], img.Pix[i+3] = uint8(k), uint8(k>>8), uint8(255-k), 255
+		}
+		var buf bytes.Buffer
+		if err := encodePNG(&buf, img); err != nil {
+			t.Fatal(err)
+		}
+		want := byte(3)
+		if n > 256 {
+			want = 2
+		}
+		if ct := buf.Bytes()[8+8+9]; ct != want {
+			t.Errorf("%d colours: colour type %d, want %d", n, ct, want)
+		}
+		got, err := png.Decode(bytes.NewReader(buf.Bytes()))
+		if err != nil {
+			t.Fatalf("%d colours: image/png cannot decode: %v", n, err)
+		}
+		for y := 0; y < 61; y++ {
+			for x := 0; x < 97; x++ {
+				if g := color.RGBAModel.Convert(got.At(x, y)).(color.RGBA); g != img.RGBAAt(x, y) {
+					t.Fatalf("%d colours: pixel (%d,%d) = %v, want %v", n, x, y, g, img.RGBAAt(x, y))
+				}
+			}
+		}
+		if p, ok := got.(*image.Paletted); ok && n <= 256 {
+			if len(p.Palette) != n {
+				t.Errorf("%d colours: palette of %d", n, len(p.Palette))
+			}
+			if c := color.RGBAModel.Convert(p.Palette[0]).(color.RGBA); c != img.RGBAAt(0, 0) {
+				t.Errorf("%d colours: first palette entry %v, want the first pixel's %v", n, c, img.RGBAAt(0, 0))
+			}
+		}
+	}
+}
+
+// TestMontagePalette: a montage of a map with NaN voxels, values below,
+// inside and above the window, drawn with a 256-entry table, has at most
+// 256 colours and is written with a palette; the table it draws has 252
+// entries, its ends those of the full table, and a reversed table samples
+// to the reverse of the forward one.
+func TestMontagePalette(t *testing.T) {
+	im := benchMap()
+	for i := 0; i < len(im.Data); i += 97 {
+		im.Data[i] = float32(i%400) - 50
+	}
+	img, err := Montage(im, &Options{Quantity: "T2", Title: "T2map"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var buf bytes.Buffer
+	if err := encodePNG(&buf, img); err != nil {
+		t.Fatal(err)
+	}
+	if ct := buf.Bytes()[8+8+9]; ct != 3 {
+		t.Errorf("montage written with colour type %d, want 3 (palette)", ct)
+	}
+	p := paletteTable(Viridis)
+	if len(p.Colors) != montageColors || p.Darkest() != Viridis.Darkest() || p.Brightest() != Viridis.Brightest() {
+		t.Errorf("sampled table: %d entries, ends %v %v", len(p.Colors), p.Darkest(), p.Brightest())
+	}
+	r := paletteTable(Viridis.Reversed())
+	for k, c := range r.Colors {
+		if c != p.Colors[montageColors-1-k] {
+			t.Fatalf("reversed table entry %d = %v, want %v", k, c, p.Colors[montageColors-1-k])
+		}
+	}
+	short := ColorMap{Colors: Viridis.Colors[:100]}
+	if got := paletteTable(short); len(got.Colors) != 100 {
+		t.Errorf("a table of 100 entries became %d", len(got.Colors))
+	}
+}

@@ -1,0 +1,7 @@
+//go:build !linux
+
+package output
+
+import "os"
+
+func startSync(*os.File) {}
