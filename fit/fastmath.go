@@ -72,3 +72,24 @@ func expNeg(x float64) float64 {
 	p := 1 + r*(1+r*(0.5+r*(1.0/6+r*(1.0/24+r*(1.0/120)))))
 	return math.Float64frombits(uint64(1023+(k>>6))<<52) * expTable[k&63] * p
 }
+
+// expFast returns e^x to within a few ulp for |x| ≤ 708 by expNeg's
+// method (x·64/ln2 rounded to the nearest integer on either side of 0),
+// and math.Exp(x) beyond, where e^x overflows or is subnormal, and for
+// NaN. The log-linear fit's e^intercept (M0) took a tenth of its time in
+// math.Exp, which does not inline.
+func expFast(x float64) float64 {
+	if !(x >= -708 && x <= 708) {
+		return math.Exp(x)
+	}
+	const (
+		inv = 64 / math.Ln2
+		hi  = 0.01083042469326756    // ln2/64 cut to 31 mantissa bits, so k·hi is exact
+		lo  = 2.9815858269852933e-12 // ln2/64 − hi (50-digit ln 2)
+	)
+	k := int64(x*inv + math.Copysign(0.5, x))
+	kf := float64(k)
+	r := (x - kf*hi) - kf*lo
+	p := 1 + r*(1+r*(0.5+r*(1.0/6+r*(1.0/24+r*(1.0/120)))))
+	return math.Float64frombits(uint64(1023+(k>>6))<<52) * expTable[k&63] * p
+}

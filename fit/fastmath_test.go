@@ -66,3 +66,29 @@ func TestExpNeg(t *testing.T) {
 		}
 	}
 }
+
+// TestExpFast: expFast agrees with math.Exp (the reference) within 3 ulp
+// on [−708, 708], and is math.Exp itself beyond and for NaN and ±Inf.
+func TestExpFast(t *testing.T) {
+	rng := rand.New(rand.NewPCG(15, 16))
+	for i := 0; i < 200000; i++ {
+		x := 708 * (2*rng.Float64() - 1) * rng.Float64()
+		got, want := expFast(x), math.Exp(x)
+		if math.Abs(got-want) > 3*ulp(want) {
+			t.Fatalf("expFast(%g) = %.17g, math.Exp %.17g", x, got, want)
+		}
+	}
+	for _, x := range []float64{0, 1e-300, -1e-300, 0.5, 1, -1, math.Ln2 / 128, math.Ln2 / -128, 6.9, 700, 708, -708} {
+		if got, want := expFast(x), math.Exp(x); math.Abs(got-want) > 3*ulp(want) {
+			t.Errorf("expFast(%g) = %.17g, want %.17g", x, got, want)
+		}
+	}
+	for _, x := range []float64{709, -709, 1e9, math.Inf(1), math.Inf(-1)} {
+		if got, want := expFast(x), math.Exp(x); got != want {
+			t.Errorf("expFast(%g) = %g, want %g", x, got, want)
+		}
+	}
+	if got := expFast(math.NaN()); !math.IsNaN(got) {
+		t.Errorf("expFast(NaN) = %g", got)
+	}
+}

@@ -325,7 +325,7 @@ func logLinear(te, y []float64) (m0, r, seR, seM0 float64, used int, ok bool) {
 	dxy := sxy - sx*my
 	slope := dxy / dxx
 	icpt := my - slope*mx
-	m0 = math.Exp(icpt)
+	m0 = expFast(icpt)
 	r = -slope
 	seR, seM0 = math.NaN(), math.NaN()
 	if used > 2 {
