@@ -374,7 +374,7 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 		}
 		if nb < 48 {
 			if pos+8 <= len(data) {
-				buf |= binary.LittleEndian.Uint64(data[pos:]) << nb
+				buf |= load64(data, pos) << nb
 				pos += int((63 - nb) >> 3)
 				nb |= 56
 			} else {
@@ -398,7 +398,11 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 			e = litInfo[sym]
 		}
 		if e&isLiteral != 0 {
-			out = append(out, T(e>>16))
+			// There is room (the top of the loop): store and lengthen
+			// without append's check of the capacity.
+			o := len(out)
+			*(*T)(unsafe.Add(unsafe.Pointer(unsafe.SliceData(out)), uintptr(o)*unsafe.Sizeof(T(0)))) = T(e >> 16)
+			out = unsafe.Slice(unsafe.SliceData(out), cap(out))[:o+1]
 			continue
 		}
 		if e&(isEnd|isInvalid) != 0 {
@@ -458,17 +462,19 @@ func symbols[T uint8 | uint16](b *bits, out []T, lit, dist *huffman) ([]T, error
 		// which later output overwrites. Nearer matches go 4 bytes at a
 		// time, or to copyNear.
 		if sz := int(unsafe.Sizeof(T(0))); d >= 8/sz {
-			all := unsafe.Slice((*byte)(unsafe.Pointer(unsafe.SliceData(out))), cap(out)*sz)
+			base := unsafe.Pointer(unsafe.SliceData(out))
+			dst, src := unsafe.Add(base, o*sz), unsafe.Add(base, from*sz)
 			for k := 0; k < n*sz; k += 8 {
-				binary.LittleEndian.PutUint64(all[o*sz+k:], binary.LittleEndian.Uint64(all[from*sz+k:]))
+				*(*[8]byte)(unsafe.Add(dst, k)) = *(*[8]byte)(unsafe.Add(src, k))
 			}
 			out = out[:o+n]
 		} else if sz == 1 && d >= 4 {
 			// 4 bytes back (the period of float32 samples) to 7: the
 			// same in words of 4 bytes.
-			all := unsafe.Slice((*byte)(unsafe.Pointer(unsafe.SliceData(out))), cap(out))
+			base := unsafe.Pointer(unsafe.SliceData(out))
+			dst, src := unsafe.Add(base, o), unsafe.Add(base, from)
 			for k := 0; k < n; k += 4 {
-				binary.LittleEndian.PutUint32(all[o+k:], binary.LittleEndian.Uint32(all[from+k:]))
+				*(*[4]byte)(unsafe.Add(dst, k)) = *(*[4]byte)(unsafe.Add(src, k))
 			}
 			out = out[:o+n]
 		} else {
