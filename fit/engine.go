@@ -458,6 +458,29 @@ func MaxInto(peaks, vol []float32) {
 	}
 }
 
+// StartPeaks sets each peak to the same voxel's sample of vol when that
+// is finite, else to −Inf: ResetPeaks and MaxInto in one pass, for the
+// first volume of a series, so that the peaks of a fresh allocation are
+// written once (its pages first touched beside the read that delivers
+// the volume, not before it starts).
+func StartPeaks(peaks, vol []float32) {
+	vol = vol[:len(peaks)]
+	for v, s := range vol {
+		// As MaxInto from −Inf: s > −Inf rules out NaN and −Inf.
+		if s > float32(math.Inf(-1)) && s <= math.MaxFloat32 {
+			peaks[v] = s
+		} else {
+			peaks[v] = float32(math.Inf(-1))
+		}
+	}
+}
+
+// StartPeaksHalves is StartPeaks on the two halves of the voxels at once.
+func StartPeaksHalves(peaks, vol []float32) {
+	h := len(peaks) / 2
+	both(func() { StartPeaks(peaks[:h], vol[:h]) }, func() { StartPeaks(peaks[h:], vol[h:len(peaks)]) })
+}
+
 // MaxIntoHalves is MaxInto on the two halves of the voxels at once (the
 // peaks are each voxel's own). A split .nii.gz read reports the volumes of
 // its second half together, one after another, when that half is joined:

@@ -206,12 +206,18 @@ func TestPeaksMaskHalves(t *testing.T) {
 }
 
 // TestMaxIntoHalves: the peaks taken in two halves at once equal those of
-// MaxInto, element by element, with NaN, ±Inf and an odd length.
+// MaxInto, element by element, with NaN, ±Inf and an odd length; and so
+// do peaks whose first volume goes through StartPeaks or StartPeaksHalves
+// on garbage (not reset) instead of ResetPeaks and MaxInto.
 func TestMaxIntoHalves(t *testing.T) {
 	r := rand.New(rand.NewPCG(13, 14))
 	n := 1001
 	one, two := ResetPeaks(make([]float32, n)), ResetPeaks(make([]float32, n))
-	for range 5 {
+	three, four := make([]float32, n), make([]float32, n)
+	for i := range three {
+		three[i], four[i] = float32(r.NormFloat64()*1e6), float32(math.NaN())
+	}
+	for k := range 5 {
 		vol := make([]float32, n+3) // longer than the peaks, as a slab's volume may be
 		for i := range vol {
 			switch k := r.IntN(100); {
@@ -227,10 +233,19 @@ func TestMaxIntoHalves(t *testing.T) {
 		}
 		MaxInto(one, vol)
 		MaxIntoHalves(two, vol)
+		if k == 0 {
+			StartPeaks(three, vol)
+			StartPeaksHalves(four, vol)
+		} else {
+			MaxInto(three, vol)
+			MaxIntoHalves(four, vol)
+		}
 	}
 	for i := range one {
-		if math.Float32bits(one[i]) != math.Float32bits(two[i]) {
-			t.Fatalf("voxel %d: halves %v, one pass %v", i, two[i], one[i])
+		for _, p := range [][]float32{two, three, four} {
+			if math.Float32bits(one[i]) != math.Float32bits(p[i]) {
+				t.Fatalf("voxel %d: %v, one pass %v", i, p[i], one[i])
+			}
 		}
 	}
 }

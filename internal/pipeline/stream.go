@@ -231,11 +231,20 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		// while the rest of the series is still being read.
 		var peaks []float32
 		if auto {
-			peaks = fit.ResetPeaks(make([]float32, plane*nz))
+			peaks = make([]float32, plane*nz)
 		}
 		if src.nii != nil {
 			if auto {
-				src.nii.VolumeDone = func(_ int, vol []float32) { fit.MaxIntoHalves(peaks, vol) }
+				// The volumes come in order: the first sets the peaks
+				// (writing 6 MB of −Inf first held up the read's start by
+				// 4–6 ms on the 47 MB series of docs/benchmarks.md).
+				src.nii.VolumeDone = func(i int, vol []float32) {
+					if i == 0 {
+						fit.StartPeaksHalves(peaks, vol)
+					} else {
+						fit.MaxIntoHalves(peaks, vol)
+					}
+				}
 			}
 			// A .nii.gz read whole may decode its second half on another
 			// CPU, within what the slab plan leaves of the memory budget.
@@ -250,6 +259,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		}
 		if auto {
 			if src.nii == nil {
+				fit.ResetPeaks(peaks)
 				for t := range nvol {
 					fit.MaxInto(peaks, first.Volume(t))
 				}
