@@ -52,8 +52,16 @@ func TestRunDeterministicAcrossWorkers(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		for _, w := range []int{2, 3, 8} {
-			got, err := Run(context.Background(), im, m, &Options{Workers: w})
+		// The peaks of the survey (Options.Peaks) mask the air without
+		// its samples: the same maps bit for bit.
+		var ph PeakHistogram
+		peaks := ph.Peaks(nil, im)
+		for _, w := range []int{2, 3, 8, -2} {
+			opt := &Options{Workers: w}
+			if w < 0 {
+				opt = &Options{Workers: -w, Peaks: peaks}
+			}
+			got, err := Run(context.Background(), im, m, opt)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -108,6 +116,15 @@ func TestRunMaskAndErrors(t *testing.T) {
 	}
 	if _, err := Run(context.Background(), im, &MonoExp{}, &Options{Mask: mask[:10]}); err == nil {
 		t.Error("short mask accepted")
+	}
+	if _, err := Run(context.Background(), im, &MonoExp{}, &Options{Peaks: make([]float32, 10)}); err == nil {
+		t.Error("peaks of the wrong length accepted")
+	}
+	// With a mask, the peaks do not decide: the mask does.
+	peaks := make([]float32, im.Voxels()) // all 0: below any threshold
+	maps, err = Run(context.Background(), im, &MonoExp{}, &Options{Mask: mask, Threshold: 1e-6, Peaks: peaks})
+	if err != nil || Status(maps.Status[27]) != OK {
+		t.Errorf("mask with peaks: %v, status %v", err, Status(maps.Status[27]))
 	}
 	bad := *im
 	bad.Acq = echoes([]float64{10, 20, 30, 40, 50, math.NaN()})

@@ -239,10 +239,10 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 	needSigma := c.Rician && c.Spec.Sigma == 0
 	thr := c.Threshold
 	var first *volume.Image // the one slab, when the series is a single slab
+	var peaks []float32     // each voxel's largest sample, of the one slab
 	if nslab == 1 {
 		// The peaks of the automatic threshold are taken volume by volume
 		// while the rest of the series is still being read.
-		var peaks []float32
 		if auto {
 			peaks = make([]float32, plane*nz)
 		}
@@ -340,7 +340,9 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 			w.Abort()
 		}
 	}()
-	opt := &fit.Options{Workers: c.Workers, Threshold: thr, NoThreshold: thr <= 0}
+	// The peaks of the one slab let the fit mask the air without reading
+	// its samples.
+	opt := &fit.Options{Workers: c.Workers, Threshold: thr, NoThreshold: thr <= 0, Peaks: peaks}
 	offset := 0
 	if progress != nil {
 		opt.Progress = func(done int) { progress(offset+done, plane*nz) }
@@ -411,7 +413,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 			// the previews and the map files' compressors reuse their memory
 			// instead of mapping in more (measured on the 47 MB series of
 			// docs/benchmarks.md: 38,000 page faults instead of 50,000).
-			im, first, bufs = nil, nil, nil
+			im, first, bufs, opt.Peaks, peaks = nil, nil, nil, nil, nil
 			runtime.GC()
 			// The previews are drawn from the maps in memory while the map
 			// files are compressed and written.
