@@ -2,10 +2,10 @@ package mapset
 
 import (
 	"path/filepath"
-
-	"github.com/tauvox/tauvox/internal/output"
 	"strings"
 	"sync"
+
+	"github.com/tauvox/tauvox/internal/output"
 )
 
 // stages maps the temporary folder of every open Stage to its final
