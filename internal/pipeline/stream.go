@@ -163,18 +163,7 @@ func runSlabs(ctx context.Context, c *Config, progress Progress) (sum *Summary, 
 		defer debug.SetMemoryLimit(debug.SetMemoryLimit(lim))
 	}
 	nslab := len(plan.Slabs) - 1
-	if nslab == 1 && lim > 0 {
-		// One slab: its buffers are allocated once and live to the end,
-		// and what becomes garbage (the end of a split read, the samples
-		// after the fit) is collected where it does (runtime.GC below and
-		// in io/nifti). Collections triggered by the heap's growth find
-		// nothing to free and stop both CPUs: on the 47 MB series of
-		// docs/benchmarks.md, three of them, one with a 3.5 ms pause while
-		// the decoders were preempted; without them the fit took 0.46 s
-		// instead of 0.48 s (medians of twelve). The soft limit above
-		// still bounds the heap.
-		defer debug.SetGCPercent(debug.SetGCPercent(-1))
-	}
+	defer enterRun(nslab == 1 && lim > 0)()
 	if mask != nil {
 		pos, _, err := mask.survey(plan, plane)
 		if err != nil {
