@@ -810,14 +810,14 @@ func (w *StreamWriter) finish() error {
 	if w.finished {
 		return nil
 	}
+	var err error
 	if w.zw != nil {
-		if err := w.zw.Close(); err != nil {
-			w.err = &fileError{w.path, "cannot write", err}
-			w.Abort()
-			return w.err
-		}
+		err = w.zw.Close()
 	}
-	if err := w.bw.Flush(); err != nil {
+	if err == nil {
+		err = w.bw.Flush()
+	}
+	if err != nil {
 		w.err = &fileError{w.path, "cannot write", err}
 		w.Abort()
 		return w.err

@@ -75,11 +75,7 @@ func encodePNG(w io.Writer, img *image.RGBA) error {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			if isIndexed {
-				parts[i] = compressRows(img, y0, y1, i == k-1, pal)
-			} else {
-				parts[i] = compressRows(img, y0, y1, i == k-1, nil)
-			}
+			parts[i] = compressRows(img, y0, y1, i == k-1, pal) // pal is nil for RGB
 		}()
 	}
 	wg.Wait()
@@ -162,7 +158,6 @@ func compressRows(img *image.RGBA, y0, y1 int, last bool, pal *palette) pngPart 
 type palette struct {
 	colors []uint32
 	index  []byte
-	width  int
 }
 
 // lutBits is the size of indexed's table from colour to index: 2^14
@@ -179,7 +174,7 @@ const lutBits = 14
 func indexed(img *image.RGBA) (*palette, bool) {
 	b := img.Bounds()
 	w, h := b.Dx(), b.Dy()
-	p := &palette{index: make([]byte, w*h), width: w, colors: make([]uint32, 0, 256)}
+	p := &palette{index: make([]byte, w*h), colors: make([]uint32, 0, 256)}
 	lut := make([]uint16, 1<<lutBits) // index+1 of the colour in the slot (0: empty)
 	mul := uint32(0x9e3779b1)
 	slot := func(c uint32) uint32 { return (c * mul) >> (32 - lutBits) }
@@ -211,7 +206,7 @@ func indexed(img *image.RGBA) (*palette, bool) {
 			}
 			p.colors = append(p.colors, c)
 			for !place() {
-				mul = mul*0x2c9277b5 + 0xac564b05 // the next odd multiplier (an LCG step keeps it odd)
+				mul = (mul*0x2c9277b5 + 0xac564b05) | 1 // the next multiplier: an LCG step, made odd
 			}
 			row[x] = byte(len(p.colors) - 1)
 		}
