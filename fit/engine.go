@@ -9,6 +9,7 @@ import (
 	"sync"
 	"sync/atomic"
 
+	"github.com/tauvox/tauvox/internal/halves"
 	"github.com/tauvox/tauvox/internal/threshold"
 
 	"github.com/tauvox/tauvox/volume"
@@ -498,7 +499,7 @@ func StartPeaks(peaks, vol []float32) {
 // StartPeaksHalves is StartPeaks on the two halves of the voxels at once.
 func StartPeaksHalves(peaks, vol []float32) {
 	h := len(peaks) / 2
-	both(func() { StartPeaks(peaks[:h], vol[:h]) }, func() { StartPeaks(peaks[h:], vol[h:len(peaks)]) })
+	halves.Both(func() { StartPeaks(peaks[:h], vol[:h]) }, func() { StartPeaks(peaks[h:], vol[h:len(peaks)]) })
 }
 
 // MaxIntoHalves is MaxInto on the two halves of the voxels at once (the
@@ -507,7 +508,7 @@ func StartPeaksHalves(peaks, vol []float32) {
 // their peaks are then taken on two CPUs.
 func MaxIntoHalves(peaks, vol []float32) {
 	h := len(peaks) / 2
-	both(func() { MaxInto(peaks[:h], vol[:h]) }, func() { MaxInto(peaks[h:], vol[h:len(peaks)]) })
+	halves.Both(func() { MaxInto(peaks[:h], vol[:h]) }, func() { MaxInto(peaks[h:], vol[h:len(peaks)]) })
 }
 
 // Raise raises the histogram's top to the largest of peaks.

@@ -2,8 +2,8 @@ package fit
 
 import (
 	"math"
-	"sync"
 
+	"github.com/tauvox/tauvox/internal/halves"
 	"github.com/tauvox/tauvox/volume"
 )
 
@@ -85,10 +85,10 @@ func PeaksMask(peaks []float32, n int) AutoMask {
 	// so the sum is exactly the count of the whole.
 	var q PeakHistogram
 	a, b := peaks[:len(peaks)/2], peaks[len(peaks)/2:]
-	both(func() { p.Raise(a) }, func() { q.Raise(b) })
+	halves.Both(func() { p.Raise(a) }, func() { q.Raise(b) })
 	p.h.Top = max(p.h.Top, q.h.Top)
 	q.h.Top = p.h.Top
-	both(func() { p.Add(a) }, func() { q.Add(b) })
+	halves.Both(func() { p.Add(a) }, func() { q.Add(b) })
 	for i, c := range q.h.Count {
 		p.h.Count[i] += c
 	}
@@ -97,18 +97,6 @@ func PeaksMask(peaks []float32, n int) AutoMask {
 		p.fine.count[i] += c
 	}
 	return p.Mask()
-}
-
-// both runs f and g at once and returns when both have.
-func both(f, g func()) {
-	var wg sync.WaitGroup
-	wg.Add(1)
-	go func() {
-		defer wg.Done()
-		g()
-	}()
-	f()
-	wg.Wait()
 }
 
 // RayleighMaxCDF is the distribution function of the largest of n

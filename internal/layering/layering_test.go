@@ -30,6 +30,7 @@ var rules = []rule{
 	{"internal/output", []string{"*"}, "the atomic writer and error-line helper are a leaf"},
 	{"internal/mapped", []string{"*"}, "mapping files into memory is a leaf"},
 	{"internal/prefault", []string{"*"}, "prefaulting memory is a leaf"},
+	{"internal/halves", []string{"*"}, "running two halves at once is a leaf"},
 	{"internal/threshold", []string{"*"}, "Otsu's threshold is a leaf"},
 	{"internal/regular", []string{"*"}, "opening inputs without blocking on special files is a leaf"},
 	{"internal/completion", []string{"*"}, "the completion scripts are written from the command line's description: a leaf"},

@@ -3,6 +3,8 @@ package gzsplit
 import (
 	"encoding/binary"
 	"errors"
+
+	"github.com/tauvox/tauvox/internal/halves"
 )
 
 // marker is the value of the window placeholder for window byte 0; the
@@ -45,13 +47,7 @@ func (t *Tail) Resolve(window []byte) (head, rest []byte, err error) {
 		resolve(head, t.head, window)
 		return head, t.rest, nil
 	}
-	done := make(chan struct{})
-	go func() {
-		resolve(head[h:], t.head[h:], window)
-		close(done)
-	}()
-	resolve(head[:h], t.head[:h], window)
-	<-done
+	halves.Both(func() { resolve(head[:h], t.head[:h], window) }, func() { resolve(head[h:], t.head[h:], window) })
 	return head, t.rest, nil
 }
 

@@ -7,6 +7,7 @@ import (
 	"runtime"
 	"sync"
 
+	"github.com/tauvox/tauvox/internal/halves"
 	"github.com/tauvox/tauvox/internal/mapped"
 	"github.com/tauvox/tauvox/internal/prefault"
 	"github.com/tauvox/tauvox/io/gzsplit"
@@ -209,15 +210,8 @@ func (r *SlabReader) startSplit(base, need int64, dst []float32) *split {
 		}
 		mid := first + (last-first)/2
 		cut := min(sp.restFrom+(mid-first)*sz, int64(len(rest)))
-		var crcB uint32
-		var wg sync.WaitGroup
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			crcB = part(mid, last, rest[cut:])
-		}()
-		crcA := part(first, mid, rest[:cut])
-		wg.Wait()
+		var crcA, crcB uint32
+		halves.Both(func() { crcA = part(first, mid, rest[:cut]) }, func() { crcB = part(mid, last, rest[cut:]) })
 		if !early {
 			sp.restCRC = gzsplit.CombineCRC(crcA, crcB, int64(len(rest))-cut)
 		}
